@@ -489,8 +489,8 @@ func (c *Config) validateProcedure(p *Problems) {
 	if pr.Timeout > 0 && st.Window > 0 && pr.Timeout < st.Window {
 		p.bad("procedure.timeout", pr.Timeout.String(), "is shorter than the settle window (%s): no point could ever be captured", st.Window)
 	}
-	if st.MinCount < 2 {
-		p.bad("procedure.settle.min_count", strconv.Itoa(st.MinCount), "must be at least 2")
+	if st.MinCount < 3 {
+		p.bad("procedure.settle.min_count", strconv.Itoa(st.MinCount), "must be at least 3: a line is fitted through the window and the scatter judged about it")
 	}
 	tol := d.tolerancePa()
 	if drift, ok := pressure(p, "procedure.settle.max_drift", st.MaxDrift, false); ok {

@@ -1,0 +1,161 @@
+// Package api is the daemon's HTTP surface: status, runs and their points,
+// run control, operator entry of dial readings, reports, the live event
+// stream as Server-Sent Events and Prometheus metrics. It serves on a unix
+// socket (the default way in, guarded by file permissions) and optionally on
+// a TCP address, where every call that changes something needs a bearer
+// token. The package also holds the Go client the CLI uses.
+//
+// The engine, the store and the report renderer are reached through the
+// small interfaces below, so the daemon wires them in and tests can too.
+package api
+
+import (
+	"context"
+	"errors"
+	"io"
+	"time"
+
+	"plateau/acquire/store"
+	"plateau/analysis"
+)
+
+// Control is what the API needs from the acquisition engine.
+type Control interface {
+	// Status describes the daemon and the current run right now.
+	Status(ctx context.Context) Status
+	// Start begins a new run and returns its id once it is committed.
+	Start(ctx context.Context, req StartRequest) (store.RunID, error)
+	// Stop ends the current run for good; reason goes into the run's record.
+	Stop(ctx context.Context, reason string) error
+	// Pause holds the current run where it is; Resume carries it on.
+	Pause(ctx context.Context) error
+	Resume(ctx context.Context) error
+	// Enter hands over a reading an operator took from an analog dial.
+	Enter(ctx context.Context, e Entry) error
+}
+
+// Records is the committed history: runs, points and events. *store.Store
+// satisfies it as it is.
+type Records interface {
+	Runs() ([]store.Run, error)
+	Run(id store.RunID) (store.Run, error)
+	Points(run store.RunID) ([]analysis.Point, error)
+	// Events returns up to limit events with ids above since, oldest first.
+	Events(since uint64, limit int) ([]store.Event, error)
+	LastEventID() (uint64, error)
+}
+
+// Feed is the live side of the event log: events are published after they
+// are committed. Publishing must never wait for a viewer; a viewer that
+// falls behind has its channel closed (the stream then catches up from the
+// store, so nothing committed is missed).
+type Feed interface {
+	Subscribe(buffer int) (events <-chan store.Event, cancel func())
+}
+
+// RenderFunc writes a run's report in format "json", "csv" or "html".
+type RenderFunc func(format string, w io.Writer, runID string) error
+
+// Errors that Control and RenderFunc may wrap so the API answers with the
+// right status; any other error is a 500 with no detail sent.
+var (
+	// ErrNotFound: no such run (404).
+	ErrNotFound = errors.New("not found")
+	// ErrConflict: the run's state does not allow it now, e.g. stop when
+	// nothing runs, start while a run is in progress (409).
+	ErrConflict = errors.New("not possible now")
+	// ErrInvalid: the request was understood but a value is unacceptable,
+	// e.g. an operator reading outside the gauge's scale (400).
+	ErrInvalid = errors.New("invalid request")
+)
+
+// StartRequest is the body of a start call. Every field is optional.
+type StartRequest struct {
+	// Label names the run in lists and reports, e.g. "as-found PG-0421".
+	Label string `json:"label,omitempty"`
+	// Operator is who started it, for the record.
+	Operator string `json:"operator,omitempty"`
+}
+
+// StopRequest is the optional body of a stop call.
+type StopRequest struct {
+	Reason string `json:"reason,omitempty"`
+}
+
+// Entry is an operator's reading of an analog dial at the current step.
+type Entry struct {
+	Value float64 `json:"value"`
+	Unit  string  `json:"unit"` // a pressure unit symbol, e.g. "bar", "kPa", "psi"
+}
+
+// Started is the reply to a start call.
+type Started struct {
+	Run string `json:"run"`
+}
+
+// Status is the reply to a status call. The engine fills it except
+// LastEventID, which the API adds from the store.
+type Status struct {
+	Version string    `json:"version"`
+	Since   time.Time `json:"since"` // when the daemon started
+	// Run is the current (or resumed) run; nil when the bench is idle.
+	Run *RunInfo `json:"run,omitempty"`
+	// Step says in words what the procedure is doing now.
+	Step string `json:"step,omitempty"`
+	// Progress is the share of the current run's planned points captured, 0…1.
+	Progress float64 `json:"progress"`
+	// PointsCaptured counts points captured since the daemon started.
+	PointsCaptured uint64 `json:"points_captured"`
+	// Prompt is set while the procedure waits for an operator reading.
+	Prompt      *Prompt          `json:"prompt,omitempty"`
+	Instruments []InstrumentInfo `json:"instruments"`
+	LastEventID uint64           `json:"last_event_id"`
+}
+
+// Prompt asks the operator for a dial reading.
+type Prompt struct {
+	NominalPa float64 `json:"nominal_pa"`
+	Unit      string  `json:"unit"` // the unit the dial is marked in
+	Message   string  `json:"message"`
+}
+
+// InstrumentInfo is one instrument's state. Reads and Errors count since
+// the daemon started and only ever grow.
+type InstrumentInfo struct {
+	Name      string            `json:"name"`
+	Role      string            `json:"role"` // reference | device | source
+	Up        bool              `json:"up"`   // the last read succeeded
+	Reads     uint64            `json:"reads"`
+	Errors    map[string]uint64 `json:"errors,omitempty"` // failed reads by reason (timeout, link_down, …)
+	LastPa    float64           `json:"last_pa"`
+	LastAt    time.Time         `json:"last_at,omitzero"`
+	Settled   bool              `json:"settled"`
+	LastError string            `json:"last_error,omitempty"`
+}
+
+// RunInfo describes a run in lists and status.
+type RunInfo struct {
+	ID      string      `json:"id"`
+	Label   string      `json:"label"`
+	State   store.State `json:"state"`
+	Reason  string      `json:"reason,omitempty"`
+	Created time.Time   `json:"created"`
+	Updated time.Time   `json:"updated"`
+}
+
+// RunDetail is one run with its configuration and point count.
+type RunDetail struct {
+	RunInfo
+	Points int    `json:"points"`
+	Config string `json:"config,omitempty"` // the configuration the run used (YAML)
+}
+
+// Info turns a stored run into its wire form.
+func Info(r store.Run) RunInfo {
+	return RunInfo{ID: r.ID.String(), Label: r.Label, State: r.State, Reason: r.Reason, Created: r.Created, Updated: r.Updated}
+}
+
+// Problem is the body of every error reply.
+type Problem struct {
+	Error string `json:"error"`
+}

@@ -1,0 +1,473 @@
+package acquire
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"log/slog"
+	"math"
+	"sync"
+	"time"
+
+	"plateau/acquire/clock"
+	"plateau/acquire/settle"
+	"plateau/acquire/store"
+	"plateau/analysis"
+	"plateau/config"
+	"plateau/drivers"
+)
+
+// Options wire an engine together.
+type Options struct {
+	Config     *config.Config
+	ConfigYAML []byte // the configuration as used, kept with each run
+	Store      *store.Store
+	Clock      clock.Clock
+	Log        *slog.Logger
+	// Resolve rewrites an instrument before it is opened; the simulated rig
+	// uses it to point "sim" links at its real endpoints. nil keeps it as is.
+	Resolve func(config.Instrument) (config.Instrument, error)
+	// Observer receives per-reading and per-point notices for metrics; may be nil.
+	Observer Observer
+}
+
+// Observer is told about readings and points, for metrics.
+type Observer interface {
+	Reading(instrument string, r drivers.Reading, err error)
+	Point(run store.RunID, p analysis.Point, done, total int)
+}
+
+// Engine owns the instruments, their pollers and at most one active run.
+type Engine struct {
+	cfg   *config.Config
+	yaml  []byte
+	st    *store.Store
+	clk   clock.Clock
+	log   *slog.Logger
+	obs   Observer
+	bus   *Bus
+	steps []Step
+
+	ref, dut *Poller
+	others   []*Poller
+	source   drivers.Source
+	manual   Enterer
+	// dial is the device under test when a person reads it: it is read
+	// once per point instead of being polled.
+	dial     drivers.Gauge
+	serveCtx context.Context
+	closers  []func() error
+
+	mu      sync.Mutex
+	run     *activeRun
+	started bool
+}
+
+// Enterer takes an operator's reading of an analog dial.
+type Enterer interface {
+	Enter(value float64, unit string, at time.Time) error
+}
+
+type activeRun struct {
+	id     store.RunID
+	cancel context.CancelCauseFunc
+	done   chan struct{}
+	paused bool
+	resume chan struct{}
+	step   int
+	total  int
+	points int
+	target float64
+	phase  string
+	final  store.State
+	reason string
+}
+
+// New opens every configured instrument and prepares a poller for each.
+// An instrument that cannot be opened now is an error: the daemon reports it
+// and its caller decides whether to retry.
+func New(opt Options) (*Engine, error) {
+	if opt.Config == nil || opt.Store == nil {
+		return nil, errors.New("engine: config and store are required")
+	}
+	if opt.Clock == nil {
+		opt.Clock = clock.Wall{}
+	}
+	if opt.Log == nil {
+		opt.Log = slog.New(slog.DiscardHandler)
+	}
+	cfg := opt.Config
+	e := &Engine{cfg: cfg, yaml: opt.ConfigYAML, st: opt.Store, clk: opt.Clock, log: opt.Log, obs: opt.Observer, bus: NewBus()}
+	if cfg.Procedure.Mode == "plan" {
+		e.steps = Plan(cfg.Procedure, cfg.Device.LowerPa)
+	}
+	env := drivers.OpenEnv{Log: opt.Log, Clock: opt.Clock}
+	rules := settleRules(cfg)
+	for _, inst := range cfg.Instruments {
+		if opt.Resolve != nil {
+			r, err := opt.Resolve(inst)
+			if err != nil {
+				e.Close()
+				return nil, fmt.Errorf("instrument %q: %w", inst.Name, err)
+			}
+			inst = r
+		}
+		if inst.Role == config.RoleSource {
+			src, err := drivers.OpenSource(inst, env)
+			if err != nil {
+				e.Close()
+				return nil, err
+			}
+			e.source = src
+			e.closers = append(e.closers, src.Close)
+			// A source's own pressure reading is not needed by the runner.
+			continue
+		}
+		g, err := drivers.OpenGauge(inst, env)
+		if err != nil {
+			e.Close()
+			return nil, err
+		}
+		e.closers = append(e.closers, g.Close)
+		if m, ok := g.(Enterer); ok && inst.Role == config.RoleDevice {
+			e.manual = m
+		}
+		p, err := newPoller(inst.Name, g, inst.Poll, rules, e.clk, e, opt.Log.With("instrument", inst.Name))
+		if err != nil {
+			e.Close()
+			return nil, fmt.Errorf("instrument %q: %w", inst.Name, err)
+		}
+		switch inst.Role {
+		case config.RoleReference:
+			e.ref = p
+			p.onReading = e.checkSafety
+		case config.RoleDevice:
+			e.dut = p
+			if cfg.Device.Kind == "dial" || inst.Link.Kind == config.LinkManual {
+				e.dial = g
+			}
+		default:
+			e.others = append(e.others, p)
+		}
+	}
+	if e.ref == nil || e.dut == nil {
+		e.Close()
+		return nil, errors.New("engine: a reference and a device under test are required")
+	}
+	return e, nil
+}
+
+func settleRules(cfg *config.Config) settle.Rules {
+	s := cfg.Procedure.Settle
+	return settle.Rules{
+		Window: s.Window, MinSamples: s.MinCount,
+		MaxDrift: s.MaxDriftPaPerS, MaxSpread: s.MaxSpreadPa, Band: s.BandPa,
+	}
+}
+
+// Bus is the live event feed.
+func (e *Engine) Bus() *Bus { return e.bus }
+
+// Close closes every instrument.
+func (e *Engine) Close() error {
+	var errs []error
+	for _, c := range e.closers {
+		errs = append(errs, c())
+	}
+	e.closers = nil
+	return errors.Join(errs...)
+}
+
+// Serve polls every instrument and resumes an unfinished run, until ctx
+// ends. On return the pollers have stopped and any active run is left
+// resumable in the store.
+func (e *Engine) Serve(ctx context.Context) error {
+	e.mu.Lock()
+	if e.started {
+		e.mu.Unlock()
+		return errors.New("engine: already serving")
+	}
+	e.started = true
+	e.serveCtx = ctx
+	e.mu.Unlock()
+
+	var wg sync.WaitGroup
+	for _, p := range e.pollers() {
+		if p == e.dut && e.dial != nil {
+			continue // read once per point, not polled
+		}
+		wg.Add(1)
+		go func() { defer wg.Done(); p.run(ctx) }()
+	}
+	if err := e.resumeUnfinished(ctx); err != nil {
+		e.emit(0, slog.LevelError, "resume", "", fmt.Sprintf("could not resume the unfinished run: %v", err), nil)
+	}
+	<-ctx.Done()
+	e.mu.Lock()
+	r := e.run
+	e.mu.Unlock()
+	if r != nil {
+		<-r.done // the runner notices ctx and leaves the run as it is
+	}
+	wg.Wait()
+	return nil
+}
+
+func (e *Engine) pollers() []*Poller {
+	return append([]*Poller{e.ref, e.dut}, e.others...)
+}
+
+// Sample implements SampleSink: every reading of an active run is stored.
+func (e *Engine) Sample(instrument string, r drivers.Reading, err error) {
+	if e.obs != nil {
+		e.obs.Reading(instrument, r, err)
+	}
+	e.mu.Lock()
+	run := e.run
+	e.mu.Unlock()
+	if run == nil {
+		return
+	}
+	if serr := e.st.AddSample(run.id, instrument, r, err); serr != nil {
+		e.log.Error("sample not stored", "instrument", instrument, "err", serr)
+	}
+}
+
+// checkSafety runs on the reference poller for every good reading: above the
+// safety limit the source is vented at once and the run aborted.
+func (e *Engine) checkSafety(r drivers.Reading) {
+	limit := e.cfg.Safety.MaxPressurePa
+	if limit <= 0 || r.Pa <= limit {
+		return
+	}
+	e.mu.Lock()
+	run := e.run
+	e.mu.Unlock()
+	if e.source != nil {
+		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+		if err := e.source.Vent(ctx); err != nil {
+			e.log.Error("vent after over-pressure failed: vent by hand", "err", err)
+		}
+		cancel()
+	}
+	msg := fmt.Sprintf("over-pressure: reference reads %.6g Pa, above the safety limit %.6g Pa; source vented, run aborted", r.Pa, limit)
+	if run != nil {
+		run.cancel(&abortError{msg})
+	} else {
+		e.emit(0, slog.LevelError, "safety", e.ref.Name, msg, nil)
+	}
+}
+
+type abortError struct{ msg string }
+
+func (a *abortError) Error() string { return a.msg }
+
+// emit commits an event to the store, then publishes it.
+func (e *Engine) emit(run store.RunID, level slog.Level, typ, instrument, msg string, data any) {
+	ev := store.Event{Time: e.clk.Now(), Run: run, Level: level, Instrument: instrument, Type: typ, Message: msg}
+	if data != nil {
+		if b, err := json.Marshal(data); err == nil {
+			ev.Data = b
+		}
+	}
+	e.log.Log(context.Background(), level, msg, "type", typ, "instrument", instrument, "run", run.String())
+	id, err := e.st.AddEvent(ev)
+	if err != nil {
+		e.log.Error("event not stored", "err", err)
+		return
+	}
+	ev.ID = id
+	e.bus.Publish(ev)
+}
+
+// Status is a snapshot of the engine for the API and the progress display.
+type Status struct {
+	Run         string        `json:"run,omitempty"`
+	State       string        `json:"state"`
+	Step        int           `json:"step"`
+	Steps       int           `json:"steps"`
+	Points      int           `json:"points"`
+	TotalPoints int           `json:"total_points"`
+	Phase       string        `json:"phase,omitempty"`
+	TargetPa    float64       `json:"target_pa"`
+	Instruments []PollerState `json:"instruments"`
+}
+
+// Status reports the engine and its run.
+func (e *Engine) Status() Status {
+	s := Status{State: "idle", Steps: len(e.steps), TotalPoints: CaptureCount(e.steps)}
+	e.mu.Lock()
+	if r := e.run; r != nil {
+		s.Run = r.id.String()
+		s.State = string(store.StateRunning)
+		if r.paused {
+			s.State = string(store.StatePaused)
+		}
+		s.Step, s.Points, s.Phase, s.TargetPa = r.step, r.points, r.phase, r.target
+	}
+	e.mu.Unlock()
+	for _, p := range e.pollers() {
+		s.Instruments = append(s.Instruments, p.State())
+	}
+	return s
+}
+
+// Heartbeat is the wall time of the oldest latest poll: the watchdog feeds
+// only while every poller makes progress.
+func (e *Engine) Heartbeat() time.Time {
+	oldest := time.Time{}
+	for _, p := range e.pollers() {
+		b := p.State().Beat
+		if oldest.IsZero() || b.Before(oldest) {
+			oldest = b
+		}
+	}
+	return oldest
+}
+
+var (
+	// ErrBusy is returned by Start while another run is active.
+	ErrBusy = errors.New("a run is already active")
+	// ErrNoRun is returned by Stop, Pause and Resume when no run is active.
+	ErrNoRun = errors.New("no run is active")
+)
+
+// Start creates a run and starts its runner.
+func (e *Engine) Start(label string) (store.RunID, error) {
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	if e.serveCtx == nil {
+		return 0, errors.New("start: the engine is not serving yet")
+	}
+	if e.run != nil {
+		return 0, fmt.Errorf("start: %w (%s)", ErrBusy, e.run.id)
+	}
+	if exp := e.cfg.Reference.ExpiresAt; !exp.IsZero() && e.clk.Now().After(exp.Add(24*time.Hour)) {
+		return 0, fmt.Errorf("start: the reference's calibration expired on %s; recalibrate it or correct reference.expires", e.cfg.Reference.Expires)
+	}
+	run, err := e.st.CreateRun(label, e.yaml)
+	if err != nil {
+		return 0, fmt.Errorf("start: %w", err)
+	}
+	if _, err := e.st.SetState(run.ID, store.StateRunning, "started"); err != nil {
+		return 0, fmt.Errorf("start: %w", err)
+	}
+	e.launch(run.ID, 0, false)
+	return run.ID, nil
+}
+
+// launch starts the runner goroutine from step; e.mu must be held.
+func (e *Engine) launch(id store.RunID, step int, paused bool) {
+	ctx, cancel := context.WithCancelCause(e.serveCtx)
+	r := &activeRun{id: id, cancel: cancel, done: make(chan struct{}), paused: paused,
+		resume: make(chan struct{}), step: step, total: CaptureCount(e.steps)}
+	e.run = r
+	go e.runner(ctx, r)
+}
+
+// Stop ends the active run by an operator's decision; the source is vented.
+func (e *Engine) Stop(reason string) error {
+	e.mu.Lock()
+	r := e.run
+	e.mu.Unlock()
+	if r == nil {
+		return ErrNoRun
+	}
+	if reason == "" {
+		reason = "stopped by operator"
+	}
+	r.cancel(&stopRequest{reason})
+	<-r.done
+	return nil
+}
+
+type stopRequest struct{ reason string }
+
+func (s *stopRequest) Error() string { return s.reason }
+
+// Pause holds the run at the current step; Resume re-approaches it.
+func (e *Engine) Pause() error { return e.setPaused(true) }
+
+// Resume continues a paused run.
+func (e *Engine) Resume() error { return e.setPaused(false) }
+
+func (e *Engine) setPaused(p bool) error {
+	e.mu.Lock()
+	r := e.run
+	if r == nil {
+		e.mu.Unlock()
+		return ErrNoRun
+	}
+	if r.paused == p {
+		e.mu.Unlock()
+		return nil
+	}
+	r.paused = p
+	if !p {
+		close(r.resume)
+		r.resume = make(chan struct{})
+	}
+	e.mu.Unlock()
+	st := store.StateRunning
+	msg := "resumed"
+	if p {
+		st, msg = store.StatePaused, "paused by operator"
+	}
+	if _, err := e.st.SetState(r.id, st, msg); err != nil {
+		return err
+	}
+	e.emit(r.id, slog.LevelInfo, "state", "", msg, map[string]string{"state": string(st)})
+	return nil
+}
+
+// Enter passes an operator's dial reading to the device under test.
+func (e *Engine) Enter(value float64, unit string) error {
+	if e.manual == nil {
+		return errors.New("the device under test is not read by an operator (link kind manual)")
+	}
+	if math.IsNaN(value) || math.IsInf(value, 0) {
+		return errors.New("the reading must be a finite number")
+	}
+	return e.manual.Enter(value, unit, e.clk.Now())
+}
+
+// Wait blocks until the active run (if any) has ended, and returns its final state.
+func (e *Engine) Wait(ctx context.Context) (store.State, string) {
+	e.mu.Lock()
+	r := e.run
+	e.mu.Unlock()
+	if r == nil {
+		return "", ""
+	}
+	select {
+	case <-r.done:
+		return r.final, r.reason
+	case <-ctx.Done():
+		return "", ctx.Err().Error()
+	}
+}
+
+// resumeUnfinished continues the newest run left running or paused.
+func (e *Engine) resumeUnfinished(ctx context.Context) error {
+	runs, err := e.st.Unfinished()
+	if err != nil || len(runs) == 0 {
+		return err
+	}
+	r := runs[len(runs)-1]
+	var c cursor
+	if len(r.Cursor) > 0 {
+		if err := json.Unmarshal(r.Cursor, &c); err != nil {
+			return fmt.Errorf("run %s: cursor: %w", r.ID, err)
+		}
+	}
+	e.mu.Lock()
+	e.launch(r.ID, c.Step, r.State == store.StatePaused)
+	e.mu.Unlock()
+	e.emit(r.ID, slog.LevelInfo, "state", "", fmt.Sprintf("resumed after restart at step %d", c.Step+1), nil)
+	return nil
+}
+
+type cursor struct {
+	Step int `json:"step"`
+}

@@ -1,0 +1,127 @@
+// Package acquire runs a calibration: one poller per instrument feeding its
+// settle detector, the procedure runner that drives the pressure and
+// captures comparison points, the run lifecycle and the live event bus.
+package acquire
+
+import (
+	"fmt"
+
+	"plateau/analysis"
+	"plateau/config"
+)
+
+// StepKind is what the runner does at one step of a plan.
+type StepKind string
+
+const (
+	StepExercise StepKind = "exercise" // go to full scale, dwell, come back down
+	StepCapture  StepKind = "capture"  // bring the pressure to a target and capture a point
+)
+
+// Step is one entry of a procedure plan. Steps are numbered by their position
+// in the plan; the run's resume cursor is that number.
+type Step struct {
+	Kind      StepKind
+	Cycle     int // measuring cycle (1-based); the exercise number for StepExercise
+	Direction analysis.Direction
+	PointKind analysis.PointKind
+	Index     int     // position of the nominal in the procedure's point list
+	TargetPa  float64 // nominal pressure
+	// TopHold is an extra dwell before this capture: the wait at the top
+	// before the first descending point.
+	TopHold bool
+}
+
+func (s Step) String() string {
+	switch s.Kind {
+	case StepExercise:
+		return fmt.Sprintf("exercise %d to full scale", s.Cycle)
+	}
+	switch s.PointKind {
+	case analysis.ZeroBefore:
+		return fmt.Sprintf("cycle %d zero before", s.Cycle)
+	case analysis.ZeroAfter:
+		return fmt.Sprintf("cycle %d zero after", s.Cycle)
+	}
+	return fmt.Sprintf("cycle %d %s point %d", s.Cycle, s.Direction, s.Index+1)
+}
+
+// Key identifies a captured point of this step; the store keeps at most one
+// point per key, so a resumed run never duplicates a point.
+func (s Step) Key() string {
+	return fmt.Sprintf("%d/%s/%s/%d", s.Cycle, s.Direction, s.PointKind, s.Index)
+}
+
+// Plan lays out a procedure: exercise cycles to full scale, then for each
+// cycle a zero reading, an ascending series, a descending series (the top
+// point is captured in both, after a dwell at the top) and a closing zero.
+func Plan(p config.Procedure, lowerPa float64) []Step {
+	pts := p.PointsPa
+	if len(pts) == 0 {
+		return nil
+	}
+	top := pts[len(pts)-1]
+	var steps []Step
+	for e := 1; e <= p.Exercise; e++ {
+		steps = append(steps, Step{Kind: StepExercise, Cycle: e, TargetPa: top})
+	}
+	for c := 1; c <= p.Cycles; c++ {
+		if p.Zero {
+			steps = append(steps, Step{Kind: StepCapture, Cycle: c, Direction: analysis.Ascending, PointKind: analysis.ZeroBefore, TargetPa: lowerPa})
+		}
+		for i, pa := range pts {
+			steps = append(steps, Step{Kind: StepCapture, Cycle: c, Direction: analysis.Ascending, PointKind: analysis.Measurement, Index: i, TargetPa: pa})
+		}
+		for i := len(pts) - 1; i >= 0; i-- {
+			steps = append(steps, Step{Kind: StepCapture, Cycle: c, Direction: analysis.Descending, PointKind: analysis.Measurement,
+				Index: i, TargetPa: pts[i], TopHold: i == len(pts)-1})
+		}
+		if p.Zero {
+			steps = append(steps, Step{Kind: StepCapture, Cycle: c, Direction: analysis.Descending, PointKind: analysis.ZeroAfter, TargetPa: lowerPa})
+		}
+	}
+	return steps
+}
+
+// CaptureCount is the number of points a complete plan captures.
+func CaptureCount(steps []Step) int {
+	n := 0
+	for _, s := range steps {
+		if s.Kind == StepCapture {
+			n++
+		}
+	}
+	return n
+}
+
+// AnalysisInputs turns the configuration into the analysis's descriptions of
+// the device, the reference and the evaluation options.
+func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, analysis.Options) {
+	d := cfg.Device
+	dev := analysis.Device{LowerPa: d.LowerPa, UpperPa: d.UpperPa, ResolutionPa: d.ResolutionPa, Unit: d.Unit}
+	switch {
+	case d.Class != "":
+		fmt.Sscan(d.Class, &dev.Accuracy.EN837Class)
+	case d.Grade != "":
+		dev.Accuracy.ASMEGrade = d.Grade
+	default:
+		dev.Accuracy.PercentOfSpan = d.Limit.SpanPct
+		dev.Accuracy.PercentOfReading = d.Limit.ReadingPct
+		dev.Accuracy.FloorPa = d.Limit.FloorPa
+	}
+	h := cfg.Head
+	ref := analysis.Reference{
+		PercentOfReading: cfg.Reference.UncertaintyPct,
+		FloorPa:          cfg.Reference.FloorPa,
+		K:                cfg.Reference.Coverage,
+	}
+	if h.ReferenceHeight != h.DeviceHeight || h.HeightUncertainty != 0 || h.DensityUncertainty != 0 {
+		ref.Head = analysis.HeadCorrection{
+			FluidDensity: h.FluidDensity, AirDensity: h.AmbientDensity, Gravity: h.Gravity,
+			ZRef: h.ReferenceHeight, ZDUT: h.DeviceHeight,
+			HeightHalfWidth: h.HeightUncertainty, DensityHalfWidth: h.DensityUncertainty,
+		}
+	}
+	opt := analysis.Options{Rule: analysis.DecisionRule(cfg.Procedure.Decision)}
+	return dev, ref, opt
+}

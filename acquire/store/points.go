@@ -1,0 +1,136 @@
+package store
+
+import (
+	"cmp"
+	"encoding/binary"
+	"encoding/json"
+	"fmt"
+	"math"
+	"slices"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"plateau/analysis"
+)
+
+type pointRecord struct {
+	Seq    uint64         `json:"seq"`
+	Stored time.Time      `json:"stored"`
+	Point  analysis.Point `json:"point"`
+}
+
+// pointKey is deterministic in (cycle, kind, direction, index), so an engine
+// that restarts and captures the same step again finds the earlier point.
+// Strings are length-prefixed so no two field combinations share a key.
+func pointKey(p analysis.Point) ([]byte, error) {
+	bad := func(what string) error {
+		return fmt.Errorf("point cycle %d %s %s index %d: %s (%w)", p.Cycle, p.Direction, p.Kind, p.Index, what, ErrBadInput)
+	}
+	switch {
+	case p.Cycle < 0 || p.Cycle > math.MaxUint32:
+		return nil, bad("cycle out of range")
+	case p.Index < 0 || p.Index > math.MaxUint32:
+		return nil, bad("index out of range")
+	case p.Kind == "":
+		return nil, bad("kind is empty")
+	case len(p.Kind) > 255 || len(p.Direction) > 255:
+		return nil, bad("kind or direction longer than 255 bytes")
+	}
+	k := binary.BigEndian.AppendUint32(nil, uint32(p.Cycle))
+	k = append(append(k, byte(len(p.Kind))), p.Kind...)
+	k = append(append(k, byte(len(p.Direction))), p.Direction...)
+	return binary.BigEndian.AppendUint32(k, uint32(p.Index)), nil
+}
+
+// AddPoint commits a captured point before it returns. The point's identity
+// is (Cycle, Kind, Direction, Index): if the run already holds a point with
+// that identity the stored one is kept unchanged and existed is true, with
+// its original sequence number. seq numbers points in capture order.
+func (s *Store) AddPoint(run RunID, p analysis.Point) (seq uint64, existed bool, err error) {
+	key, err := pointKey(p)
+	if err != nil {
+		return 0, false, fmt.Errorf("add point to run %s: %w", run, err)
+	}
+	if err := checkFinite(p); err != nil {
+		return 0, false, fmt.Errorf("add point to run %s: %w", run, err)
+	}
+	end, err := s.begin()
+	if err != nil {
+		return 0, false, err
+	}
+	defer end()
+	err = s.db.Update(func(tx *bolt.Tx) error {
+		r, err := readRun(tx, run)
+		if err != nil {
+			return err
+		}
+		if r.State.Terminal() {
+			return fmt.Errorf("run is %s: %w", r.State, ErrRunEnded)
+		}
+		pts := tx.Bucket(bucketRuns).Bucket(u64(uint64(run))).Bucket(bucketPoints)
+		if old := pts.Get(key); old != nil {
+			var rec pointRecord
+			if err := json.Unmarshal(old, &rec); err != nil {
+				return fmt.Errorf("%w: %v", ErrBadRecord, err)
+			}
+			seq, existed = rec.Seq, true
+			return nil
+		}
+		if seq, err = pts.NextSequence(); err != nil {
+			return err
+		}
+		v, err := json.Marshal(pointRecord{Seq: seq, Stored: s.opt.Clock.Now(), Point: p})
+		if err != nil {
+			return err
+		}
+		return pts.Put(key, v)
+	})
+	if err != nil {
+		return 0, false, fmt.Errorf("add point cycle %d %s %s index %d to run %s: %w", p.Cycle, p.Direction, p.Kind, p.Index, run, err)
+	}
+	return seq, existed, nil
+}
+
+func checkFinite(p analysis.Point) error {
+	for _, f := range []struct {
+		name string
+		v    float64
+	}{
+		{"nominal", p.Nominal},
+		{"reference mean", p.Reference.Mean}, {"reference SD", p.Reference.StdDev}, {"reference slope", p.Reference.Slope},
+		{"DUT mean", p.DUT.Mean}, {"DUT SD", p.DUT.StdDev}, {"DUT slope", p.DUT.Slope},
+	} {
+		if math.IsNaN(f.v) || math.IsInf(f.v, 0) {
+			return fmt.Errorf("%s is %v (%w)", f.name, f.v, ErrBadInput)
+		}
+	}
+	return nil
+}
+
+// Points returns the run's points in capture order.
+func (s *Store) Points(run RunID) ([]analysis.Point, error) {
+	var recs []pointRecord
+	err := s.db.View(func(tx *bolt.Tx) error {
+		if _, err := runBucket(tx, run); err != nil {
+			return err
+		}
+		return tx.Bucket(bucketRuns).Bucket(u64(uint64(run))).Bucket(bucketPoints).ForEach(func(k, v []byte) error {
+			var rec pointRecord
+			if err := json.Unmarshal(v, &rec); err != nil {
+				return fmt.Errorf("point key %x: %w: %v", k, ErrBadRecord, err)
+			}
+			recs = append(recs, rec)
+			return nil
+		})
+	})
+	if err != nil {
+		return nil, fmt.Errorf("points of run %s: %w", run, err)
+	}
+	slices.SortFunc(recs, func(a, b pointRecord) int { return cmp.Compare(a.Seq, b.Seq) })
+	out := make([]analysis.Point, len(recs))
+	for i, r := range recs {
+		out[i] = r.Point
+	}
+	return out, nil
+}

@@ -1,0 +1,131 @@
+package drivers
+
+import (
+	"fmt"
+
+	"plateau/analysis/units"
+	"plateau/config"
+)
+
+// NAMUR NE 43 signal bands (REFERENCES.md §7, [C-sec]): 3.8 … 20.5 mA carries
+// a measurement (including saturation just outside 4–20 mA); anything outside
+// is a failure signal or undefined, never a pressure.
+const (
+	LoopValidLow  = 3.8  // mA
+	LoopValidHigh = 20.5 // mA
+	loopZero      = 4.0  // mA at the lower range value
+	loopSpan      = 16.0 // mA from lower to upper range value
+)
+
+// CurrentLoop scales a linear 4–20 mA transmitter output to pressure over
+// [LowerPa, UpperPa].
+type CurrentLoop struct {
+	LowerPa, UpperPa float64
+}
+
+// NewCurrentLoop reads the range quantities ("0 bar", "10 bar") of a config block.
+func NewCurrentLoop(c config.CurrentLoop) (CurrentLoop, error) {
+	lo, err := quantityPa(c.Lower)
+	if err != nil {
+		return CurrentLoop{}, fmt.Errorf("current_loop.lower: %w", err)
+	}
+	hi, err := quantityPa(c.Upper)
+	if err != nil {
+		return CurrentLoop{}, fmt.Errorf("current_loop.upper: %w", err)
+	}
+	if hi == lo {
+		return CurrentLoop{}, fmt.Errorf("current_loop: lower and upper range values are equal (%s)", c.Lower)
+	}
+	return CurrentLoop{LowerPa: lo, UpperPa: hi}, nil
+}
+
+func quantityPa(s string) (float64, error) {
+	q, err := units.ParseQuantity(s)
+	if err != nil {
+		return 0, err
+	}
+	return q.Pa()
+}
+
+// ErrLoopFault says a loop current lies outside the NAMUR NE 43 measurement band.
+var ErrLoopFault = fmt.Errorf("loop current outside %.1f–%.1f mA (NAMUR NE 43): failure signal, not a measurement", LoopValidLow, LoopValidHigh)
+
+// Pa converts a loop current in mA to pascal:
+// p = LRV + (I − 4 mA) / 16 mA × (URV − LRV) (REFERENCES.md §7).
+// Currents outside 3.8–20.5 mA return ErrLoopFault.
+func (c CurrentLoop) Pa(mA float64) (float64, error) {
+	if !(mA >= LoopValidLow && mA <= LoopValidHigh) { // also catches NaN
+		return 0, fmt.Errorf("%.3f mA: %w", mA, ErrLoopFault)
+	}
+	return c.LowerPa + (mA-loopZero)/loopSpan*(c.UpperPa-c.LowerPa), nil
+}
+
+// MilliAmps is the ideal output current for a pressure:
+// I = 4 mA + 16 mA × (p − LRV) / (URV − LRV).
+func (c CurrentLoop) MilliAmps(pa float64) float64 {
+	return loopZero + loopSpan*(pa-c.LowerPa)/(c.UpperPa-c.LowerPa)
+}
+
+// Conversion turns an instrument's raw value (after register scale and
+// offset, in the instrument's configured unit) into pascal.
+type Conversion struct {
+	Unit units.Unit   // unit of the raw value when it is a pressure
+	Loop *CurrentLoop // set when the raw value is a loop current in mA
+}
+
+// NewConversion builds the conversion for an instrument: a pressure unit, or
+// "mA" with the current loop enabled.
+func NewConversion(inst config.Instrument) (Conversion, error) {
+	if inst.Loop.Enabled {
+		if inst.Unit != "" && inst.Unit != "mA" {
+			return Conversion{}, fmt.Errorf("instrument %q: unit %q with current_loop enabled: the raw value must be in mA", inst.Name, inst.Unit)
+		}
+		loop, err := NewCurrentLoop(inst.Loop)
+		if err != nil {
+			return Conversion{}, fmt.Errorf("instrument %q: %w", inst.Name, err)
+		}
+		return Conversion{Loop: &loop}, nil
+	}
+	u, err := units.Lookup(inst.Unit)
+	if err != nil {
+		return Conversion{}, fmt.Errorf("instrument %q: unit: %w", inst.Name, err)
+	}
+	return Conversion{Unit: u}, nil
+}
+
+// RawUnit is the symbol of the raw value.
+func (c Conversion) RawUnit() string {
+	if c.Loop != nil {
+		return "mA"
+	}
+	return c.Unit.Symbol
+}
+
+// ToPa converts a raw value to pascal. A loop current outside the NAMUR band
+// gives an error that wraps ErrLoopFault.
+func (c Conversion) ToPa(raw float64) (float64, error) {
+	if c.Loop != nil {
+		return c.Loop.Pa(raw)
+	}
+	return c.Unit.ToPa(raw), nil
+}
+
+// FromPa converts pascal to the raw value (used to write setpoints).
+func (c Conversion) FromPa(pa float64) float64 {
+	if c.Loop != nil {
+		return c.Loop.MilliAmps(pa)
+	}
+	return c.Unit.FromPa(pa)
+}
+
+// Finish fills Pa from Raw and returns the reading, or a KindOutOfRange
+// *ReadError when the raw value is no measurement. Drivers call it last.
+func (c Conversion) Finish(instrument string, r Reading) (Reading, error) {
+	r.RawUnit = c.RawUnit()
+	pa, err := c.ToPa(r.Raw)
+	if err != nil {
+		return Reading{}, Fail(instrument, KindOutOfRange, err)
+	}
+	r.Pa = pa
+	return r, nil
+}

@@ -1,0 +1,103 @@
+package sim
+
+import (
+	"math"
+	"sync"
+
+	"github.com/simonvetter/modbus"
+
+	"plateau/acquire/clock"
+	"plateau/drivers/regcodec"
+)
+
+// bank answers Modbus requests from the model. It implements
+// modbus.RequestHandler, so the library's TCP server and the project's RTU
+// responder share it. Handlers run on several goroutines at once.
+type bank struct {
+	m    *model
+	j    *injector
+	clk  clock.Clock
+	p    params
+	regs []Register
+
+	mu      sync.Mutex
+	spWords [2]uint16 // setpoint words as last written, applied when the low word arrives
+}
+
+var setpointSpec = mustSpec("float32", "ABCD")
+
+func mustSpec(typ, order string) regcodec.Spec {
+	s, err := regcodec.ParseSpec(typ, order)
+	if err != nil {
+		panic(err) // constant arguments; a failure is a programming error caught by every test
+	}
+	return s
+}
+
+func (b *bank) sample() Sample { return b.j.value(b.m.sample(b.clk.Now()), b.p) }
+
+func (b *bank) HandleCoils(req *modbus.CoilsRequest) ([]bool, error) {
+	if !req.IsWrite {
+		return bits(b.regs, "coil", req.Addr, req.Quantity, b.sample())
+	}
+	for i := range req.Args {
+		if int(req.Addr)+i != CoilVent {
+			return nil, modbus.ErrIllegalDataAddress // the reached coil is read-only; nothing else exists
+		}
+	}
+	if req.Args[0] {
+		b.m.vent(b.clk.Now())
+	}
+	return nil, nil
+}
+
+func (b *bank) HandleDiscreteInputs(req *modbus.DiscreteInputsRequest) ([]bool, error) {
+	return bits(b.regs, "discrete", req.Addr, req.Quantity, b.sample())
+}
+
+func (b *bank) HandleInputRegisters(req *modbus.InputRegistersRequest) ([]uint16, error) {
+	return image(b.regs, "input", req.Addr, req.Quantity, b.sample())
+}
+
+func (b *bank) HandleHoldingRegisters(req *modbus.HoldingRegistersRequest) ([]uint16, error) {
+	if !req.IsWrite {
+		return image(b.regs, "holding", req.Addr, req.Quantity, b.sample())
+	}
+	return nil, b.writeHolding(int(req.Addr), req.Args)
+}
+
+// writeHolding checks a whole write before applying any of it.
+func (b *bank) writeHolding(addr int, args []uint16) error {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	sp, touchedLow, vent := b.spWords, false, false
+	for i, w := range args {
+		switch a := addr + i; a {
+		case RegSetpoint, RegSetpoint + 1:
+			sp[a-RegSetpoint] = w
+			touchedLow = touchedLow || a == RegSetpoint+1
+		case RegVent:
+			if w > 1 {
+				return modbus.ErrIllegalDataValue
+			}
+			vent = w == 1
+		default:
+			return modbus.ErrIllegalDataAddress // read-only or absent
+		}
+	}
+	now := b.clk.Now()
+	if touchedLow {
+		v, err := regcodec.Decode(sp[:], setpointSpec)
+		pa := b.p.refUnit.ToPa(v)
+		// The controller refuses a setpoint beyond its ceiling, as a real one does.
+		if err != nil || math.IsNaN(pa) || pa > b.p.maxPa || pa < b.p.minPa {
+			return modbus.ErrIllegalDataValue
+		}
+		b.m.setPoint(now, pa)
+	}
+	b.spWords = sp
+	if vent {
+		b.m.vent(now)
+	}
+	return nil
+}

@@ -1,0 +1,238 @@
+package sim
+
+import (
+	"math"
+	"sync"
+	"time"
+
+	"plateau/analysis"
+)
+
+// Timing of the model, in model (clock) seconds.
+const (
+	stepSeconds   = 0.010 // integration step of the friction state
+	updateSeconds = 0.100 // instruments refresh their value ten times a second
+	ventSpeedup   = 4     // venting is this much faster than a controlled step
+	reachedFrac   = 2e-4  // "setpoint reached" within 0.02 % of the controller's ceiling
+)
+
+// Noise streams, so each instrument draws its own independent sequence.
+const (
+	streamReference uint64 = iota + 1
+	streamDevice
+	streamOperator
+)
+
+// Sample is what every simulated instrument shows at one instant, in the
+// units each reports in.
+type Sample struct {
+	At        time.Time
+	Reference float64 // reference transducer, reference unit
+	Device    float64 // device under test indication, device unit
+	Current   float64 // loop current of the transmitter, mA (NAMUR saturation 3.8–20.5)
+	Source    float64 // the controller's own pressure reading, reference unit
+	Setpoint  float64 // reference unit
+	Reached   bool    // the controller says it holds its setpoint
+	Vented    bool
+	Over      bool // the device indication is outside its range by more than 10 % of span
+}
+
+// model is the physics of the bench. It is evaluated at clock times: the
+// source follows a closed-form step response from the last setpoint change,
+// the device's friction state is integrated in fixed steps on a grid from
+// the model's epoch, and every noise value is a hash of (seed, instrument,
+// update index). The same seed and the same clock times give the same
+// numbers, whatever order or how often the transports ask. It is safe for
+// concurrent use.
+type model struct {
+	p     params
+	epoch time.Time
+
+	mu sync.Mutex
+	// The current source segment: a step from `from` to `to` starting at t0.
+	t0, from, to float64
+	tau, shape   float64
+	vented       bool
+	setpoint     float64
+	// Friction (play operator) state on the integration grid.
+	grid float64 // model time of the last grid point evaluated
+	play float64 // indication after friction, Pa
+}
+
+func newModel(p params, epoch time.Time) *model {
+	m := &model{p: p, epoch: epoch, tau: p.tau / ventSpeedup, vented: true}
+	m.play = m.shaped(0)
+	return m
+}
+
+func (m *model) seconds(t time.Time) float64 { return t.Sub(m.epoch).Seconds() }
+
+// shapeFor solves overshoot = a·exp(−1−1/a) for the shape factor a of the
+// response p(s) = to + Δ·e^(−s)·(a·s − 1), s = t/τ. With a = 0 it is the
+// plain first-order lag; its peak lies at s = 1 + 1/a.
+func shapeFor(overshoot float64) float64 {
+	if overshoot <= 0 {
+		return 0
+	}
+	lo, hi := 0.0, 50.0
+	for range 100 {
+		mid := (lo + hi) / 2
+		if mid*math.Exp(-1-1/mid) < overshoot {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	return (lo + hi) / 2
+}
+
+// pressure is the true pressure at model time t (not before t0).
+func (m *model) pressure(t float64) float64 {
+	el := max(t-m.t0, 0)
+	s := el / m.tau
+	p := m.to + (m.to-m.from)*math.Exp(-s)*(m.shape*s-1)
+	if m.p.leak > 0 && !m.vented { // a leak pulls toward atmosphere, never past it
+		sag := min(m.p.leak*el, math.Abs(p))
+		p -= math.Copysign(sag, p)
+	}
+	return p
+}
+
+// shaped is the device's indication before friction, resolution and noise:
+// zero offset, span (gain) error and a parabolic bow over the range.
+func (m *model) shaped(p float64) float64 {
+	x := (p - m.p.lower) / (m.p.upper - m.p.lower)
+	return p + m.p.zero + m.p.span*p + m.p.bow*4*x*(1-x)
+}
+
+// advance integrates the friction state up to model time t. Before a
+// segment changes, the grid is brought up to the change, so a grid point
+// always sees the segment that was active at its time.
+func (m *model) advance(t float64) {
+	h := m.p.band / 2
+	for next := m.grid + stepSeconds; next <= t; next += stepSeconds {
+		f := m.shaped(m.pressure(next))
+		m.play = min(max(m.play, f-h), f+h)
+		m.grid = next
+	}
+}
+
+// friction is the indication after friction at t (which must not be
+// earlier than the grid): the play operator applied to the state.
+func (m *model) friction(t float64) float64 {
+	h := m.p.band / 2
+	f := m.shaped(m.pressure(t))
+	return min(max(m.play, f-h), f+h)
+}
+
+// restart begins a new segment at t from the current pressure.
+func (m *model) restart(t, to, tau, shape float64) {
+	m.advance(t)
+	from := m.pressure(max(t, m.t0))
+	m.t0, m.from, m.to, m.tau, m.shape = max(t, m.t0), from, to, tau, shape
+}
+
+// SetPoint moves the source toward pa and ends a vent.
+func (m *model) setPoint(at time.Time, pa float64) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	m.restart(m.seconds(at), pa, m.p.tau, m.p.shape)
+	m.setpoint, m.vented = pa, false
+}
+
+// vent opens the system to atmosphere: quick, no overshoot, no leak.
+func (m *model) vent(at time.Time) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	m.restart(m.seconds(at), 0, m.p.tau/ventSpeedup, 0)
+	m.setpoint, m.vented = 0, true
+}
+
+// sample evaluates every instrument at clock time at.
+func (m *model) sample(at time.Time) Sample {
+	m.mu.Lock()
+	t := max(m.seconds(at), m.grid)
+	m.advance(t)
+	p := m.pressure(t)
+	y := m.friction(t)
+	s := m.status(t, p)
+	m.mu.Unlock()
+
+	idx := int64(math.Floor(t / updateSeconds))
+	ref := p*(1+m.p.refErr) + m.p.refNoise*gauss(m.p.seed, streamReference, idx)
+	dev := y + m.p.devNoise*gauss(m.p.seed, streamDevice, idx)
+	s.At = at
+	s.Reference = quantize(m.p.refUnit.FromPa(ref), m.p.refUnit.FromPa(m.p.refRes))
+	s.Device = quantize(m.p.devUnit.FromPa(dev), m.p.devUnit.FromPa(m.p.devRes))
+	s.Current = m.current(m.p.devUnit.ToPa(s.Device))
+	span := m.p.upper - m.p.lower
+	s.Over = dev > m.p.upper+0.1*span || dev < m.p.lower-0.1*span
+	return s
+}
+
+// status fills the controller's side of a sample.
+func (m *model) status(t, p float64) Sample {
+	u := m.p.refUnit
+	s := Sample{Source: u.FromPa(p), Setpoint: u.FromPa(m.setpoint), Vented: m.vented}
+	pastPeak := m.shape == 0 || (t-m.t0)/m.tau >= 1+1/m.shape
+	s.Reached = pastPeak && math.Abs(p-m.setpoint) <= reachedFrac*m.p.maxPa
+	return s
+}
+
+// current converts an indication (Pa) to loop current with NAMUR NE 43
+// saturation: 4 mA + 16 mA × (p − LRV)/(URV − LRV), held inside 3.8–20.5 mA
+// (REFERENCES.md §7).
+func (m *model) current(pa float64) float64 {
+	i := 4 + 16*(pa-m.p.lower)/(m.p.upper-m.p.lower)
+	return min(max(i, 3.8), 20.5)
+}
+
+// needle is the dial's pointer (friction included, no display rounding) at
+// at, in the device unit, and the operator's reading scatter for that instant.
+func (m *model) needle(at time.Time) (pointer, scatter float64) {
+	m.mu.Lock()
+	t := max(m.seconds(at), m.grid)
+	m.advance(t)
+	y := m.friction(t)
+	m.mu.Unlock()
+	idx := int64(math.Floor(t / updateSeconds))
+	return m.p.devUnit.FromPa(y), m.p.devUnit.FromPa(m.p.devNoise * gauss(m.p.seed, streamOperator, idx))
+}
+
+// deviceError is the device's systematic error of indication at true
+// pressure p approached from direction d, in pascal: what a perfect
+// comparison would find, before resolution and noise. The dead band makes
+// the indication lag by half its width behind the direction of motion.
+func (m *model) deviceError(p float64, d analysis.Direction) float64 {
+	h := m.p.band / 2
+	if d == analysis.Descending {
+		h = -h
+	}
+	return m.shaped(p) - h - p
+}
+
+// quantize rounds v to the nearest multiple of step (no rounding for step 0).
+func quantize(v, step float64) float64 {
+	if step <= 0 {
+		return v
+	}
+	return math.Round(v/step) * step
+}
+
+// gauss is a standard normal deviate that depends only on its arguments
+// (splitmix64 hashing and the Box–Muller transform), so noise is the same
+// for the same seed and time however often an instrument is read.
+func gauss(seed, stream uint64, idx int64) float64 {
+	a := splitmix(seed ^ splitmix(stream) ^ splitmix(uint64(idx)+0x632BE59BD9B4E019))
+	b := splitmix(a)
+	u1 := (float64(a>>11) + 0.5) / (1 << 53)
+	u2 := float64(b>>11) / (1 << 53)
+	return math.Sqrt(-2*math.Log(u1)) * math.Cos(2*math.Pi*u2)
+}
+
+func splitmix(x uint64) uint64 {
+	x += 0x9E3779B97F4A7C15
+	x = (x ^ (x >> 30)) * 0xBF58476D1CE4E5B9
+	x = (x ^ (x >> 27)) * 0x94D049BB133111EB
+	return x ^ (x >> 31)
+}

@@ -1,0 +1,236 @@
+package sim
+
+import (
+	"fmt"
+	"time"
+
+	"plateau/analysis/units"
+	"plateau/config"
+)
+
+// Device kinds the simulator models.
+const (
+	KindDigital     = "digital"     // a digital gauge or transmitter with a display / register value
+	KindTransmitter = "transmitter" // a 4–20 mA transmitter, read as a loop current
+	KindDial        = "dial"        // an analog dial read by an operator
+)
+
+// params is config.Simulator read into numbers: every pressure in pascal,
+// every percentage as a fraction.
+type params struct {
+	seed uint64
+
+	tau       float64 // source time constant, s
+	overshoot float64 // fraction of the step
+	shape     float64 // response shape factor solved from overshoot (0: plain first order)
+	leak      float64 // Pa/s toward atmosphere
+	maxPa     float64 // the controller's ceiling
+	minPa     float64 // lowest setpoint the controller accepts
+
+	refNoise, refRes, refErr float64
+	refUnit                  units.Unit
+
+	kind                  string
+	zero, span, bow, band float64 // band: total dead band
+	devRes, devNoise      float64
+	devUnit               units.Unit
+	lower, upper          float64
+	operatorDelay         time.Duration
+	faults                config.SimFaults
+}
+
+// Defaults for what a config leaves empty, so that a rig starts with no
+// configuration at all. They match the config package's defaults.
+var defaultSimulator = config.Simulator{
+	Seed:  1,
+	Speed: 1,
+	Source: config.SimSource{
+		TimeConstant: 2 * time.Second,
+	},
+	Reference: config.SimReference{
+		Noise: "0.1 mbar", Resolution: "0.01 mbar", Error: "0 %", Unit: "bar",
+	},
+	Device: config.SimDevice{
+		Kind: KindDigital, Zero: "0.02 bar", Span: "0.1 %", Nonlinearity: "0.02 bar",
+		DeadBand: "0.02 bar", Resolution: "0.01 bar", Noise: "0.002 bar", Unit: "bar",
+		Lower: "0 bar", Upper: "16 bar", OperatorDelay: 5 * time.Second,
+	},
+}
+
+// WithDefaults returns s with every empty field filled from the simulator's
+// defaults (a 0–16 bar digital gauge with small, visible errors).
+func WithDefaults(s config.Simulator) config.Simulator {
+	d := defaultSimulator
+	fill := func(dst *string, def string) {
+		if *dst == "" {
+			*dst = def
+		}
+	}
+	if s.Speed <= 0 {
+		s.Speed = d.Speed
+	}
+	if s.Source.TimeConstant <= 0 {
+		s.Source.TimeConstant = d.Source.TimeConstant
+	}
+	fill(&s.Reference.Noise, d.Reference.Noise)
+	fill(&s.Reference.Resolution, d.Reference.Resolution)
+	fill(&s.Reference.Error, d.Reference.Error)
+	fill(&s.Reference.Unit, d.Reference.Unit)
+	dv := &s.Device
+	fill(&dv.Kind, d.Device.Kind)
+	fill(&dv.Zero, d.Device.Zero)
+	fill(&dv.Span, d.Device.Span)
+	fill(&dv.Nonlinearity, d.Device.Nonlinearity)
+	fill(&dv.DeadBand, d.Device.DeadBand)
+	fill(&dv.Resolution, d.Device.Resolution)
+	fill(&dv.Noise, d.Device.Noise)
+	fill(&dv.Unit, d.Device.Unit)
+	fill(&dv.Lower, d.Device.Lower)
+	fill(&dv.Upper, d.Device.Upper)
+	if dv.OperatorDelay <= 0 {
+		dv.OperatorDelay = d.Device.OperatorDelay
+	}
+	return s
+}
+
+// parseParams checks and converts a (defaulted) simulator section. Every
+// error names the key, as the config file spells it.
+func parseParams(s config.Simulator) (params, error) {
+	var p params
+	var errs []error
+	bad := func(key, val string, err error) {
+		errs = append(errs, fmt.Errorf("simulator.%s = %q: %w", key, val, err))
+	}
+	unit := func(key, val string) units.Unit {
+		u, err := units.Lookup(val)
+		if err != nil {
+			bad(key, val, err)
+			return units.Pascal
+		}
+		return u
+	}
+	pressure := func(key, val string) float64 { // a pressure such as "0.02 bar"
+		q, err := units.ParseQuantity(val)
+		if err != nil {
+			bad(key, val, err)
+			return 0
+		}
+		pa, err := q.Pa()
+		if err != nil {
+			bad(key, val, err)
+		}
+		return pa
+	}
+	percent := func(key, val string) float64 { // "0.1 %" → 0.001
+		q, err := units.ParseQuantity(val)
+		if err != nil {
+			bad(key, val, err)
+			return 0
+		}
+		if !q.Percent {
+			bad(key, val, fmt.Errorf("want a percentage such as \"0.1 %%\""))
+			return 0
+		}
+		return q.Value / 100
+	}
+	nonNegative := func(key, val string, v float64) float64 {
+		if v < 0 {
+			bad(key, val, fmt.Errorf("must not be negative"))
+			return 0
+		}
+		return v
+	}
+
+	p.seed = uint64(s.Seed)
+	p.tau = s.Source.TimeConstant.Seconds()
+	p.overshoot = s.Source.Overshoot
+	if p.overshoot < 0 || p.overshoot > 0.5 {
+		bad("source.overshoot", fmt.Sprint(s.Source.Overshoot), fmt.Errorf("want a fraction of the step between 0 and 0.5"))
+		p.overshoot = 0
+	}
+	p.shape = shapeFor(p.overshoot)
+	if s.Source.Leak != "" {
+		p.leak = nonNegative("source.leak", s.Source.Leak, pressure("source.leak", s.Source.Leak))
+	}
+
+	p.refUnit = unit("reference.unit", s.Reference.Unit)
+	p.refNoise = nonNegative("reference.noise", s.Reference.Noise, pressure("reference.noise", s.Reference.Noise))
+	p.refRes = nonNegative("reference.resolution", s.Reference.Resolution, pressure("reference.resolution", s.Reference.Resolution))
+	p.refErr = percent("reference.error", s.Reference.Error)
+
+	d := s.Device
+	switch d.Kind {
+	case KindDigital, KindTransmitter, KindDial:
+		p.kind = d.Kind
+	default:
+		bad("device.kind", d.Kind, fmt.Errorf("want %s, %s or %s", KindDigital, KindTransmitter, KindDial))
+	}
+	p.devUnit = unit("device.unit", d.Unit)
+	p.lower = pressure("device.lower", d.Lower)
+	p.upper = pressure("device.upper", d.Upper)
+	if p.upper <= p.lower {
+		bad("device.upper", d.Upper, fmt.Errorf("must be above device.lower (%s)", d.Lower))
+		p.upper = p.lower + 1
+	}
+	span := p.upper - p.lower
+	// Zero, bow, dead band and noise may be given as a pressure or as a
+	// percentage of the device's span.
+	ofSpan := func(key, val string) float64 {
+		q, err := units.ParseQuantity(val)
+		if err != nil {
+			bad(key, val, err)
+			return 0
+		}
+		if q.Percent {
+			return q.Value / 100 * span
+		}
+		pa, _ := q.Pa()
+		return pa
+	}
+	p.zero = ofSpan("device.zero", d.Zero)
+	p.span = percent("device.span", d.Span)
+	p.bow = ofSpan("device.nonlinearity", d.Nonlinearity)
+	p.band = nonNegative("device.dead_band", d.DeadBand, ofSpan("device.dead_band", d.DeadBand))
+	p.devRes = nonNegative("device.resolution", d.Resolution, ofSpan("device.resolution", d.Resolution))
+	p.devNoise = nonNegative("device.noise", d.Noise, ofSpan("device.noise", d.Noise))
+	p.operatorDelay = d.OperatorDelay
+
+	// The controller's ceiling defaults to 10 % above the device's range.
+	p.maxPa = p.upper + 0.1*span
+	if s.Source.Max != "" {
+		p.maxPa = pressure("source.max", s.Source.Max)
+	}
+	if p.maxPa <= 0 {
+		bad("source.max", s.Source.Max, fmt.Errorf("must be above zero"))
+		p.maxPa = p.upper
+	}
+	p.minPa = min(p.lower, 0)
+
+	f := s.Faults
+	for _, r := range []struct {
+		key string
+		v   float64
+	}{{"drop", f.Drop}, {"slow", f.Slow}, {"bad_crc", f.BadCRC}, {"garbage", f.Garbage}, {"stuck", f.Stuck}, {"spike", f.Spike}} {
+		if r.v < 0 || r.v > 1 {
+			bad("faults."+r.key, fmt.Sprint(r.v), fmt.Errorf("want a probability per request between 0 and 1"))
+		}
+	}
+	if f.LinkDown > 0 && f.LinkEvery <= f.LinkDown {
+		bad("faults.link_every", f.LinkEvery.String(), fmt.Errorf("must be longer than faults.link_down (%s)", f.LinkDown))
+	}
+	p.faults = f
+
+	if len(errs) > 0 {
+		return p, joinErrors(errs)
+	}
+	return p, nil
+}
+
+// joinErrors puts one problem per line, as config.Load does.
+func joinErrors(errs []error) error {
+	msg := fmt.Sprintf("%d problem(s) in the simulator settings:", len(errs))
+	for _, e := range errs {
+		msg += "\n  " + e.Error()
+	}
+	return fmt.Errorf("%s", msg)
+}

@@ -1,0 +1,388 @@
+// Package sim is plateau's simulated comparison bench: a pressure source
+// with a first-order (optionally overshooting, optionally leaking) response,
+// a reference transducer and a device under test (digital gauge, 4–20 mA
+// transmitter or analog dial read by a simulated operator), served over real
+// transports so the real drivers are exercised end to end:
+//
+//   - Modbus TCP on loopback (the server of github.com/simonvetter/modbus);
+//   - Modbus RTU on a pseudo-terminal pair (the project's own responder:
+//     t3.5 framing, CRC-16/MODBUS, function codes 01 02 03 04 05 06 15 16);
+//   - one ASCII line instrument per measuring part (reference, device), each
+//     on its own pseudo-terminal pair: send "READ?" and a line end, get
+//     "+12.3456 bar".
+//
+// All transports serve one register map (see RegisterMap and the Reg…
+// constants). The physics reads the acquisition clock, so a scaled clock
+// accelerates a run, and it is deterministic given the seed. Faults (dropped
+// or slow replies, bad CRC, garbage lines, link outages, stuck values,
+// spikes) are switched on by config.SimFaults.
+package sim
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"log"
+	"log/slog"
+	"net"
+	"strings"
+	"sync"
+	"time"
+
+	"github.com/simonvetter/modbus"
+
+	"plateau/acquire/clock"
+	"plateau/analysis"
+	"plateau/config"
+)
+
+// Endpoints tells where the running rig can be reached.
+type Endpoints struct {
+	TCP           string // host:port of the Modbus TCP server (any unit id)
+	RTU           string // serial device of the Modbus RTU slave
+	UnitID        int    // the RTU slave's address
+	RTUBaud       int    // the baud rate its t3.5 timing assumes
+	ReferenceLine string // serial device of the reference's line instrument
+	DeviceLine    string // serial device of the device's line instrument
+	Registers     []Register
+}
+
+// Rig is a running (or ready) simulated bench.
+type Rig struct {
+	cfg      config.Simulator
+	p        params
+	clk      clock.Clock
+	log      *slog.Logger
+	m        *model
+	j        *injector
+	bank     *bank
+	tcpAddr  string
+	unit     uint8
+	baud     int
+	dropHold time.Duration
+
+	mu      sync.Mutex
+	started bool
+	ep      Endpoints
+	tcp     *modbus.ModbusServer
+	ports   []*ptyPort
+	cancel  context.CancelFunc
+	wg      sync.WaitGroup
+}
+
+// Option adjusts a rig.
+type Option func(*Rig)
+
+// WithLogger sends the rig's log lines to l (the default discards them).
+func WithLogger(l *slog.Logger) Option { return func(r *Rig) { r.log = l } }
+
+// WithTCPAddress makes the Modbus TCP server listen on addr ("127.0.0.1:0",
+// the default, picks a free port).
+func WithTCPAddress(addr string) Option { return func(r *Rig) { r.tcpAddr = addr } }
+
+// WithUnitID sets the RTU slave address (default 1).
+func WithUnitID(id uint8) Option { return func(r *Rig) { r.unit = id } }
+
+// WithDropHold sets how long a TCP reply is held back when it is "dropped":
+// the library's server cannot stay silent, so the reply comes after the
+// client has given up (default 1.5 s, above the 1 s client default).
+func WithDropHold(d time.Duration) Option { return func(r *Rig) { r.dropHold = d } }
+
+// New builds a rig from a simulator section (empty fields take the
+// defaults of WithDefaults) reading time from clk.
+func New(s config.Simulator, clk clock.Clock, opts ...Option) (*Rig, error) {
+	s = WithDefaults(s)
+	p, err := parseParams(s)
+	if err != nil {
+		return nil, err
+	}
+	if clk == nil {
+		clk = clock.Wall{}
+	}
+	r := &Rig{
+		cfg: s, p: p, clk: clk,
+		log:      slog.New(slog.DiscardHandler),
+		tcpAddr:  "127.0.0.1:0",
+		unit:     1,
+		baud:     19200,
+		dropHold: 1500 * time.Millisecond,
+	}
+	for _, o := range opts {
+		o(r)
+	}
+	epoch := clk.Now()
+	r.m = newModel(p, epoch)
+	r.j = newInjector(p.faults, p.seed, epoch)
+	r.bank = &bank{m: r.m, j: r.j, clk: clk, p: p, regs: registerMap(p.refUnit.Symbol, p.devUnit.Symbol)}
+	return r, nil
+}
+
+// Settings returns the simulator section in force, defaults filled in.
+func (r *Rig) Settings() config.Simulator { return r.cfg }
+
+// Start opens the transports and serves until Stop or until ctx ends.
+func (r *Rig) Start(ctx context.Context) (Endpoints, error) {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	if r.started {
+		return r.ep, nil
+	}
+	ctx, cancel := context.WithCancel(ctx)
+	fail := func(err error) (Endpoints, error) {
+		cancel()
+		r.closeLocked()
+		return Endpoints{}, err
+	}
+	tcp, addr, err := r.listenTCP()
+	if err != nil {
+		return fail(err)
+	}
+	r.tcp = tcp
+	ep := Endpoints{TCP: addr, UnitID: int(r.unit), RTUBaud: r.baud, Registers: r.bank.regs}
+
+	paths := []*string{&ep.RTU, &ep.ReferenceLine, &ep.DeviceLine}
+	for _, path := range paths {
+		port, err := openPTY()
+		if err != nil {
+			return fail(err)
+		}
+		r.ports = append(r.ports, port)
+		*path = port.Path
+	}
+	rtu := &rtuResponder{unit: r.unit, h: r.bank}
+	r.run(ctx, func(ctx context.Context) error { return r.serveRTU(ctx, r.ports[0], rtu) })
+	r.run(ctx, func(ctx context.Context) error {
+		return r.serveLines(ctx, r.ports[1], "reference", func(s Sample) (float64, string, bool) {
+			return s.Reference, r.p.refUnit.Symbol, false
+		}, r.p.refUnit.FromPa(r.p.refRes))
+	})
+	r.run(ctx, func(ctx context.Context) error {
+		if r.p.kind == KindTransmitter {
+			return r.serveLines(ctx, r.ports[2], "device", func(s Sample) (float64, string, bool) {
+				return s.Current, "mA", false
+			}, 0.001)
+		}
+		return r.serveLines(ctx, r.ports[2], "device", func(s Sample) (float64, string, bool) {
+			return s.Device, r.p.devUnit.Symbol, s.Over
+		}, r.p.devUnit.FromPa(r.p.devRes))
+	})
+	if r.p.faults.LinkDown > 0 {
+		r.run(ctx, r.superviseLink)
+	}
+	r.wg.Add(1)
+	go func() { // Stop when the caller's context ends
+		defer r.wg.Done()
+		<-ctx.Done()
+		r.mu.Lock()
+		defer r.mu.Unlock()
+		r.closeLocked()
+	}()
+	r.cancel, r.started, r.ep = cancel, true, ep
+	r.log.Info("simulated rig started", "tcp", ep.TCP, "rtu", ep.RTU,
+		"reference_line", ep.ReferenceLine, "device_line", ep.DeviceLine)
+	return ep, nil
+}
+
+// run starts a transport loop; its error, if any, is logged.
+func (r *Rig) run(ctx context.Context, f func(context.Context) error) {
+	r.wg.Add(1)
+	go func() {
+		defer r.wg.Done()
+		if err := f(ctx); err != nil && ctx.Err() == nil {
+			r.log.Error("simulated transport stopped", "err", err)
+		}
+	}()
+}
+
+// Stop closes every transport and waits for the loops to end.
+func (r *Rig) Stop() {
+	r.mu.Lock()
+	cancel := r.cancel
+	r.mu.Unlock()
+	if cancel != nil {
+		cancel()
+	}
+	r.wg.Wait()
+}
+
+func (r *Rig) closeLocked() {
+	if r.tcp != nil {
+		r.tcp.Stop()
+	}
+	for _, p := range r.ports {
+		p.Close()
+	}
+	r.ports = nil
+	r.started = false
+}
+
+// Endpoints returns where the started rig listens (zero before Start).
+func (r *Rig) Endpoints() Endpoints {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	return r.ep
+}
+
+// RegisterMap lists the registers every Modbus transport serves, with this
+// rig's units.
+func (r *Rig) RegisterMap() []Register { return r.bank.regs }
+
+// Sample is what the instruments show now (faults not applied).
+func (r *Rig) Sample() Sample { return r.m.sample(r.clk.Now()) }
+
+// SetPoint moves the simulated source directly, as its front panel would.
+func (r *Rig) SetPoint(pa float64) error {
+	if pa > r.p.maxPa || pa < r.p.minPa {
+		return fmt.Errorf("setpoint %g Pa outside the simulated controller's %g … %g Pa", pa, r.p.minPa, r.p.maxPa)
+	}
+	r.m.setPoint(r.clk.Now(), pa)
+	return nil
+}
+
+// Vent opens the simulated system to atmosphere.
+func (r *Rig) Vent() { r.m.vent(r.clk.Now()) }
+
+// DeviceError is the device's known systematic error of indication at true
+// pressure p (Pa) approached from direction d, in pascal: zero offset + span
+// error + bow ∓ half the dead band. It excludes resolution and noise, and
+// assumes the approach moved the pointer through the whole dead band (an
+// overshoot larger than the dead band puts an upward point on the
+// downward branch, as on a real bench).
+func (r *Rig) DeviceError(p float64, d analysis.Direction) float64 { return r.m.deviceError(p, d) }
+
+// ReferenceError is the reference transducer's own error at true pressure
+// p, in pascal (its % of reading error).
+func (r *Rig) ReferenceError(p float64) float64 { return p * r.p.refErr }
+
+// listenTCP starts the library's server on the configured address. The
+// library does not report the port it bound, so a free port is reserved
+// first and the bind retried if another process takes it in between.
+func (r *Rig) listenTCP() (*modbus.ModbusServer, string, error) {
+	var last error
+	for range 5 {
+		addr := r.tcpAddr
+		if strings.HasSuffix(addr, ":0") {
+			l, err := net.Listen("tcp", addr)
+			if err != nil {
+				return nil, "", fmt.Errorf("reserve a port on %s: %w", addr, err)
+			}
+			addr = l.Addr().String()
+			l.Close()
+		}
+		srv, err := modbus.NewServer(&modbus.ServerConfiguration{
+			URL:        "tcp://" + addr,
+			Timeout:    5 * time.Minute,
+			MaxClients: 32,
+			Logger:     log.New(io.Discard, "", 0),
+		}, &tcpHandler{r: r})
+		if err != nil {
+			return nil, "", fmt.Errorf("modbus server on %s: %w", addr, err)
+		}
+		if last = srv.Start(); last == nil {
+			return srv, addr, nil
+		}
+		if !strings.HasSuffix(r.tcpAddr, ":0") {
+			break
+		}
+	}
+	return nil, "", fmt.Errorf("start modbus server on %s: %w", r.tcpAddr, last)
+}
+
+// superviseLink takes the TCP server away and back on the link schedule;
+// the serial transports check the schedule per request.
+func (r *Rig) superviseLink(ctx context.Context) error {
+	for {
+		now := r.clk.Now()
+		select {
+		case <-ctx.Done():
+			return nil
+		case <-r.clk.After(r.j.nextLinkChange(now).Sub(now)):
+		}
+		down := r.j.linkDown(r.clk.Now())
+		r.mu.Lock()
+		var err error
+		if r.tcp != nil && ctx.Err() == nil {
+			if down {
+				err = r.tcp.Stop()
+			} else {
+				err = r.tcp.Start()
+			}
+		}
+		r.mu.Unlock()
+		r.log.Info("simulated link", "down", down, "err", err)
+	}
+}
+
+// tcpHandler applies the transport faults to the bank's answers.
+type tcpHandler struct{ r *Rig }
+
+func (h *tcpHandler) delay() error {
+	f := h.r.j.request(0)
+	switch {
+	case f.drop:
+		time.Sleep(h.r.dropHold)
+		return modbus.ErrServerDeviceBusy
+	case f.delay > 0:
+		time.Sleep(f.delay)
+	}
+	return nil
+}
+
+func (h *tcpHandler) HandleCoils(req *modbus.CoilsRequest) ([]bool, error) {
+	if err := h.delay(); err != nil {
+		return nil, err
+	}
+	return h.r.bank.HandleCoils(req)
+}
+
+func (h *tcpHandler) HandleDiscreteInputs(req *modbus.DiscreteInputsRequest) ([]bool, error) {
+	if err := h.delay(); err != nil {
+		return nil, err
+	}
+	return h.r.bank.HandleDiscreteInputs(req)
+}
+
+func (h *tcpHandler) HandleHoldingRegisters(req *modbus.HoldingRegistersRequest) ([]uint16, error) {
+	if err := h.delay(); err != nil {
+		return nil, err
+	}
+	return h.r.bank.HandleHoldingRegisters(req)
+}
+
+func (h *tcpHandler) HandleInputRegisters(req *modbus.InputRegistersRequest) ([]uint16, error) {
+	if err := h.delay(); err != nil {
+		return nil, err
+	}
+	return h.r.bank.HandleInputRegisters(req)
+}
+
+// serveRTU answers RTU frames on a pseudo-terminal.
+func (r *Rig) serveRTU(ctx context.Context, port *ptyPort, rtu *rtuResponder) error {
+	gap := silence3_5(r.baud)
+	for ctx.Err() == nil {
+		frame, err := port.readFrame(gap, 200*time.Millisecond)
+		if errors.Is(err, errIdle) {
+			continue
+		}
+		if err != nil {
+			return fmt.Errorf("rtu %s: %w", port.Path, err)
+		}
+		if r.j.linkDown(r.clk.Now()) {
+			continue
+		}
+		f := r.j.request(r.p.faults.BadCRC)
+		reply := rtu.respond(frame)
+		if reply == nil || f.drop {
+			continue
+		}
+		sleepCtx(ctx, f.delay)
+		if f.corrupt {
+			reply[len(reply)-1] ^= 0xA5
+		}
+		if err := port.write(reply); err != nil {
+			return fmt.Errorf("rtu %s: %w", port.Path, err)
+		}
+	}
+	return nil
+}
