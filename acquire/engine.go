@@ -133,7 +133,11 @@ func New(opt Options) (*Engine, error) {
 		if m, ok := g.(Enterer); ok && inst.Role == config.RoleDevice {
 			e.manual = m
 		}
-		p, err := newPoller(inst.Name, g, inst.Poll, rules, e.clk, e, opt.Log.With("instrument", inst.Name))
+		r := rules
+		if inst.Role == config.RoleDevice {
+			r = deviceRules(rules, cfg.Device.ResolutionPa)
+		}
+		p, err := newPoller(inst.Name, g, inst.Poll, r, e.clk, e, opt.Log.With("instrument", inst.Name))
 		if err != nil {
 			e.Close()
 			return nil, fmt.Errorf("instrument %q: %w", inst.Name, err)
@@ -164,6 +168,22 @@ func settleRules(cfg *config.Config) settle.Rules {
 		Window: s.Window, MinSamples: s.MinCount,
 		MaxDrift: s.MaxDriftPaPerS, MaxSpread: s.MaxSpreadPa, Band: s.BandPa,
 	}
+}
+
+// deviceRules loosens the settle rule for the device under test to what its
+// resolution can show: a display that flickers between two adjacent digits
+// is settled (common practice), and a drift of less than one digit over the
+// window cannot be told from that flicker.
+func deviceRules(r settle.Rules, resolution float64) settle.Rules {
+	if resolution <= 0 {
+		return r
+	}
+	r.MaxSpread = math.Max(r.MaxSpread, resolution)
+	if w := r.Window.Seconds(); w > 0 {
+		r.MaxDrift = math.Max(r.MaxDrift, resolution/w)
+	}
+	r.Band = 0 // the target band is judged on the reference
+	return r
 }
 
 // Bus is the live event feed.

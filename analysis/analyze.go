@@ -111,6 +111,10 @@ func readingTime(p Point) time.Time {
 	return time.Time{}
 }
 
+// maxPressurePa bounds readings (1 TPa, far above any gauge) so that sums
+// of squares can never overflow into an Inf that JSON cannot carry.
+const maxPressurePa = 1e12
+
 func validatePoint(i int, p Point) error {
 	if err := checkPoint(p); err != nil {
 		return fmt.Errorf("%s: %w", describe(i, p), err)
@@ -144,12 +148,15 @@ func checkPoint(p Point) error {
 		if !finite(c.w.Mean) {
 			return fmt.Errorf("%s reading %g is not a finite number", c.name, c.w.Mean)
 		}
+		if math.Abs(c.w.Mean) > maxPressurePa {
+			return fmt.Errorf("%s reading %g Pa is beyond any pressure instrument (limit %g Pa)", c.name, c.w.Mean, maxPressurePa)
+		}
 		if c.w.Count < 1 {
 			return fmt.Errorf("%s window holds %d samples; a captured reading needs at least one", c.name, c.w.Count)
 		}
 	}
-	if !finite(p.Nominal) {
-		return fmt.Errorf("nominal %g is not a finite number", p.Nominal)
+	if !finite(p.Nominal) || math.Abs(p.Nominal) > maxPressurePa {
+		return fmt.Errorf("nominal %g Pa is not a finite pressure within ±%g Pa", p.Nominal, maxPressurePa)
 	}
 	return nil
 }

@@ -360,6 +360,7 @@ func TestBadInput(t *testing.T) {
 		{"unknown kind", mod(func(p []Point) []Point { p[1].Kind = ""; return p }), dev16, ref16, opt, "unknown kind"},
 		{"duplicate reading", mod(func(p []Point) []Point { return append(p, p[4]) }), dev16, ref16, opt, "second up reading"},
 		{"nominal mismatch", mod(func(p []Point) []Point { p[12].Nominal += 1; return p }), dev16, ref16, opt, "differs"},
+		{"absurd pressure", mod(func(p []Point) []Point { p[5].DUT.Mean = 1e300; return p }), dev16, ref16, opt, "beyond any pressure"},
 		{"cycle 0", mod(func(p []Point) []Point { p[0].Cycle = 0; return p }), dev16, ref16, opt, "cycle"},
 		{"negative index", mod(func(p []Point) []Point { p[0].Index = -1; return p }), dev16, ref16, opt, "index"},
 		{"empty window", mod(func(p []Point) []Point { p[0].DUT.Count = 0; return p }), dev16, ref16, opt, "samples"},

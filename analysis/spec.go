@@ -156,7 +156,7 @@ func (d Device) Validate() error {
 	if !finite(d.LowerPa) || !finite(d.UpperPa) {
 		return fmt.Errorf("device range %g … %g Pa: both ends must be finite numbers", d.LowerPa, d.UpperPa)
 	}
-	if d.Span() <= 0 {
+	if d.Span() <= 0 || !finite(d.Span()) {
 		return fmt.Errorf("device range %g … %g Pa: span must be positive (upper above lower)", d.LowerPa, d.UpperPa)
 	}
 	if !finite(d.ResolutionPa) || d.ResolutionPa <= 0 {

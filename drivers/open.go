@@ -16,13 +16,13 @@ type OpenEnv struct {
 	Clock clock.Clock  // stamps readings
 }
 
-// Logger returns the environment's logger for an instrument, never nil.
-func (e OpenEnv) Logger(inst config.Instrument) *slog.Logger {
+// Logger returns the environment's logger with attrs added; never nil.
+func (e OpenEnv) Logger(attrs ...any) *slog.Logger {
 	l := e.Log
 	if l == nil {
 		l = slog.New(slog.DiscardHandler)
 	}
-	return l.With("instrument", inst.Name, "link", inst.Link.Kind)
+	return l.With(attrs...)
 }
 
 // Time returns the environment clock, the wall clock when unset.

@@ -37,11 +37,14 @@ type Sample struct {
 // sign, exponent and leading mantissa bits repeat, as they do on a plateau,
 // so a varint stores them in a few bytes; the values round-trip bit-exactly.
 const (
-	blockVersion  = 1
-	flagFailed    = 1 << 0
-	flagWire      = 1 << 1
-	maxBlockBytes = 1500 // a few blocks share a 4 KiB page; rewriting the last block stays cheap
-	maxText       = 4096 // longer failure messages and wire texts are cut, with a marker
+	blockVersion = 1
+	flagFailed   = 1 << 0
+	flagWire     = 1 << 1
+	// blockBytes is the size a block is filled to: two blocks with their
+	// element headers (16 bytes) and keys (8) fill a 4 KiB page after its
+	// 16-byte header, and rewriting the last block each commit stays cheap.
+	blockBytes = (4096-16)/2 - 16 - 8
+	maxText    = 4096 // longer failure messages and wire texts are cut, with a marker
 )
 
 // blockWriter appends records to one block.
@@ -61,7 +64,9 @@ func newBlock(key int64, unit string) blockWriter {
 	return b
 }
 
-func (b *blockWriter) add(ns int64, smp Sample, keepWire bool) {
+// record encodes one sample relative to the block's previous one without
+// changing the block; add appends it.
+func (b *blockWriter) record(dst []byte, ns int64, smp Sample, keepWire bool) []byte {
 	var flags byte
 	if smp.Failed {
 		flags |= flagFailed
@@ -69,20 +74,27 @@ func (b *blockWriter) add(ns int64, smp Sample, keepWire bool) {
 	if keepWire && smp.Wire != "" {
 		flags |= flagWire
 	}
-	b.buf = append(b.buf, flags)
-	b.buf = binary.AppendVarint(b.buf, ns-b.lastNs)
-	b.lastNs = ns
+	dst = append(dst, flags)
+	dst = binary.AppendVarint(dst, ns-b.lastNs)
 	if smp.Failed {
-		b.buf = binary.AppendUvarint(b.buf, uint64(smp.Kind))
-		b.buf = appendString(b.buf, smp.Message)
+		dst = binary.AppendUvarint(dst, uint64(smp.Kind))
+		dst = appendString(dst, smp.Message)
 	} else {
-		pa, raw := math.Float64bits(smp.Pa), math.Float64bits(smp.Raw)
-		b.buf = binary.AppendUvarint(b.buf, pa^b.prevPa)
-		b.buf = binary.AppendUvarint(b.buf, raw^b.prevRaw)
-		b.prevPa, b.prevRaw = pa, raw
+		dst = binary.AppendUvarint(dst, math.Float64bits(smp.Pa)^b.prevPa)
+		dst = binary.AppendUvarint(dst, math.Float64bits(smp.Raw)^b.prevRaw)
 	}
 	if flags&flagWire != 0 {
-		b.buf = appendString(b.buf, smp.Wire)
+		dst = appendString(dst, smp.Wire)
+	}
+	return dst
+}
+
+// add appends a record made by record for the same sample.
+func (b *blockWriter) add(rec []byte, ns int64, smp Sample) {
+	b.buf = append(b.buf, rec...)
+	b.lastNs = ns
+	if !smp.Failed {
+		b.prevPa, b.prevRaw = math.Float64bits(smp.Pa), math.Float64bits(smp.Raw)
 	}
 }
 

@@ -214,7 +214,7 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 		return nil
 	})
 	if err != nil {
-		err = fmt.Errorf("%w: commit of %d queued items: %v", ErrStoreWrite, len(pending), err)
+		err = fmt.Errorf("%w: commit of %d queued items: %w", ErrStoreWrite, len(pending), err)
 		s.status.set(func(w *WriterStatus) { w.Err, w.Pending = err, len(pending) })
 		return err
 	}
@@ -256,11 +256,14 @@ func (s *Store) appendSample(tx *bolt.Tx, k streamKey, st *stream, smp Sample) e
 		keepWire = s.opt.WireEvery > 0 && st.good%uint64(s.opt.WireEvery) == 0
 		st.good++
 	}
-	unitChanged := !smp.Failed && smp.RawUnit != st.block.unit
-	if st.open && len(st.block.buf) < maxBlockBytes && !unitChanged {
-		st.block.add(ns, smp, keepWire)
-		return nil
+	var scratch [64]byte
+	if st.open && (smp.Failed || smp.RawUnit == st.block.unit) {
+		if rec := st.block.record(scratch[:0], ns, smp, keepWire); len(st.block.buf)+len(rec) <= blockBytes {
+			st.block.add(rec, ns, smp)
+			return nil
+		}
 	}
+	// Start a new block: the current one is full or the unit changed.
 	b, err := sampleBucket(tx, k)
 	if err != nil {
 		return err
@@ -283,7 +286,7 @@ func (s *Store) appendSample(tx *bolt.Tx, k streamKey, st *stream, smp Sample) e
 	}
 	st.block = newBlock(key, unit)
 	st.open = true
-	st.block.add(ns, smp, keepWire)
+	st.block.add(st.block.record(scratch[:0], ns, smp, keepWire), ns, smp)
 	return nil
 }
 

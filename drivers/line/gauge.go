@@ -28,9 +28,9 @@ const (
 	maxLine        = 4096                  // a longer "line" is noise, not a reply
 )
 
-// Port is what the gauge needs from a serial port; go.bug.st/serial's Port
+// port is what the gauge needs from a serial port; go.bug.st/serial's Port
 // has it.
-type Port interface {
+type port interface {
 	Read(p []byte) (int, error)
 	Write(p []byte) (int, error)
 	ResetInputBuffer() error
@@ -38,8 +38,8 @@ type Port interface {
 	Close() error
 }
 
-// Options configure one line instrument.
-type Options struct {
+// options configure one line instrument.
+type options struct {
 	Device     string
 	Mode       serial.Mode
 	Query      string // sent before each read; empty for a streaming instrument
@@ -53,14 +53,14 @@ type Options struct {
 // port belongs to this gauge alone.
 type Gauge struct {
 	name string
-	opts Options
+	opts options
 	conv drivers.Conversion
 	clk  clock.Clock
 	log  *slog.Logger
-	open func(device string, mode *serial.Mode) (Port, error)
+	open func(device string, mode *serial.Mode) (port, error)
 
 	mu      sync.Mutex
-	port    Port
+	port    port
 	nextTry time.Time
 	buf     []byte
 }
@@ -70,7 +70,7 @@ var _ drivers.Gauge = (*Gauge)(nil)
 // OpenGauge opens a line instrument from its configuration. The port is
 // opened on the first Read, and reopened after it vanished.
 func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, error) {
-	opts, err := options(inst)
+	opts, err := lineOptions(inst)
 	if err != nil {
 		return nil, err
 	}
@@ -78,11 +78,10 @@ func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, erro
 	if err != nil {
 		return nil, err
 	}
-	return New(inst.Name, opts, conv, env), nil
+	return newGauge(inst.Name, opts, conv, env), nil
 }
 
-// New makes a gauge from ready options (the simulator and tests use it).
-func New(name string, opts Options, conv drivers.Conversion, env drivers.OpenEnv) *Gauge {
+func newGauge(name string, opts options, conv drivers.Conversion, env drivers.OpenEnv) *Gauge {
 	if opts.Timeout <= 0 {
 		opts.Timeout = defaultTimeout
 	}
@@ -93,24 +92,24 @@ func New(name string, opts Options, conv drivers.Conversion, env drivers.OpenEnv
 		opts.Terminator = "\n"
 	}
 	return &Gauge{name: name, opts: opts, conv: conv, clk: env.Time(),
-		log: env.Log.With("instrument", name, "device", opts.Device),
-		open: func(d string, m *serial.Mode) (Port, error) { return serial.Open(d, m) }}
+		log:  env.Logger("instrument", name, "link", config.LinkSerial, "device", opts.Device),
+		open: func(d string, m *serial.Mode) (port, error) { return serial.Open(d, m) }}
 }
 
-func options(inst config.Instrument) (Options, error) {
+func lineOptions(inst config.Instrument) (options, error) {
 	l := inst.Link
 	if strings.TrimSpace(l.Address) == "" {
-		return Options{}, errors.New("link.address is empty: give the serial device, e.g. /dev/serial/by-id/…")
+		return options{}, errors.New("link.address is empty: give the serial device, e.g. /dev/serial/by-id/…")
 	}
 	parity := map[string]serial.Parity{"": serial.NoParity, "none": serial.NoParity, "even": serial.EvenParity, "odd": serial.OddParity}
 	p, ok := parity[strings.ToLower(l.Parity)]
 	if !ok {
-		return Options{}, fmt.Errorf("link.parity %q: want none, even or odd", l.Parity)
+		return options{}, fmt.Errorf("link.parity %q: want none, even or odd", l.Parity)
 	}
 	stop := map[int]serial.StopBits{0: serial.OneStopBit, 1: serial.OneStopBit, 2: serial.TwoStopBits}
 	sb, ok := stop[l.StopBits]
 	if !ok {
-		return Options{}, fmt.Errorf("link.stop_bits %d: want 1 or 2", l.StopBits)
+		return options{}, fmt.Errorf("link.stop_bits %d: want 1 or 2", l.StopBits)
 	}
 	baud, bits := l.Baud, l.DataBits
 	if baud == 0 {
@@ -120,27 +119,27 @@ func options(inst config.Instrument) (Options, error) {
 		bits = 8
 	}
 	if bits < 5 || bits > 8 {
-		return Options{}, fmt.Errorf("link.data_bits %d: want 5 … 8", bits)
+		return options{}, fmt.Errorf("link.data_bits %d: want 5 … 8", bits)
 	}
 	term := inst.Line.Terminator
 	if term == "" {
 		term = "\r\n"
 	}
 	if term != "\r\n" && term != "\n" && term != "\r" {
-		return Options{}, fmt.Errorf("line.terminator %q: want \"\\r\\n\", \"\\n\" or \"\\r\"", term)
+		return options{}, fmt.Errorf("line.terminator %q: want \"\\r\\n\", \"\\n\" or \"\\r\"", term)
 	}
 	var re *regexp.Regexp
 	if inst.Line.Reply != "" {
 		var err error
 		if re, err = regexp.Compile(inst.Line.Reply); err != nil {
-			return Options{}, fmt.Errorf("line.reply: %w", err)
+			return options{}, fmt.Errorf("line.reply: %w", err)
 		}
 	}
 	query := inst.Line.Query
 	if query != "" && !strings.HasSuffix(query, "\r") && !strings.HasSuffix(query, "\n") {
 		query += term // instruments expect the query ended like their replies
 	}
-	return Options{
+	return options{
 		Device: l.Address, Mode: serial.Mode{BaudRate: baud, DataBits: bits, Parity: p, StopBits: sb},
 		Query: query, Terminator: term, Timeout: l.Timeout, Backoff: l.Backoff,
 		Parser: Parser{Reply: re, Overload: inst.Line.Overload, Unit: inst.Unit},
@@ -159,12 +158,13 @@ func (g *Gauge) Read(ctx context.Context) (drivers.Reading, error) {
 	}
 	line, err := g.exchange(ctx)
 	if err != nil {
-		var pe *serial.PortError
 		if errors.Is(err, errTimeout) || errors.Is(err, context.DeadlineExceeded) {
 			return drivers.Reading{}, drivers.Fail(g.name, drivers.KindTimeout, err)
 		}
-		if errors.As(err, &pe) || !errors.Is(err, context.Canceled) {
-			g.drop(err) // unplugged adapter: reopen by name next time
+		if !errors.Is(err, context.Canceled) {
+			// An unplugged adapter reports PortClosed and stays dead: close
+			// it and reopen by name next time.
+			g.drop(err)
 		}
 		return drivers.Reading{}, drivers.Fail(g.name, drivers.KindLinkDown, err)
 	}
@@ -271,7 +271,6 @@ func (g *Gauge) readLine(ctx context.Context, deadline time.Time, partial bool) 
 func (g *Gauge) takeLine(term []byte, partial bool) (string, bool) {
 	i := bytes.LastIndex(g.buf, term)
 	if i < 0 {
-		// "\r\n" lines read with "\n" configured still end on '\n'.
 		return "", false
 	}
 	complete := string(g.buf[:i])

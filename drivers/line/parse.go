@@ -38,7 +38,7 @@ var defaultLine = regexp.MustCompile(`^\s*(?:[A-Za-z][A-Za-z0-9_.]*\s*[:=,]?\s+|
 var number = regexp.MustCompile(`^([+-]?\s*(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z%°²₂/][A-Za-z0-9%°²₂/]*)?$`)
 
 // defaultOverload holds the markers common practice uses when a config lists none.
-var defaultOverload = []string{"OL", "-OL", "+OL", "OVER", "UNDER", "OVERLOAD", "OVERRANGE", "UNDERRANGE"}
+var defaultOverload = []string{"OL", "OVER", "UNDER", "OVERLOAD", "OVERRANGE", "UNDERRANGE"}
 
 // Parse returns the number on line, in the instrument's unit.
 func (p Parser) Parse(line string) (float64, error) {
@@ -108,8 +108,9 @@ func (p Parser) overload(s string) bool {
 		if len(tok) >= 2 && strings.Trim(tok, "-") == "" {
 			return true
 		}
+		bare := strings.TrimLeft(tok, "+-") // "-OL": overload on the negative side
 		for _, w := range words {
-			if strings.EqualFold(tok, w) {
+			if strings.EqualFold(tok, w) || strings.EqualFold(bare, w) {
 				return true
 			}
 		}

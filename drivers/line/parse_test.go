@@ -32,6 +32,8 @@ func TestParse(t *testing.T) {
 		{"dashes", Parser{}, "-----", 0, ErrOverrange},
 		{"dashes with label", Parser{}, "P1: ---- bar", 0, ErrOverrange},
 		{"configured word", Parser{Overload: []string{"HIGH"}}, "high", 0, ErrOverrange},
+		{"signed configured word", Parser{Overload: []string{"OL", "----"}}, "+OL", 0, ErrOverrange},
+		{"word inside a label is no overload", Parser{Overload: []string{"OL"}}, "VOLT 1.5", 1.5, nil},
 		{"wrong unit", Parser{Unit: "bar"}, "14.5 psi", 0, ErrGarbled},
 		{"garbled digits", Parser{}, "1.2#3", 0, ErrGarbled},
 		{"two numbers", Parser{}, "1.0 2.0", 0, ErrGarbled},

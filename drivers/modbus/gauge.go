@@ -97,12 +97,12 @@ func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, erro
 	if err != nil {
 		return nil, err
 	}
-	l, release, err := acquireLink(opts, env.Logger(config.Instrument{Name: "", Link: inst.Link}))
+	l, release, err := acquireLink(opts, env.Logger("link", inst.Link.Kind))
 	if err != nil {
 		return nil, err
 	}
 	return &Gauge{name: inst.Name, unit: unit, val: val, conv: conv, link: l, release: release,
-		clk: env.Time(), log: env.Logger(inst)}, nil
+		clk: env.Time(), log: env.Logger("instrument", inst.Name, "link", inst.Link.Kind)}, nil
 }
 
 // Read fetches the registers, decodes them and converts to pascal. The raw

@@ -146,6 +146,7 @@ func (l *link) exchange(ctx context.Context, r request) error {
 		if err = l.client.SetUnitId(r.unit); err != nil {
 			return err
 		}
+		l.log.Debug("modbus request", "unit", r.unit, "request", r.what, "attempt", attempt+1)
 		err = r.do(l.client)
 		if err == nil {
 			return nil

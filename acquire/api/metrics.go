@@ -1,0 +1,102 @@
+package api
+
+import (
+	"context"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+	"github.com/prometheus/client_golang/prometheus/collectors"
+
+	"plateau/acquire/store"
+)
+
+// scrapeTimeout bounds the status call behind one scrape.
+const scrapeTimeout = 5 * time.Second
+
+// statusCollector turns the engine's status into metrics at scrape time.
+// The engine counts reads and failures once, for status and metrics alike,
+// and never calls into Prometheus itself.
+type statusCollector struct {
+	status func(context.Context) Status
+
+	reads, readErrors, lastValue, lastRead, up, settled *prometheus.Desc
+	points, progress, runState                          *prometheus.Desc
+}
+
+var runStates = []store.State{store.StatePending, store.StateRunning, store.StatePaused,
+	store.StateFinished, store.StateFailed, store.StateStopped}
+
+func newStatusCollector(status func(context.Context) Status) *statusCollector {
+	inst := []string{"instrument"}
+	return &statusCollector{
+		status:     status,
+		reads:      prometheus.NewDesc("plateau_instrument_reads_total", "Read attempts per instrument since the daemon started, good or failed.", inst, nil),
+		readErrors: prometheus.NewDesc("plateau_instrument_read_errors_total", "Failed reads per instrument and reason (timeout, link_down, bad_reply, out_of_range, overload).", []string{"instrument", "kind"}, nil),
+		lastValue:  prometheus.NewDesc("plateau_instrument_last_value_pascals", "The instrument's last good reading in pascal.", inst, nil),
+		lastRead:   prometheus.NewDesc("plateau_instrument_last_read_timestamp_seconds", "When the instrument's last good reading was taken (Unix time).", inst, nil),
+		up:         prometheus.NewDesc("plateau_instrument_up", "1 when the instrument's last read succeeded.", inst, nil),
+		settled:    prometheus.NewDesc("plateau_instrument_settled", "1 while the instrument's readings hold steady by the settle rule.", inst, nil),
+		points:     prometheus.NewDesc("plateau_points_captured_total", "Comparison points captured since the daemon started.", nil, nil),
+		progress:   prometheus.NewDesc("plateau_run_progress_ratio", "Share of the current run's planned points captured (0 when idle).", nil, nil),
+		runState:   prometheus.NewDesc("plateau_run_state", "1 for the current run's state, 0 for the others; all 0 when idle.", []string{"state"}, nil),
+	}
+}
+
+func (c *statusCollector) Describe(ch chan<- *prometheus.Desc) {
+	for _, d := range []*prometheus.Desc{c.reads, c.readErrors, c.lastValue, c.lastRead, c.up, c.settled, c.points, c.progress, c.runState} {
+		ch <- d
+	}
+}
+
+func (c *statusCollector) Collect(ch chan<- prometheus.Metric) {
+	ctx, cancel := context.WithTimeout(context.Background(), scrapeTimeout)
+	defer cancel()
+	st := c.status(ctx)
+	for _, in := range st.Instruments {
+		ch <- prometheus.MustNewConstMetric(c.reads, prometheus.CounterValue, float64(in.Reads), in.Name)
+		for kind, n := range in.Errors {
+			ch <- prometheus.MustNewConstMetric(c.readErrors, prometheus.CounterValue, float64(n), in.Name, kind)
+		}
+		if !in.LastAt.IsZero() {
+			ch <- prometheus.MustNewConstMetric(c.lastValue, prometheus.GaugeValue, in.LastPa, in.Name)
+			ch <- prometheus.MustNewConstMetric(c.lastRead, prometheus.GaugeValue, float64(in.LastAt.UnixNano())/1e9, in.Name)
+		}
+		ch <- prometheus.MustNewConstMetric(c.up, prometheus.GaugeValue, boolValue(in.Up), in.Name)
+		ch <- prometheus.MustNewConstMetric(c.settled, prometheus.GaugeValue, boolValue(in.Settled), in.Name)
+	}
+	ch <- prometheus.MustNewConstMetric(c.points, prometheus.CounterValue, float64(st.PointsCaptured))
+	ch <- prometheus.MustNewConstMetric(c.progress, prometheus.GaugeValue, st.Progress)
+	for _, s := range runStates {
+		ch <- prometheus.MustNewConstMetric(c.runState, prometheus.GaugeValue, boolValue(st.Run != nil && st.Run.State == s), string(s))
+	}
+}
+
+func boolValue(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// streamMetrics count what the event stream does.
+type streamMetrics struct {
+	viewers  prometheus.Gauge
+	sent     prometheus.Counter
+	catchUps prometheus.Counter
+}
+
+// registerMetrics fills reg with the status collector, the stream's own
+// metrics, build information and the Go runtime and process collectors.
+func registerMetrics(reg *prometheus.Registry, version string, status func(context.Context) Status) *streamMetrics {
+	m := &streamMetrics{
+		viewers:  prometheus.NewGauge(prometheus.GaugeOpts{Name: "plateau_stream_viewers", Help: "Event streams open now."}),
+		sent:     prometheus.NewCounter(prometheus.CounterOpts{Name: "plateau_stream_events_sent_total", Help: "Events written to stream viewers."}),
+		catchUps: prometheus.NewCounter(prometheus.CounterOpts{Name: "plateau_stream_catchups_total", Help: "Times a viewer fell behind the live feed and was filled in from the store."}),
+	}
+	build := prometheus.NewGauge(prometheus.GaugeOpts{Name: "plateau_build_info", Help: "Always 1; the version is a label.",
+		ConstLabels: prometheus.Labels{"version": version}})
+	build.Set(1)
+	reg.MustRegister(newStatusCollector(status), m.viewers, m.sent, m.catchUps, build,
+		collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
+	return m
+}

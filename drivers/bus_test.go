@@ -1,0 +1,134 @@
+package drivers
+
+import (
+	"context"
+	"errors"
+	"sync"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"plateau/config"
+)
+
+// Requests from many goroutines never overlap on the bus, and a pause
+// separates consecutive requests.
+func TestBusSerialisesAndPauses(t *testing.T) {
+	const pause = 5 * time.Millisecond
+	b := NewBus(pause)
+	defer b.Close()
+	var inside atomic.Int32
+	var mu sync.Mutex
+	var ends, starts []time.Time
+	var wg sync.WaitGroup
+	for range 8 {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			err := b.Do(context.Background(), func() error {
+				if inside.Add(1) != 1 {
+					t.Error("two requests on the bus at once")
+				}
+				mu.Lock()
+				starts = append(starts, time.Now())
+				mu.Unlock()
+				time.Sleep(time.Millisecond)
+				mu.Lock()
+				ends = append(ends, time.Now())
+				mu.Unlock()
+				inside.Add(-1)
+				return nil
+			})
+			if err != nil {
+				t.Error(err)
+			}
+		}()
+	}
+	wg.Wait()
+	for i := 1; i < len(starts); i++ {
+		if gap := starts[i].Sub(ends[i-1]); gap < pause {
+			t.Errorf("gap %d = %s, want ≥ %s", i, gap, pause)
+		}
+	}
+}
+
+func TestBusContextAndClose(t *testing.T) {
+	b := NewBus(0)
+	release := make(chan struct{})
+	go b.Do(context.Background(), func() error { <-release; return nil })
+	time.Sleep(5 * time.Millisecond)
+	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Millisecond)
+	defer cancel()
+	ran := false
+	if err := b.Do(ctx, func() error { ran = true; return nil }); !errors.Is(err, context.DeadlineExceeded) {
+		t.Errorf("queued request past its deadline: %v", err)
+	}
+	close(release)
+	b.Close()
+	if ran {
+		t.Error("a request that gave up still ran")
+	}
+	if err := b.Do(context.Background(), func() error { return nil }); !errors.Is(err, ErrBusClosed) {
+		t.Errorf("after Close: %v", err)
+	}
+}
+
+type closer struct{ closed *atomic.Int32 }
+
+func (c closer) Close() error { c.closed.Add(1); return nil }
+
+func TestSharedOnePerKey(t *testing.T) {
+	var s Shared[closer]
+	var made, closed atomic.Int32
+	mk := func() (closer, error) { made.Add(1); return closer{&closed}, nil }
+	_, r1, _ := s.Acquire("rtu:///dev/ttyUSB0", mk)
+	_, r2, _ := s.Acquire("rtu:///dev/ttyUSB0", mk)
+	_, r3, _ := s.Acquire("tcp://10.0.0.5:502", mk)
+	if made.Load() != 2 || s.Users("rtu:///dev/ttyUSB0") != 2 {
+		t.Fatalf("made %d, users %d", made.Load(), s.Users("rtu:///dev/ttyUSB0"))
+	}
+	r1()
+	r1() // a second release is harmless
+	if closed.Load() != 0 {
+		t.Fatal("closed while still in use")
+	}
+	r2()
+	r3()
+	if closed.Load() != 2 || s.Users("rtu:///dev/ttyUSB0") != 0 {
+		t.Fatalf("closed %d", closed.Load())
+	}
+	if _, _, err := s.Acquire("x", func() (closer, error) { return closer{}, errors.New("no port") }); err == nil {
+		t.Error("make error lost")
+	}
+}
+
+type nopGauge struct{}
+
+func (nopGauge) Read(context.Context) (Reading, error) { return Reading{}, nil }
+func (nopGauge) Close() error                          { return nil }
+
+func TestRegistry(t *testing.T) {
+	Register("test-only", Opener{Gauge: func(config.Instrument, OpenEnv) (Gauge, error) { return nopGauge{}, nil }})
+	defer func() {
+		regMu.Lock()
+		delete(registry, "test-only")
+		regMu.Unlock()
+	}()
+	in := config.Instrument{Name: "x", Link: config.Link{Kind: "test-only"}}
+	if _, err := OpenGauge(in, OpenEnv{}); err != nil {
+		t.Error(err)
+	}
+	if _, err := OpenSource(in, OpenEnv{}); err == nil {
+		t.Error("source opened through a gauge-only kind")
+	}
+	in.Link.Kind = "carrier-pigeon"
+	if _, err := OpenGauge(in, OpenEnv{}); err == nil {
+		t.Error("unknown kind opened")
+	}
+	defer func() {
+		if recover() == nil {
+			t.Error("duplicate registration did not panic")
+		}
+	}()
+	Register("test-only", Opener{Gauge: func(config.Instrument, OpenEnv) (Gauge, error) { return nopGauge{}, nil }})
+}

@@ -1,0 +1,79 @@
+package drivers
+
+import (
+	"errors"
+	"math"
+	"testing"
+
+	"plateau/config"
+)
+
+// REFERENCES.md §7: range 0–10 bar, 4/8/12/16/20 mA ↔ 0/2.5/5/7.5/10 bar,
+// and the inverse checks 3.8 mA → −0.125 bar, 20.5 mA → 10.3125 bar (NAMUR
+// NE 43 band limits, [C-sec]).
+func TestCurrentLoopScaling(t *testing.T) {
+	loop, err := NewCurrentLoop(config.CurrentLoop{Enabled: true, Lower: "0 bar", Upper: "10 bar"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	cases := []struct{ mA, bar float64 }{
+		{4, 0}, {8, 2.5}, {12, 5}, {16, 7.5}, {20, 10}, {3.8, -0.125}, {20.5, 10.3125},
+	}
+	for _, c := range cases {
+		pa, err := loop.Pa(c.mA)
+		if err != nil || math.Abs(pa-c.bar*1e5) > 1e-6 {
+			t.Errorf("%g mA → %g Pa, %v; want %g bar", c.mA, pa, err, c.bar)
+		}
+		if got := loop.MilliAmps(c.bar * 1e5); math.Abs(got-c.mA) > 1e-12 {
+			t.Errorf("%g bar → %g mA, want %g", c.bar, got, c.mA)
+		}
+	}
+}
+
+// Outside 3.8–20.5 mA the signal is a failure (≤ 3.6, ≥ 21) or undefined:
+// never a pressure.
+func TestCurrentLoopNamurFaults(t *testing.T) {
+	loop := CurrentLoop{LowerPa: 0, UpperPa: 1e6}
+	for _, mA := range []float64{0, 3.6, 3.79, 20.51, 21, 22, math.NaN(), math.Inf(1)} {
+		if _, err := loop.Pa(mA); !errors.Is(err, ErrLoopFault) {
+			t.Errorf("%g mA accepted: %v", mA, err)
+		}
+	}
+	c := Conversion{Loop: &loop}
+	if _, err := c.Finish("tx", Reading{Raw: 3.6}); !errors.Is(err, ErrOutOfRange) {
+		t.Errorf("Finish on a fault current: %v, want out of range", err)
+	}
+}
+
+func TestNewConversion(t *testing.T) {
+	cases := []struct {
+		name string
+		in   config.Instrument
+		ok   bool
+		unit string
+	}{
+		{"pressure", config.Instrument{Name: "a", Unit: "kPa"}, true, "kPa"},
+		{"loop", config.Instrument{Name: "b", Unit: "mA", Loop: config.CurrentLoop{Enabled: true, Lower: "-1 bar", Upper: "9 bar"}}, true, "mA"},
+		{"loop unit unset", config.Instrument{Name: "c", Loop: config.CurrentLoop{Enabled: true, Lower: "0 psi", Upper: "100 psi"}}, true, "mA"},
+		{"loop with bar unit", config.Instrument{Name: "d", Unit: "bar", Loop: config.CurrentLoop{Enabled: true, Lower: "0 bar", Upper: "1 bar"}}, false, ""},
+		{"loop empty range", config.Instrument{Name: "e", Unit: "mA", Loop: config.CurrentLoop{Enabled: true, Lower: "1 bar", Upper: "1 bar"}}, false, ""},
+		{"loop bad quantity", config.Instrument{Name: "f", Unit: "mA", Loop: config.CurrentLoop{Enabled: true, Lower: "0", Upper: "1 bar"}}, false, ""},
+		{"unknown unit", config.Instrument{Name: "g", Unit: "furlong"}, false, ""},
+	}
+	for _, c := range cases {
+		conv, err := NewConversion(c.in)
+		if (err == nil) != c.ok {
+			t.Errorf("%s: err = %v", c.name, err)
+			continue
+		}
+		if c.ok && conv.RawUnit() != c.unit {
+			t.Errorf("%s: raw unit %q", c.name, conv.RawUnit())
+		}
+	}
+	// A −1…9 bar compound loop at 4 mA reads −1 bar.
+	conv, _ := NewConversion(cases[1].in)
+	r, err := conv.Finish("b", Reading{Raw: 4})
+	if err != nil || r.Pa != -1e5 || r.RawUnit != "mA" {
+		t.Errorf("compound loop: %+v %v", r, err)
+	}
+}
