@@ -73,8 +73,6 @@ var (
 type StartRequest struct {
 	// Label names the run in lists and reports, e.g. "as-found PG-0421".
 	Label string `json:"label,omitempty"`
-	// Operator is who started it, for the record.
-	Operator string `json:"operator,omitempty"`
 }
 
 // StopRequest is the optional body of a stop call.
@@ -106,17 +104,11 @@ type Status struct {
 	Progress float64 `json:"progress"`
 	// PointsCaptured counts points captured since the daemon started.
 	PointsCaptured uint64 `json:"points_captured"`
-	// Prompt is set while the procedure waits for an operator reading.
-	Prompt      *Prompt          `json:"prompt,omitempty"`
+	// Unit is the unit the device under test indicates in, for display
+	// and as the default unit of an operator's reading.
+	Unit        string           `json:"unit,omitempty"`
 	Instruments []InstrumentInfo `json:"instruments"`
 	LastEventID uint64           `json:"last_event_id"`
-}
-
-// Prompt asks the operator for a dial reading.
-type Prompt struct {
-	NominalPa float64 `json:"nominal_pa"`
-	Unit      string  `json:"unit"` // the unit the dial is marked in
-	Message   string  `json:"message"`
 }
 
 // InstrumentInfo is one instrument's state. Reads and Errors count since

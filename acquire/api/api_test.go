@@ -61,7 +61,7 @@ func TestEveryCall(t *testing.T) {
 			if err != nil || st.Version != "test" || st.Run != nil || len(st.Instruments) != 1 {
 				t.Fatalf("status when idle = %+v, %v", st, err)
 			}
-			id, err := c.Start(ctx, StartRequest{Label: "as-found PG-0421", Operator: "A. Tech"})
+			id, err := c.Start(ctx, StartRequest{Label: "as-found PG-0421"})
 			if err != nil || id != "r000001" {
 				t.Fatalf("start = %q, %v", id, err)
 			}
@@ -258,7 +258,7 @@ func TestBadRequests(t *testing.T) {
 		{"number too big", "POST", "/api/v1/entry", "application/json", `{"value": 1e400, "unit": "bar"}`, 400, `field "value": 1e400 is out of range`},
 		{"plain text", "POST", "/api/v1/entry", "text/plain", `{"value": 1, "unit": "bar"}`, 415, "send application/json"},
 		{"label too long", "POST", "/api/v1/start", "application/json", `{"label": "` + strings.Repeat("é", 201) + `"}`, 400, `field "label": 201 characters, at most 200`},
-		{"control character", "POST", "/api/v1/start", "application/json", `{"operator": "a\u001b[31mb"}`, 400, `field "operator": control character at byte 1`},
+		{"control character", "POST", "/api/v1/start", "application/json", `{"label": "a\u001b[31mb"}`, 400, `field "label": control character at byte 1`},
 		{"stop reason wrong type", "POST", "/api/v1/stop", "application/json", `{"reason": 5}`, 400, `field "reason": expected a string, got number`},
 		{"pause with a body", "POST", "/api/v1/pause", "application/json", `{"now": true}`, 400, `unknown field "now"`},
 		{"wrong method", "GET", "/api/v1/start", "", ``, 405, "GET /api/v1/start: method not allowed; use POST"},

@@ -126,7 +126,7 @@ func (e invalidError) Is(target error) bool { return target == ErrInvalid }
 func invalid(format string, args ...any) error { return invalidError{fmt.Sprintf(format, args...)} }
 
 func (r StartRequest) validate() error {
-	return errors.Join(checkText("label", r.Label), checkText("operator", r.Operator))
+	return checkText("label", r.Label)
 }
 
 // entryBody tells a missing value from a reading of zero.

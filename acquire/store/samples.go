@@ -71,7 +71,7 @@ func (s *Store) Flush() error {
 type WriterStatus struct {
 	LastCommit time.Time // store clock time of the last successful batch commit
 	Committed  uint64    // samples and queued events committed since Open
-	Pending    int       // items waiting for a commit
+	Pending    int       // items of the batch that failed to commit (0 after a success)
 	Err        error     // the last commit error; nil once a commit succeeds again
 }
 
@@ -177,16 +177,13 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 		return nil
 	}
 	staged := map[streamKey]*stream{}
-	var events []*Event
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		clear(staged)
-		events = events[:0]
 		for _, j := range pending {
 			if j.event != nil {
 				if err := putEvent(tx, j.event); err != nil {
 					return err
 				}
-				events = append(events, j.event)
 				continue
 			}
 			k := streamKey{j.run, j.instrument}

@@ -8,7 +8,7 @@
 //	meta                     "format" → "1"
 //	runs                     <run id>  → bucket, one per run (ids from NextSequence)
 //	  "run"                  → JSON runRecord (label, config, state, times, cursor)
-//	  points                 <cycle u32><kind><direction><index u32> → JSON {seq, point}
+//	  points                 <cycle u32><len><kind><len><direction><index u32> → JSON {seq, stored, point}
 //	  samples                <instrument name> → bucket
 //	    <unix ns of first sample in the block> → block of samples (see block.go)
 //	events                   <event id> → JSON Event (ids from NextSequence)

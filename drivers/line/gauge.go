@@ -57,7 +57,6 @@ type Gauge struct {
 	conv drivers.Conversion
 	clk  clock.Clock
 	log  *slog.Logger
-	open func(device string, mode *serial.Mode) (port, error)
 
 	mu      sync.Mutex
 	port    port
@@ -88,12 +87,8 @@ func newGauge(name string, opts options, conv drivers.Conversion, env drivers.Op
 	if opts.Backoff <= 0 {
 		opts.Backoff = time.Second
 	}
-	if opts.Terminator == "" {
-		opts.Terminator = "\n"
-	}
 	return &Gauge{name: name, opts: opts, conv: conv, clk: env.Time(),
-		log:  env.Logger("instrument", name, "link", config.LinkSerial, "device", opts.Device),
-		open: func(d string, m *serial.Mode) (port, error) { return serial.Open(d, m) }}
+		log: env.Logger("instrument", name, "link", config.LinkSerial, "device", opts.Device)}
 }
 
 func lineOptions(inst config.Instrument) (options, error) {
@@ -187,7 +182,7 @@ func (g *Gauge) ensureOpen() error {
 	if now := time.Now(); now.Before(g.nextTry) {
 		return fmt.Errorf("port %s closed; next open attempt in %s", g.opts.Device, g.nextTry.Sub(now).Round(time.Millisecond))
 	}
-	p, err := g.open(g.opts.Device, &g.opts.Mode)
+	p, err := serial.Open(g.opts.Device, &g.opts.Mode)
 	if err != nil {
 		g.nextTry = time.Now().Add(g.opts.Backoff)
 		return fmt.Errorf("open %s: %w", g.opts.Device, err)

@@ -1,0 +1,76 @@
+package report
+
+import (
+	_ "embed"
+	"fmt"
+	"html/template"
+	"io"
+
+	"plateau/analysis"
+)
+
+//go:embed page.html.tmpl
+var pageSource string
+
+var page = template.Must(template.New("page").Parse(pageSource))
+
+// budgetLine is one contribution of a point's uncertainty budget, as printed.
+type budgetLine struct{ Name, Estimate, Distribution, Divisor, Standard string }
+
+// budgetBlock is one point's budget.
+type budgetBlock struct {
+	Index, Nominal, Combined, Expanded, K string
+	Lines                                 []budgetLine
+}
+
+func (n numbers) budgets(res analysis.Result) []budgetBlock {
+	out := make([]budgetBlock, len(res.Points))
+	for i, p := range res.Points {
+		b := budgetBlock{Index: itoa(p.Index + 1), Nominal: n.pu(p.NominalPa), Combined: n.pu(p.CombinedUncertaintyPa),
+			Expanded: n.pu(p.ExpandedUncertaintyPa), K: ftoa(res.CoverageFactor)}
+		for _, c := range p.Budget {
+			b.Lines = append(b.Lines, budgetLine{Name: contributionText(c.Name), Estimate: n.pu(c.EstimatePa),
+				Distribution: c.Distribution, Divisor: fmt.Sprintf("%.4g", c.Divisor), Standard: n.pu(c.StandardUncertaintyPa)})
+		}
+		out[i] = b
+	}
+	return out
+}
+
+// HTML writes one self-contained page (inline CSS and SVG, no script, no
+// external resource) for printing on A4 or Letter and for archiving.
+func HTML(w io.Writer, info Info, res analysis.Result) error {
+	n := newNumbers(info.unit(), res.Device.ResolutionPa)
+	ch, err := charts(n, res)
+	if err != nil {
+		return err
+	}
+	svgs := make([]template.HTML, len(ch))
+	for i, c := range ch {
+		svgs[i] = template.HTML(c.SVG) // produced by gonum/plot from numbers only, never from user text
+	}
+	data := struct {
+		Title     string
+		Unit      string
+		K         string
+		Identity  []identityLine
+		Rows      []pointRow
+		Summary   []summaryLine
+		Verdict   string
+		Outcome   analysis.Outcome
+		Rule      string
+		Warnings  []string
+		Budgets   []budgetBlock
+		Charts    []chart
+		ChartSVGs []template.HTML
+	}{
+		Title: joinNonEmpty(" — ", "Calibration report", info.Device.ID, info.Run.Label), Unit: n.u.Symbol,
+		K: ftoa(res.CoverageFactor), Identity: n.identity(info, res), Rows: n.rows(res), Summary: n.summary(res),
+		Verdict: outcomeText(res.Decision), Outcome: res.Decision, Rule: ruleText(res.DecisionRule),
+		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs,
+	}
+	if err := page.Execute(w, data); err != nil {
+		return fmt.Errorf("render HTML report: %w", err)
+	}
+	return nil
+}

@@ -1,0 +1,252 @@
+// Package report renders an analysis.Result for people and for other
+// programs: a terminal table (Text), the stable JSON schema (JSON), one row
+// per point for spreadsheets (CSV) and a self-contained printable page with
+// charts (HTML). Figures are shown in Info.Unit; JSON keeps pascal.
+package report
+
+import (
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+	"time"
+
+	"plateau/analysis"
+	"plateau/analysis/units"
+)
+
+// Info is what the Result does not know: who and what was calibrated, with
+// what, under which conditions, and how the figures are to be shown.
+type Info struct {
+	Device      DeviceIdentity    `json:"device"`
+	Reference   ReferenceIdentity `json:"reference"`
+	Run         RunIdentity       `json:"run"`
+	Conditions  []Condition       `json:"conditions"`
+	Procedure   Procedure         `json:"procedure"`
+	Unit        units.Unit        `json:"-"` // display unit; the zero Unit means pascal
+	GeneratedAt time.Time         `json:"generated_at,omitzero"`
+}
+
+// DeviceIdentity names the device under test.
+type DeviceIdentity struct {
+	ID           string `json:"id"`
+	Manufacturer string `json:"manufacturer"`
+	Model        string `json:"model"`
+	Serial       string `json:"serial"`
+}
+
+// ReferenceIdentity names the reference standard and its certificate.
+type ReferenceIdentity struct {
+	ID          string    `json:"id"`
+	Model       string    `json:"model"`
+	Serial      string    `json:"serial"`
+	Certificate string    `json:"certificate"`
+	Expires     time.Time `json:"expires,omitzero"`
+}
+
+// RunIdentity names the run: a label people read and an id machines match.
+type RunIdentity struct {
+	Label string `json:"label"`
+	ID    string `json:"id"`
+}
+
+// Condition is one stated condition of the calibration, e.g. medium = oil.
+type Condition struct {
+	Name  string `json:"name"`
+	Value string `json:"value"`
+}
+
+// Procedure is the plan the run followed. The decision rule is not here:
+// the one that was applied travels in the Result.
+type Procedure struct {
+	PointsPa []float64 `json:"points_pa"` // planned nominal pressures
+	Cycles   int       `json:"cycles"`    // planned measuring cycles
+	Method   string    `json:"method"`    // how the comparison was made, e.g. set-by-reference
+}
+
+// unit returns the display unit, pascal when none was given.
+func (i Info) unit() units.Unit {
+	if i.Unit.Pa == 0 {
+		return units.Pascal
+	}
+	return i.Unit
+}
+
+// numbers formats the figures of one report consistently.
+type numbers struct {
+	u        units.Unit
+	decimals int // for pressures in u
+}
+
+// newNumbers shows pressures one digit finer than the device's resolution,
+// so that a mean of several readings is not rounded back to a digit step.
+func newNumbers(u units.Unit, resolutionPa float64) numbers {
+	d := 3
+	if r := u.FromPa(resolutionPa); r > 0 && !math.IsInf(r, 0) {
+		d = int(math.Ceil(-math.Log10(r)-1e-9)) + 1
+	}
+	return numbers{u: u, decimals: min(max(d, 0), 9)}
+}
+
+// p formats a pressure given in Pa, without the unit.
+func (n numbers) p(pa float64) string {
+	v := n.u.FromPa(pa)
+	s := strconv.FormatFloat(v, 'f', n.decimals, 64)
+	if strings.Trim(s, "-0.") == "" {
+		s = strings.TrimPrefix(s, "-") // no "-0.000"
+	}
+	return s
+}
+
+// pu formats a pressure given in Pa, with the unit.
+func (n numbers) pu(pa float64) string { return n.p(pa) + " " + n.u.Symbol }
+
+func pct(v float64) string { return strconv.FormatFloat(v, 'f', 3, 64) + " %" }
+
+func tur(t *float64) string {
+	if t == nil {
+		return "—"
+	}
+	return strconv.FormatFloat(*t, 'f', 1, 64) + " : 1"
+}
+
+// accuracy describes the device's permissible-error specification.
+func (n numbers) accuracy(a analysis.Accuracy) string {
+	var parts []string
+	if a.EN837Class != 0 {
+		parts = append(parts, "class "+strconv.FormatFloat(a.EN837Class, 'g', -1, 64)+" (EN 837-1)")
+	}
+	if a.ASMEGrade != "" {
+		parts = append(parts, "grade "+a.ASMEGrade+" (ASME B40.100)")
+	}
+	if a.PercentOfSpan != 0 {
+		parts = append(parts, strconv.FormatFloat(a.PercentOfSpan, 'g', -1, 64)+" % of span")
+	}
+	if a.PercentOfReading != 0 {
+		parts = append(parts, strconv.FormatFloat(a.PercentOfReading, 'g', -1, 64)+" % of reading")
+	}
+	if a.FloorPa != 0 {
+		parts = append(parts, n.pu(a.FloorPa))
+	}
+	return strings.Join(parts, " + ")
+}
+
+// refUncertainty describes the reference certificate's expanded uncertainty.
+func (n numbers) refUncertainty(r analysis.Reference) string {
+	var parts []string
+	if r.PercentOfReading != 0 {
+		parts = append(parts, strconv.FormatFloat(r.PercentOfReading, 'g', -1, 64)+" % of reading")
+	}
+	if r.FloorPa != 0 {
+		parts = append(parts, n.pu(r.FloorPa))
+	}
+	return fmt.Sprintf("%s (k = %g)", strings.Join(parts, " + "), r.K)
+}
+
+// ruleText says which ILAC-G8:09/2019 decision rule was applied and what it means.
+func ruleText(r analysis.DecisionRule) string {
+	switch r {
+	case analysis.RuleSimple:
+		return "simple acceptance, guard band 0: pass when |error| ≤ MPE (ILAC-G8:09/2019 §4.2.1)"
+	case analysis.RuleGuarded:
+		return "binary with guard band w = U: pass when |error| ≤ MPE − U (ILAC-G8:09/2019 §4.2.2)"
+	case analysis.RuleFourState:
+		return "non-binary with guard band w = U: pass, conditional pass, conditional fail, fail (ILAC-G8:09/2019 §4.2.3)"
+	}
+	return string(r)
+}
+
+// outcomeText is the verdict as printed.
+func outcomeText(o analysis.Outcome) string {
+	switch o {
+	case analysis.Pass:
+		return "PASS"
+	case analysis.ConditionalPass:
+		return "CONDITIONAL PASS"
+	case analysis.ConditionalFail:
+		return "CONDITIONAL FAIL"
+	case analysis.Fail:
+		return "FAIL"
+	}
+	return strings.ToUpper(string(o))
+}
+
+// contributionText names a budget line in words.
+func contributionText(name string) string {
+	switch name {
+	case "reference":
+		return "reference standard (certificate)"
+	case "resolution":
+		return "resolution of the device"
+	case "zero_deviation":
+		return "zero deviation"
+	case "repeatability":
+		return "repeatability"
+	case "hysteresis":
+		return "hysteresis"
+	case "head_height":
+		return "head correction: height"
+	case "head_density":
+		return "head correction: fluid density"
+	}
+	return name
+}
+
+func dash(s string) string {
+	if strings.TrimSpace(s) == "" {
+		return "—"
+	}
+	return s
+}
+
+// joinNonEmpty joins the given strings that are not blank.
+func joinNonEmpty(sep string, ss ...string) string {
+	var out []string
+	for _, s := range ss {
+		if strings.TrimSpace(s) != "" {
+			out = append(out, s)
+		}
+	}
+	return strings.Join(out, sep)
+}
+
+func date(t time.Time) string {
+	if t.IsZero() {
+		return "—"
+	}
+	return t.Format("2006-01-02")
+}
+
+func stamp(t time.Time) string {
+	if t.IsZero() {
+		return "—"
+	}
+	return t.Format("2006-01-02 15:04:05 MST")
+}
+
+// plannedPoints lists the planned nominals, or the measured ones when no plan was given.
+func (n numbers) plannedPoints(info Info, res analysis.Result) string {
+	pts := info.Procedure.PointsPa
+	if len(pts) == 0 {
+		for _, p := range res.Points {
+			pts = append(pts, p.NominalPa)
+		}
+	}
+	s := make([]string, len(pts))
+	for i, p := range pts {
+		s[i] = strconv.FormatFloat(n.u.FromPa(p), 'g', 6, 64)
+	}
+	return strings.Join(s, ", ") + " " + n.u.Symbol
+}
+
+// cyclesText states the cycles measured, and the plan when it differs.
+func cyclesText(info Info, res analysis.Result) string {
+	s := strconv.Itoa(res.Cycles) + " measured"
+	if info.Procedure.Cycles != 0 && info.Procedure.Cycles != res.Cycles {
+		s += fmt.Sprintf(" (%d planned)", info.Procedure.Cycles)
+	}
+	return s
+}
+
+func itoa(i int) string     { return strconv.Itoa(i) }
+func ftoa(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }

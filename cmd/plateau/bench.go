@@ -1,0 +1,106 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"log/slog"
+	"os"
+
+	"plateau/acquire"
+	"plateau/acquire/clock"
+	"plateau/acquire/store"
+	"plateau/config"
+	_ "plateau/drivers/all"
+	"plateau/drivers/sim"
+)
+
+// bench is everything a run needs: the store, the engine on the configured
+// instruments and, when any instrument is simulated, the simulated rig
+// serving them over its real transports.
+type bench struct {
+	cfg    *config.Config
+	store  *store.Store
+	engine *acquire.Engine
+	rig    *sim.Rig
+	clock  clock.Clock
+}
+
+func usesSimulator(cfg *config.Config) bool {
+	for _, in := range cfg.Instruments {
+		if in.Link.Kind == config.LinkSim {
+			return true
+		}
+	}
+	return false
+}
+
+// openBench opens the store, starts the simulated rig if one is configured,
+// and opens every instrument. ctx bounds the rig's servers.
+func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*bench, error) {
+	b := &bench{cfg: cfg, clock: clock.Wall{}}
+	var resolve func(config.Instrument) (config.Instrument, error)
+	if usesSimulator(cfg) {
+		if cfg.Simulator.Speed != 1 {
+			b.clock = clock.NewScaled(cfg.Simulator.Speed)
+		}
+		rig, err := sim.New(cfg.Simulator, b.clock, sim.WithLogger(log.With("component", "simulator")))
+		if err != nil {
+			return nil, fmt.Errorf("simulator: %w", err)
+		}
+		if _, err := rig.Start(ctx); err != nil {
+			return nil, fmt.Errorf("start simulator: %w", err)
+		}
+		b.rig, resolve = rig, rig.Resolve
+	}
+	st, err := store.Open(cfg.Store.Path, store.Options{Clock: b.clock})
+	if err != nil {
+		b.close()
+		return nil, fmt.Errorf("open store: %w", err)
+	}
+	b.store = st
+	yaml, _ := os.ReadFile(cfg.File)
+	eng, err := acquire.New(acquire.Options{Config: cfg, ConfigYAML: yaml, Store: st, Clock: b.clock, Log: log, Resolve: resolve})
+	if err != nil {
+		b.close()
+		return nil, err
+	}
+	b.engine = eng
+	return b, nil
+}
+
+// close releases everything; the store is flushed last.
+func (b *bench) close() error {
+	var err error
+	if b.engine != nil {
+		b.engine.Close()
+	}
+	if b.rig != nil {
+		b.rig.Stop()
+	}
+	if b.store != nil {
+		err = b.store.Close()
+	}
+	return err
+}
+
+// hasSource says whether the configuration drives a pressure controller.
+func hasSource(cfg *config.Config) bool {
+	for _, in := range cfg.Instruments {
+		if in.Role == config.RoleSource {
+			return true
+		}
+	}
+	return false
+}
+
+// safetyNotice is shown by every command that drives a pressure source.
+const safetyNotice = `SAFETY — this command drives a pressure source.
+  • Compressed gas stores far more energy than liquid at the same pressure: keep
+    gas volumes small, wear eye protection, keep people clear of the test set-up.
+  • Never exceed the range of the device under test or of the reference;
+    plateau vents and aborts above safety.max_pressure, but fittings, hoses and
+    gauges must be rated for the test pressure.
+  • Oxygen-service gauges stay free of oil and grease: calibrate them only with
+    clean, oil-free, non-flammable gas, never on an oil-filled comparator.
+  • Vent the system and confirm zero pressure before disconnecting anything.
+  Local codes and your laboratory's own approved procedure take precedence.`

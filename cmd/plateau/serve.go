@@ -1,0 +1,400 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"net"
+	"os"
+	"os/signal"
+	"path/filepath"
+	"sync"
+	"sync/atomic"
+	"syscall"
+	"time"
+
+	"github.com/spf13/cobra"
+
+	"plateau/acquire"
+	"plateau/acquire/api"
+	"plateau/acquire/store"
+	"plateau/acquire/systemd"
+	"plateau/config"
+)
+
+func init() { register(newServeCmd) }
+
+// newReportRenderer, when set by the report command's file, renders a run's
+// report for the API; while it is nil the report call answers 501.
+var newReportRenderer func(*store.Store, *config.Config) api.RenderFunc
+
+// Shutdown budget; the unit's TimeoutStopSec (20 s) must exceed their sum.
+const (
+	engineStopTimeout = 10 * time.Second
+	apiStopTimeout    = 3 * time.Second
+	statusEvery       = 10 * time.Second
+)
+
+func newServeCmd() *cobra.Command {
+	return &cobra.Command{
+		Use:   "serve",
+		Short: "Run the daemon: poll the instruments, run calibrations, serve the API",
+		Long: `serve loads the configuration, opens the store, resumes an unfinished run and
+serves the HTTP API on the unix socket (listen.socket, mode 0660) and, when
+set, on listen.tcp. Under systemd it reports READY, STATUS and feeds the
+watchdog while polling and storing make progress. SIGTERM or Ctrl-C stops
+polling, flushes the store and leaves a run in progress resumable: the next
+serve carries it on.`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			cfg, err := config.Load(configPath)
+			if err != nil {
+				return err
+			}
+			log, err := newLogger(os.Stderr, stderrSetup(cfg.Log.Level, cfg.Log.Format))
+			if err != nil {
+				return err
+			}
+			ctx, stop := signal.NotifyContext(cmd.Context(), os.Interrupt, syscall.SIGTERM)
+			defer stop()
+			return serve(ctx, cfg, log)
+		},
+	}
+}
+
+// serve runs the daemon until ctx ends, then shuts down in order: the
+// engine first (polling stops, the run is left resumable and the last
+// events reach live viewers), then the API, then the store is flushed and
+// closed.
+func serve(ctx context.Context, cfg *config.Config, log *slog.Logger) (err error) {
+	token := ""
+	if cfg.Listen.TokenFile != "" {
+		if token, err = api.LoadToken(cfg.Listen.TokenFile); err != nil {
+			return err
+		}
+	}
+	// The simulated rig, when configured, lives as long as the daemon.
+	rigCtx, stopRig := context.WithCancel(context.WithoutCancel(ctx))
+	defer stopRig()
+	b, err := openBench(rigCtx, cfg, log)
+	if err != nil {
+		return err
+	}
+	defer func() {
+		if cerr := b.close(); cerr != nil {
+			err = errors.Join(err, fmt.Errorf("close: %w", cerr))
+		} else {
+			log.Info("store flushed and closed", "path", cfg.Store.Path)
+		}
+	}()
+
+	ctl := &engineControl{eng: b.engine, st: b.store, cfg: cfg, since: time.Now()}
+	var render api.RenderFunc
+	if newReportRenderer != nil {
+		render = newReportRenderer(b.store, cfg)
+	}
+	srv, err := api.New(api.Options{
+		Control: ctl, Records: b.store, Feed: busFeed{b.engine.Bus()}, Render: render,
+		Token: token, Version: version, Logger: log.With("component", "api"),
+		Ready: func() error { return b.store.WriterStatus().Err },
+	})
+	if err != nil {
+		return err
+	}
+	listeners, err := listen(cfg.Listen, token)
+	if err != nil {
+		return err
+	}
+
+	engCtx, stopEngine := context.WithCancel(context.WithoutCancel(ctx))
+	defer stopEngine()
+	var wg sync.WaitGroup
+	engineDone := make(chan struct{})
+	go func() {
+		defer close(engineDone)
+		if err := b.engine.Serve(engCtx); err != nil {
+			log.Error("engine stopped", "err", err)
+		}
+	}()
+	wg.Add(1)
+	go func() { defer wg.Done(); ctl.countPoints(engCtx) }()
+
+	failed := make(chan error, len(listeners))
+	for _, l := range listeners {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			if err := srv.Serve(l.l, l.access); err != nil {
+				failed <- err
+			}
+		}()
+		log.Info("serving the API", "address", l.l.Addr().String(), "access", l.access.String())
+	}
+
+	where := listeners[0].l.Addr().String()
+	systemd.Ready("serving on " + where)
+	wg.Add(2)
+	go func() { defer wg.Done(); ctl.reportStatus(engCtx, log) }()
+	go func() {
+		defer wg.Done()
+		wd := systemd.Watchdog{Probes: ctl.probes(), Log: log.With("component", "watchdog")}
+		if err := wd.Run(engCtx); err != nil {
+			log.Warn("watchdog not running", "err", err)
+		}
+	}()
+
+	var serveErr error
+	select {
+	case <-ctx.Done():
+		log.Info("stopping", "reason", context.Cause(ctx))
+	case serveErr = <-failed:
+		log.Error("API listener failed; stopping", "err", serveErr)
+	}
+	run := ctl.currentRun()
+	msg := "stopping"
+	if run != "" {
+		msg = "stopping; run " + run + " stays resumable"
+	}
+	systemd.Stopping(msg)
+	stopEngine()
+	select {
+	case <-engineDone:
+	case <-time.After(engineStopTimeout):
+		log.Error("engine did not stop in time; closing the store anyway", "timeout_seconds", engineStopTimeout.Seconds())
+	}
+	shutCtx, cancel := context.WithTimeout(context.Background(), apiStopTimeout)
+	defer cancel()
+	if err := srv.Shutdown(shutCtx); err != nil {
+		log.Warn("API shutdown", "err", err)
+	}
+	wg.Wait()
+	if run != "" {
+		log.Info("run left resumable; the next start carries it on", "run", run)
+	}
+	return serveErr
+}
+
+type listener struct {
+	l      net.Listener
+	access api.Access
+}
+
+// listen opens the unix socket and, when configured, the TCP address.
+func listen(cfg config.Listen, token string) ([]listener, error) {
+	var out []listener
+	closeAll := func() {
+		for _, l := range out {
+			l.l.Close()
+		}
+	}
+	if cfg.Socket != "" {
+		// Outside systemd the runtime directory may not exist yet.
+		if err := os.MkdirAll(filepath.Dir(cfg.Socket), 0o750); err != nil {
+			return nil, fmt.Errorf("listen.socket: %w", err)
+		}
+		l, err := api.ListenUnix(cfg.Socket)
+		if err != nil {
+			return nil, fmt.Errorf("listen.socket: %w", err)
+		}
+		out = append(out, listener{l, api.Local})
+	}
+	if cfg.TCP != "" {
+		l, access, err := api.ListenTCP(cfg.TCP, cfg.AllowRemote, token)
+		if err != nil {
+			closeAll()
+			return nil, fmt.Errorf("listen.tcp: %w", err)
+		}
+		out = append(out, listener{l, access})
+	}
+	if len(out) == 0 {
+		return nil, errors.New("listen: give listen.socket or listen.tcp")
+	}
+	return out, nil
+}
+
+// busFeed adapts the engine's event bus to the API's Feed.
+type busFeed struct{ bus *acquire.Bus }
+
+func (f busFeed) Subscribe(buffer int) (<-chan store.Event, func()) {
+	s := f.bus.Subscribe(buffer)
+	return s.C, s.Close
+}
+
+// engineControl adapts the engine to the API's Control.
+type engineControl struct {
+	eng    *acquire.Engine
+	st     *store.Store
+	cfg    *config.Config
+	since  time.Time
+	points atomic.Uint64 // points captured since the daemon started
+}
+
+func (c *engineControl) currentRun() string { return c.eng.Status().Run }
+
+func (c *engineControl) Status(context.Context) api.Status {
+	es := c.eng.Status()
+	out := api.Status{Version: version, Since: c.since, PointsCaptured: c.points.Load(), Unit: c.cfg.Device.Unit}
+	if es.TotalPoints > 0 {
+		out.Progress = float64(es.Points) / float64(es.TotalPoints)
+	}
+	if es.Run != "" {
+		if id, err := store.ParseRunID(es.Run); err == nil {
+			if r, err := c.st.Run(id); err == nil {
+				info := api.Info(r)
+				out.Run = &info
+			}
+		}
+		out.Step = fmt.Sprintf("step %d of %d, %d of %d points", es.Step+1, es.Steps, es.Points, es.TotalPoints)
+		if es.Steps == 0 { // free mode: no plan
+			out.Step = fmt.Sprintf("%d points captured", es.Points)
+		}
+		if es.Phase != "" {
+			out.Step += ": " + es.Phase
+		}
+	}
+	roles := map[string]string{}
+	for _, in := range c.cfg.Instruments {
+		roles[in.Name] = in.Role
+	}
+	for _, p := range es.Instruments {
+		out.Instruments = append(out.Instruments, api.InstrumentInfo{
+			Name: p.Name, Role: roles[p.Name], Up: p.Reads > 0 && p.LastErr == "",
+			Reads: p.Reads, Errors: p.Failures, LastPa: p.Last.Pa, LastAt: p.Last.Time,
+			Settled: p.Settled, LastError: p.LastErr,
+		})
+	}
+	return out
+}
+
+func (c *engineControl) Start(_ context.Context, req api.StartRequest) (store.RunID, error) {
+	id, err := c.eng.Start(req.Label)
+	if err != nil {
+		// Start refuses for reasons of state (a run is active, the
+		// reference's calibration has expired); its messages say which.
+		return 0, fmt.Errorf("%w: %v", api.ErrConflict, err)
+	}
+	return id, nil
+}
+
+func (c *engineControl) Stop(_ context.Context, reason string) error {
+	return refusal(c.eng.Stop(reason))
+}
+
+func (c *engineControl) Pause(context.Context) error  { return refusal(c.eng.Pause()) }
+func (c *engineControl) Resume(context.Context) error { return refusal(c.eng.Resume()) }
+
+func (c *engineControl) Enter(_ context.Context, e api.Entry) error {
+	if err := c.eng.Enter(e.Value, e.Unit); err != nil {
+		// The API has checked the value and unit; what is left is that
+		// this bench takes no operator readings.
+		return fmt.Errorf("%w: %v", api.ErrConflict, err)
+	}
+	return nil
+}
+
+// refusal marks "no run is active" as a conflict, not a failure.
+func refusal(err error) error {
+	if errors.Is(err, acquire.ErrNoRun) {
+		return fmt.Errorf("%w: %v", api.ErrConflict, err)
+	}
+	return err
+}
+
+// countPoints counts captured points from the event bus for the
+// points_captured metric. The bus drops a subscriber that falls behind;
+// this one only counts, so it subscribes again.
+func (c *engineControl) countPoints(ctx context.Context) {
+	for ctx.Err() == nil {
+		sub := c.eng.Bus().Subscribe(1024)
+		for open := true; open; {
+			select {
+			case <-ctx.Done():
+				sub.Close()
+				return
+			case ev, ok := <-sub.C:
+				open = ok
+				if ok && ev.Type == "point" {
+					c.points.Add(1)
+				}
+			}
+		}
+	}
+}
+
+// reportStatus keeps the line `systemctl status plateau` shows current.
+func (c *engineControl) reportStatus(ctx context.Context, log *slog.Logger) {
+	last := ""
+	for {
+		st := c.Status(ctx)
+		line := "idle"
+		if st.Run != nil {
+			line = fmt.Sprintf("run %s %s, %s", st.Run.ID, st.Run.State, st.Step)
+		}
+		for _, in := range st.Instruments {
+			if !in.Up {
+				line += "; " + in.Name + " not answering"
+			}
+		}
+		if line != last {
+			if err := systemd.Status(line); err != nil {
+				log.Debug("status not sent", "err", err)
+			}
+			last = line
+		}
+		select {
+		case <-ctx.Done():
+			return
+		case <-time.After(statusEvery):
+		}
+	}
+}
+
+// probes are what the watchdog checks: each polled instrument's loop (an
+// unplugged instrument still iterates; a wedged loop does not) and the
+// store writer (idle, or committing its queue).
+func (c *engineControl) probes() []systemd.Probe {
+	var out []systemd.Probe
+	for _, in := range c.cfg.Instruments {
+		if !polled(c.cfg, in) {
+			continue
+		}
+		name := in.Name
+		out = append(out, systemd.Probe{Name: "poll loop of " + name, Last: func() time.Time {
+			for _, p := range c.eng.Status().Instruments {
+				if p.Name == name {
+					if p.Beat.IsZero() {
+						return c.since // not polled yet: judge from the start
+					}
+					return p.Beat
+				}
+			}
+			return time.Time{}
+		}})
+	}
+	// While a run is active samples flow and the writer commits every
+	// flush interval; when idle it has nothing to do unless it failed.
+	out = append(out, systemd.Probe{Name: "store writer", Last: func() time.Time {
+		ws := c.st.WriterStatus()
+		if ws.Err == nil && c.currentRun() == "" {
+			return time.Now()
+		}
+		if ws.LastCommit.Before(c.since) {
+			return c.since // no commit yet since start
+		}
+		return ws.LastCommit
+	}})
+	return out
+}
+
+// polled says whether the engine polls an instrument continuously: sources
+// are driven, not polled, and a dial under test is read once per point.
+func polled(cfg *config.Config, in config.Instrument) bool {
+	switch {
+	case in.Role == config.RoleSource:
+		return false
+	case in.Role == config.RoleDevice && (cfg.Device.Kind == "dial" || in.Link.Kind == config.LinkManual):
+		return false
+	}
+	return true
+}

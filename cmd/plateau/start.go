@@ -1,0 +1,43 @@
+package main
+
+import (
+	"fmt"
+
+	"github.com/spf13/cobra"
+
+	"plateau/acquire/api"
+	"plateau/config"
+)
+
+func init() { register(newStartCmd) }
+
+func newStartCmd() *cobra.Command {
+	var label string
+	cmd := &cobra.Command{
+		Use:   "start",
+		Short: "Ask the daemon to start a calibration run",
+		Long: `start asks the running daemon ('plateau serve') to begin a new run of the
+configured procedure and prints its id. Follow it with 'plateau tail'.`,
+		Args: cobra.NoArgs,
+	}
+	df := addDaemonFlags(cmd)
+	cmd.Flags().StringVar(&label, "label", "", `a label for the run, e.g. "as-found PG-0421" or the work order`)
+	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
+		c, err := df.client(cmd)
+		if err != nil {
+			return err
+		}
+		// The daemon's configuration may not be readable here; when it is
+		// and it names no pressure source, the cautions are not needed.
+		if cfg, err := config.Load(configPath); err != nil || hasSource(cfg) {
+			fmt.Fprintln(cmd.ErrOrStderr(), safetyNotice)
+		}
+		id, err := c.Start(cmd.Context(), api.StartRequest{Label: label})
+		if err != nil {
+			return err
+		}
+		fmt.Fprintf(cmd.OutOrStdout(), "run %s started; follow it with: plateau tail --run %s\n", id, id)
+		return nil
+	}
+	return cmd
+}

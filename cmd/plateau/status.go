@@ -1,0 +1,187 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"sort"
+	"strings"
+	"text/tabwriter"
+	"time"
+
+	"github.com/spf13/cobra"
+
+	"plateau/acquire/api"
+	"plateau/analysis/units"
+	"plateau/config"
+)
+
+func init() { register(newStatusCmd) }
+
+// defaultSocket is where the daemon listens under systemd.
+const defaultSocket = "/run/plateau/plateau.sock"
+
+// daemonFlags are the flags of every command that calls the daemon.
+type daemonFlags struct {
+	socket, url, tokenFile string
+}
+
+func addDaemonFlags(cmd *cobra.Command) *daemonFlags {
+	f := &daemonFlags{}
+	fl := cmd.Flags()
+	fl.StringVar(&f.socket, "socket", "", "the daemon's unix socket (default: listen.socket from the config, else "+defaultSocket+"; env PLATEAU_SOCKET)")
+	fl.StringVar(&f.url, "url", "", "call the daemon over TCP instead, e.g. http://127.0.0.1:8417 (env PLATEAU_URL)")
+	fl.StringVar(&f.tokenFile, "token-file", "", "file holding the bearer token for TCP calls (default: listen.token_file; env PLATEAU_TOKEN holds the token itself)")
+	return f
+}
+
+// client finds the daemon: flags first, then the environment, then the
+// configuration file's listen section, then the systemd default socket.
+// A config file that was named explicitly must load; the default one may
+// be absent or unreadable (a user following a run need not read it).
+func (f *daemonFlags) client(cmd *cobra.Command) (*api.Client, error) {
+	socket := firstNonEmpty(f.socket, os.Getenv("PLATEAU_SOCKET"))
+	url := firstNonEmpty(f.url, os.Getenv("PLATEAU_URL"))
+	tokenFile := f.tokenFile
+	var listen config.Listen
+	if cfg, err := config.Load(configPath); err == nil {
+		listen = cfg.Listen
+	} else if cmd.Flags().Changed("config") {
+		return nil, err
+	}
+	token := os.Getenv("PLATEAU_TOKEN")
+	if tokenFile == "" && token == "" {
+		tokenFile = listen.TokenFile
+	}
+	if tokenFile != "" {
+		t, err := api.LoadToken(tokenFile)
+		if err != nil {
+			return nil, err
+		}
+		token = t
+	}
+	switch {
+	case url != "":
+		return api.NewTCPClient(url, token)
+	case socket != "":
+		return api.NewUnixClient(socket, ""), nil
+	case listen.Socket != "":
+		return api.NewUnixClient(listen.Socket, ""), nil
+	case listen.TCP != "":
+		return api.NewTCPClient("http://"+listen.TCP, token)
+	}
+	return api.NewUnixClient(defaultSocket, ""), nil
+}
+
+func firstNonEmpty(s ...string) string {
+	for _, v := range s {
+		if v != "" {
+			return v
+		}
+	}
+	return ""
+}
+
+func newStatusCmd() *cobra.Command {
+	var asJSON bool
+	cmd := &cobra.Command{
+		Use:   "status",
+		Short: "Show the daemon, the current run and every instrument",
+		Args:  cobra.NoArgs,
+	}
+	df := addDaemonFlags(cmd)
+	cmd.Flags().BoolVar(&asJSON, "json", false, "print the status as JSON")
+	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
+		c, err := df.client(cmd)
+		if err != nil {
+			return err
+		}
+		st, err := c.Status(cmd.Context())
+		if err != nil {
+			return err
+		}
+		if asJSON {
+			return printJSON(cmd.OutOrStdout(), st)
+		}
+		printStatus(cmd.OutOrStdout(), st, time.Now())
+		return nil
+	}
+	return cmd
+}
+
+func printJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
+}
+
+func printStatus(w io.Writer, st api.Status, now time.Time) {
+	show := displayUnit(st.Unit)
+	fmt.Fprintf(w, "daemon    plateau %s, up %s\n", st.Version, now.Sub(st.Since).Round(time.Second))
+	if st.Run == nil {
+		fmt.Fprintln(w, "run       none (idle)")
+	} else {
+		r := st.Run
+		label := ""
+		if r.Label != "" {
+			label = fmt.Sprintf(" %q", r.Label)
+		}
+		fmt.Fprintf(w, "run       %s%s %s since %s\n", r.ID, label, r.State, r.Created.Local().Format("2006-01-02 15:04"))
+		if st.Step != "" {
+			fmt.Fprintf(w, "step      %s\n", st.Step)
+		}
+		fmt.Fprintf(w, "progress  %.0f %%\n", 100*st.Progress)
+	}
+	fmt.Fprintf(w, "points    %d captured since the daemon started; last event %d\n", st.PointsCaptured, st.LastEventID)
+	if len(st.Instruments) == 0 {
+		return
+	}
+	fmt.Fprintln(w)
+	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "INSTRUMENT\tROLE\tSTATE\tLAST READING\tSETTLED\tREADS\tFAILED")
+	for _, in := range st.Instruments {
+		state := "up"
+		if !in.Up {
+			state = "DOWN"
+		}
+		last := "—"
+		if !in.LastAt.IsZero() {
+			last = fmt.Sprintf("%.6g %s (%s ago)", show.FromPa(in.LastPa), show.Symbol, now.Sub(in.LastAt).Round(time.Second))
+		}
+		settled := "no"
+		if in.Settled {
+			settled = "yes"
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%d\t%s\n", in.Name, in.Role, state, last, settled, in.Reads, failures(in.Errors))
+		if in.LastError != "" {
+			fmt.Fprintf(tw, "\t\t\t└ %s\t\t\t\n", in.LastError)
+		}
+	}
+	tw.Flush()
+}
+
+// displayUnit is the device's unit, or kPa when it has none or is unknown.
+func displayUnit(symbol string) units.Unit {
+	if u, err := units.Lookup(symbol); err == nil {
+		return u
+	}
+	u, _ := units.Lookup("kPa")
+	return u
+}
+
+func failures(m map[string]uint64) string {
+	if len(m) == 0 {
+		return "0"
+	}
+	kinds := make([]string, 0, len(m))
+	for k := range m {
+		kinds = append(kinds, k)
+	}
+	sort.Strings(kinds)
+	parts := make([]string, len(kinds))
+	for i, k := range kinds {
+		parts[i] = fmt.Sprintf("%s %d", k, m[k])
+	}
+	return strings.Join(parts, ", ")
+}
