@@ -143,6 +143,7 @@ func errorChart(n numbers, res analysis.Result) (*chart, error) {
 	}
 	dots.Color, dots.Shape = inkMean, draw.CircleGlyph{}
 	p.Add(bars, dots)
+	p.Legend.Left = true // errors usually grow with pressure: the top left stays clear
 	p.Legend.Add(fmt.Sprintf("mean ± U (k = %s)", ftoa(res.CoverageFactor)), dots)
 
 	s, err := svg(p)

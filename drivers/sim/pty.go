@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/creack/pty"
+	"golang.org/x/sys/unix"
 	"golang.org/x/term"
 )
 
@@ -35,7 +36,28 @@ func openPTY() (*ptyPort, error) {
 		slave.Close()
 		return nil, fmt.Errorf("raw mode on %s: %w", slave.Name(), err)
 	}
-	return &ptyPort{Path: slave.Name(), master: master, slave: slave}, nil
+	pollable, err := pollable(master)
+	if err != nil {
+		slave.Close()
+		return nil, fmt.Errorf("pseudo-terminal %s: %w", slave.Name(), err)
+	}
+	return &ptyPort{Path: slave.Name(), master: pollable, slave: slave}, nil
+}
+
+// pollable returns a copy of f that read deadlines work on, and closes f.
+// pty.Open asks for the master's descriptor, which puts it in blocking mode
+// for good; a non-blocking duplicate goes back to the runtime's poller.
+func pollable(f *os.File) (*os.File, error) {
+	defer f.Close()
+	fd, err := unix.Dup(int(f.Fd()))
+	if err != nil {
+		return nil, fmt.Errorf("dup: %w", err)
+	}
+	if err := unix.SetNonblock(fd, true); err != nil {
+		unix.Close(fd)
+		return nil, fmt.Errorf("non-blocking: %w", err)
+	}
+	return os.NewFile(uintptr(fd), f.Name()), nil
 }
 
 func (p *ptyPort) Close() error {

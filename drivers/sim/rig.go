@@ -151,19 +151,20 @@ func (r *Rig) Start(ctx context.Context) (Endpoints, error) {
 		*path = port.Path
 	}
 	rtu := &rtuResponder{unit: r.unit, h: r.bank}
-	r.run(ctx, func(ctx context.Context) error { return r.serveRTU(ctx, r.ports[0], rtu) })
+	rtuPort, refPort, devPort := r.ports[0], r.ports[1], r.ports[2]
+	r.run(ctx, func(ctx context.Context) error { return r.serveRTU(ctx, rtuPort, rtu) })
 	r.run(ctx, func(ctx context.Context) error {
-		return r.serveLines(ctx, r.ports[1], "reference", func(s Sample) (float64, string, bool) {
+		return r.serveLines(ctx, refPort, "reference", func(s Sample) (float64, string, bool) {
 			return s.Reference, r.p.refUnit.Symbol, false
 		}, r.p.refUnit.FromPa(r.p.refRes))
 	})
 	r.run(ctx, func(ctx context.Context) error {
 		if r.p.kind == KindTransmitter {
-			return r.serveLines(ctx, r.ports[2], "device", func(s Sample) (float64, string, bool) {
+			return r.serveLines(ctx, devPort, "device", func(s Sample) (float64, string, bool) {
 				return s.Current, "mA", false
 			}, 0.001)
 		}
-		return r.serveLines(ctx, r.ports[2], "device", func(s Sample) (float64, string, bool) {
+		return r.serveLines(ctx, devPort, "device", func(s Sample) (float64, string, bool) {
 			return s.Device, r.p.devUnit.Symbol, s.Over
 		}, r.p.devUnit.FromPa(r.p.devRes))
 	})

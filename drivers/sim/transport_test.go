@@ -92,7 +92,11 @@ func TestTCPServesTheModel(t *testing.T) {
 				continue
 			}
 			got := readValue(t, c, table, uint16(reg.Addr), reg.Type, reg.Order) * scaleOf(reg)
-			if w := reg.value(want); !near32(got, w) {
+			w := reg.value(want)
+			if reg.Scale != 0 && math.Abs(got-w) <= reg.Scale/2 { // an integer register holds whole counts
+				continue
+			}
+			if !near32(got, w) {
 				t.Errorf("%s (table %v, %d %s/%s) = %v, want %v", reg.Name, table, reg.Addr, reg.Type, reg.Order, got, w)
 			}
 		}
