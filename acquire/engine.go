@@ -57,6 +57,7 @@ type Engine struct {
 	// once per point instead of being polled.
 	dial     drivers.Gauge
 	serveCtx context.Context
+	ready    chan struct{} // closed once Serve has resumed any unfinished run
 	closers  []func() error
 
 	mu      sync.Mutex
@@ -98,7 +99,8 @@ func New(opt Options) (*Engine, error) {
 		opt.Log = slog.New(slog.DiscardHandler)
 	}
 	cfg := opt.Config
-	e := &Engine{cfg: cfg, yaml: opt.ConfigYAML, st: opt.Store, clk: opt.Clock, log: opt.Log, obs: opt.Observer, bus: NewBus()}
+	e := &Engine{cfg: cfg, yaml: opt.ConfigYAML, st: opt.Store, clk: opt.Clock, log: opt.Log, obs: opt.Observer, bus: NewBus(),
+		ready: make(chan struct{})}
 	if cfg.Procedure.Mode == "plan" {
 		e.steps = Plan(cfg.Procedure, cfg.Device.LowerPa)
 	}
@@ -223,6 +225,7 @@ func (e *Engine) Serve(ctx context.Context) error {
 	if err := e.resumeUnfinished(ctx); err != nil {
 		e.emit(0, slog.LevelError, "resume", "", fmt.Sprintf("could not resume the unfinished run: %v", err), nil)
 	}
+	close(e.ready)
 	<-ctx.Done()
 	e.mu.Lock()
 	r := e.run
@@ -355,11 +358,13 @@ var (
 
 // Start creates a run and starts its runner.
 func (e *Engine) Start(label string) (store.RunID, error) {
-	e.mu.Lock()
-	defer e.mu.Unlock()
-	if e.serveCtx == nil {
+	select {
+	case <-e.ready:
+	default:
 		return 0, errors.New("start: the engine is not serving yet")
 	}
+	e.mu.Lock()
+	defer e.mu.Unlock()
 	if e.run != nil {
 		return 0, fmt.Errorf("start: %w (%s)", ErrBusy, e.run.id)
 	}

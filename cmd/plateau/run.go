@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"log/slog"
@@ -94,12 +95,11 @@ func runOnce(ctx context.Context, cfg *config.Config, label string, progress io.
 func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (store.RunID, error) {
 	deadline := time.Now().Add(2 * time.Second)
 	for time.Now().Before(deadline) {
-		if st := eng.Status(); st.Run != "" {
-			return store.ParseRunID(st.Run)
-		}
-		if _, err := eng.Start(label); err == nil {
-			st := eng.Status()
-			return store.ParseRunID(st.Run)
+		if id, err := eng.Start(label); err == nil {
+			return id, nil
+		} else if errors.Is(err, acquire.ErrBusy) {
+			// Serve resumed an unfinished run: follow that one.
+			return store.ParseRunID(eng.Status().Run)
 		}
 		select {
 		case <-ctx.Done():

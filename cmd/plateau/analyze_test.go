@@ -1,0 +1,130 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// deadweight is an invented dead-weight tester run (see the file's header).
+const deadweight = "../../testdata/recorded/deadweight.csv"
+
+// runPlateau runs the root command with args and returns stdout and the error.
+func runPlateau(t *testing.T, args ...string) (string, error) {
+	t.Helper()
+	root := newRoot()
+	var out bytes.Buffer
+	root.SetOut(&out)
+	root.SetErr(&out)
+	root.SetArgs(args)
+	err := root.Execute()
+	return out.String(), err
+}
+
+func TestAnalyze(t *testing.T) {
+	// No config file at the default path: everything comes from the flags.
+	abs := filepath.Join(mustWd(t), deadweight)
+	t.Chdir(t.TempDir())
+	flags := []string{"--upper", "16 bar", "--resolution", "0.05 bar", "--class", "1", "--ref-uncertainty", "0.015 %"}
+
+	tests := []struct {
+		name    string
+		args    []string
+		want    []string // in the output
+		wantErr string
+	}{
+		{"text, simple rule", append([]string{"analyze", abs, "--rule", "simple"}, flags...),
+			[]string{"Range                  0.000 bar … 16.000 bar", "12.000     12.001  12.113  0.111", "VERDICT: PASS", "§4.2.1"}, ""},
+		{"csv, four-state", append([]string{"analyze", abs, "--rule", "four-state", "--format", "csv"}, flags...),
+			[]string{"point,nominal_bar,", "\n4,12,12.0011,12.1125,0.1114,", ",0.0938317251696,0.69625,2,88.8807414876,conditional-pass\n"}, ""},
+		{"psi display", append([]string{"analyze", abs, "--rule", "simple", "--unit", "psi"}, flags...),
+			[]string{"pressures in psi"}, ""},
+		{"missing flags named", []string{"analyze", abs, "--class", "1"},
+			nil, "--upper, --resolution, --ref-uncertainty or --ref-floor, --rule"},
+		{"class and grade", append([]string{"analyze", abs, "--rule", "simple", "--grade", "2A"}, flags...),
+			nil, "--class and --grade both given"},
+		{"bad rule", append([]string{"analyze", abs, "--rule", "lenient"}, flags...), nil, `--rule "lenient"`},
+		{"bad format", append([]string{"analyze", abs, "--rule", "simple", "--format", "pdf"}, flags...), nil, `--format "pdf"`},
+		{"percent as pressure", []string{"analyze", abs, "--rule", "simple", "--upper", "16 %", "--resolution", "0.05 bar", "--class", "1", "--ref-floor", "1 mbar"},
+			nil, "--upper"},
+		{"missing csv", append([]string{"analyze", "nope.csv", "--rule", "simple"}, flags...), nil, "open recorded run"},
+		{"explicit config missing", append([]string{"--config", "absent.yaml", "analyze", abs, "--rule", "simple"}, flags...), nil, "absent.yaml"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			out, err := runPlateau(t, tc.args...)
+			if tc.wantErr != "" {
+				if err == nil || !strings.Contains(err.Error(), tc.wantErr) {
+					t.Fatalf("error %v, want one containing %q", err, tc.wantErr)
+				}
+				return
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, w := range tc.want {
+				if !strings.Contains(out, w) {
+					t.Errorf("output lacks %q:\n%s", w, out)
+				}
+			}
+		})
+	}
+}
+
+// With a config file the device and rule come from it, flags override, and
+// -o writes the file.
+func TestAnalyzeWithConfig(t *testing.T) {
+	wd := mustWd(t)
+	cfg := filepath.Join(wd, "../../testdata/config/sim.yaml")
+	dir := t.TempDir()
+	for _, format := range []string{"json", "html"} {
+		out := filepath.Join(dir, "report."+format)
+		if _, err := runPlateau(t, "--config", cfg, "analyze", deadweight, "--format", format, "-o", out, "--rule", "guarded"); err != nil {
+			t.Fatal(err)
+		}
+		b, err := os.ReadFile(out)
+		if err != nil {
+			t.Fatal(err)
+		}
+		switch format {
+		case "json":
+			var doc struct {
+				Info struct {
+					Device      struct{ ID string } `json:"device"`
+					DisplayUnit string              `json:"display_unit"`
+				} `json:"info"`
+				Result struct {
+					DecisionRule string `json:"decision_rule"`
+					Device       struct {
+						ResolutionPa float64 `json:"resolution_pa"`
+					} `json:"device"`
+					Points []struct{} `json:"points"`
+				} `json:"result"`
+			}
+			if err := json.Unmarshal(b, &doc); err != nil {
+				t.Fatal(err)
+			}
+			// sim.yaml: device DEMO-16, 0.01 bar resolution; --rule overrides four-state.
+			if doc.Info.Device.ID != "DEMO-16" || doc.Info.DisplayUnit != "bar" || doc.Result.DecisionRule != "guarded" ||
+				doc.Result.Device.ResolutionPa != 1000 || len(doc.Result.Points) != 5 {
+				t.Errorf("unexpected report: %+v", doc)
+			}
+		case "html":
+			if n := strings.Count(string(b), "<svg"); n != 4 {
+				t.Errorf("HTML has %d charts, want 4 (error, hysteresis, drift, zero)", n)
+			}
+		}
+	}
+}
+
+func mustWd(t *testing.T) string {
+	t.Helper()
+	wd, err := os.Getwd()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return wd
+}

@@ -1,0 +1,121 @@
+package main
+
+import (
+	"math/rand/v2"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"plateau/acquire"
+	"plateau/acquire/store"
+	"plateau/config"
+)
+
+// A process running a procedure on the simulated bench is killed with
+// SIGKILL at random moments; after every kill the store passes bbolt's
+// consistency check and every point captured before the kill is still there,
+// and the restarted run completes with every planned point exactly once.
+func TestKillAndResume(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the program and kills it 20 times")
+	}
+	dir := t.TempDir()
+	bin := filepath.Join(dir, "plateau")
+	build := exec.Command("go", "build", "-o", bin, ".")
+	if out, err := build.CombinedOutput(); err != nil {
+		t.Fatalf("build: %v\n%s", err, out)
+	}
+	cfgText, err := os.ReadFile("../../testdata/config/sim.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(cfgText), "path: plateau-sim.db", "path: "+filepath.Join(dir, "crash.db"), 1)
+	text = strings.Replace(text, "speed: 20", "speed: 60", 1)
+	cfgPath := filepath.Join(dir, "crash.yaml")
+	if err := os.WriteFile(cfgPath, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	cfg, err := config.Load(cfgPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	total := acquire.CaptureCount(acquire.Plan(cfg.Procedure, cfg.Device.LowerPa))
+
+	rng := rand.New(rand.NewPCG(1, 2))
+	seen := map[string]bool{}
+	check := func(stage string) int {
+		st, err := store.Open(cfg.Store.Path, store.Options{Timeout: 5 * time.Second})
+		if err != nil {
+			t.Fatalf("%s: reopen: %v", stage, err)
+		}
+		defer st.Close()
+		if err := st.Check(); err != nil {
+			t.Fatalf("%s: store check: %v", stage, err)
+		}
+		runs, err := st.Runs()
+		if err != nil || len(runs) > 1 {
+			t.Fatalf("%s: runs %v, %v (a restart must resume, not start anew)", stage, runs, err)
+		}
+		if len(runs) == 0 {
+			return 0
+		}
+		pts, err := st.Points(runs[0].ID)
+		if err != nil {
+			t.Fatal(err)
+		}
+		now := map[string]bool{}
+		for _, p := range pts {
+			k := string(p.Kind) + "/" + string(p.Direction) + "/" + string(rune('0'+p.Cycle)) + "/" + string(rune('0'+p.Index))
+			if now[k] {
+				t.Fatalf("%s: point %s twice", stage, k)
+			}
+			now[k] = true
+		}
+		for k := range seen {
+			if !now[k] {
+				t.Fatalf("%s: point %s lost", stage, k)
+			}
+		}
+		seen = now
+		return len(pts)
+	}
+	kills := 0
+	for kills < 20 {
+		cmd := exec.Command(bin, "run", "-q", "-c", cfgPath, "--label", "crash test")
+		cmd.Dir = dir
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		time.Sleep(time.Duration(200+rng.IntN(900)) * time.Millisecond)
+		if err := cmd.Process.Kill(); err != nil {
+			t.Fatal(err)
+		}
+		cmd.Wait()
+		kills++
+		if n := check("after kill"); n == total {
+			break
+		}
+	}
+	st, err := store.Open(cfg.Store.Path, store.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	unfinished, err := st.Unfinished()
+	st.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(unfinished) > 0 {
+		out, err := exec.Command(bin, "run", "-q", "-c", cfgPath).CombinedOutput()
+		if err != nil {
+			t.Fatalf("final run: %v\n%s", err, out)
+		}
+	}
+	if n := check("final"); n != total {
+		t.Fatalf("%d points after %d kills, want %d", n, kills, total)
+	}
+	t.Logf("%d kills, %d points, none lost or doubled", kills, total)
+}
