@@ -17,7 +17,7 @@ import (
 
 // raw makes one HTTP call without the client's help, to see exactly what
 // the daemon answers.
-func raw(t *testing.T, c *Client, method, path, token, ctype, body string) (int, http.Header, string) {
+func raw(t testing.TB, c *Client, method, path, token, ctype, body string) (int, http.Header, string) {
 	t.Helper()
 	req, err := http.NewRequest(method, c.base+path, strings.NewReader(body))
 	if err != nil {
@@ -484,7 +484,7 @@ func waitFor(t testing.TB, cond func() bool) {
 }
 
 // metric scrapes /metrics and returns the value of the series named.
-func metric(t *testing.T, c *Client, series string) string {
+func metric(t testing.TB, c *Client, series string) string {
 	t.Helper()
 	_, _, body := raw(t, c, "GET", "/metrics", "", "", "")
 	for _, line := range strings.Split(body, "\n") {

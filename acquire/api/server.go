@@ -175,7 +175,9 @@ func (s *Server) Handler(access Access) http.Handler {
 	read := func(pattern string, h http.HandlerFunc) { mux.Handle(pattern, s.guard(access, false, h)) }
 	change := func(pattern string, h http.HandlerFunc) { mux.Handle(pattern, s.guard(access, true, h)) }
 
-	mux.HandleFunc("GET /healthz", func(w http.ResponseWriter, _ *http.Request) { writeJSON(w, http.StatusOK, map[string]string{"status": "ok"}) })
+	mux.HandleFunc("GET /healthz", func(w http.ResponseWriter, _ *http.Request) {
+		writeJSON(w, http.StatusOK, map[string]string{"status": "ok"})
+	})
 	read("GET /readyz", s.handleReady)
 	read("GET /metrics", promhttp.HandlerFor(s.reg, promhttp.HandlerOpts{
 		ErrorLog: slog.NewLogLogger(s.log.Handler(), slog.LevelWarn),

@@ -118,7 +118,7 @@ type beat struct {
 }
 
 func (b *beat) set(t time.Time) { b.mu.Lock(); b.at = t; b.mu.Unlock() }
-func (b *beat) last() time.Time  { b.mu.Lock(); defer b.mu.Unlock(); return b.at }
+func (b *beat) last() time.Time { b.mu.Lock(); defer b.mu.Unlock(); return b.at }
 
 // TestWatchdogFollowsProgress: pings go out while both the poll loop and
 // the store writer make progress, stop (with a status line naming the

@@ -204,7 +204,7 @@ func newDriftAxis(d *analysis.Drift) driftAxis {
 
 // driftChart: each point's cycle mean error against time or cycle.
 func driftChart(n numbers, res analysis.Result) (*chart, error) {
-	if res.Drift == nil || len(res.Drift.Points) == 0 {
+	if res.Drift == nil || len(res.Drift.Points) == 0 || len(res.Drift.Points[0].CycleErrors) == 0 {
 		return nil, nil
 	}
 	ax := newDriftAxis(res.Drift)
@@ -230,7 +230,7 @@ func driftChart(n numbers, res analysis.Result) (*chart, error) {
 		if err != nil {
 			return nil, err
 		}
-		ink := plotutilColor(i)
+		ink := seriesInk(i)
 		l.Color, sc.Color = ink, ink
 		p.Add(l, sc)
 		p.Legend.Add(n.pu(pd.NominalPa), l, sc)
@@ -281,8 +281,8 @@ func zeroChart(n numbers, res analysis.Result) (*chart, error) {
 	return &chart{Title: "Zero over the run", Caption: "Zero error (" + res.Zero.Source + ") at the start and end of each cycle.", SVG: s}, nil
 }
 
-// plotutilColor cycles through a small set of distinguishable inks.
-func plotutilColor(i int) color.Color {
+// seriesInk cycles through a small set of distinguishable inks.
+func seriesInk(i int) color.Color {
 	inks := []color.Color{inkUp, inkDown, color.RGBA{0x2e, 0x7d, 0x32, 0xff}, color.RGBA{0x6a, 0x1b, 0x9a, 0xff},
 		color.RGBA{0x00, 0x83, 0x8f, 0xff}, color.RGBA{0x8d, 0x6e, 0x63, 0xff}, inkLimit, inkMean}
 	return inks[i%len(inks)]

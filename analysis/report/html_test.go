@@ -76,3 +76,25 @@ func wellFormed(s string) error {
 		}
 	}
 }
+
+func BenchmarkHTML(b *testing.B) {
+	info, res := scenario(b)
+	var buf bytes.Buffer
+	b.ReportAllocs()
+	for b.Loop() {
+		buf.Reset()
+		if err := HTML(&buf, info, res); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
+func BenchmarkText(b *testing.B) {
+	info, res := scenario(b)
+	b.ReportAllocs()
+	for b.Loop() {
+		if err := Text(io.Discard, info, res); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

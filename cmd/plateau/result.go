@@ -1,12 +1,17 @@
 package main
 
 import (
+	"bytes"
 	"fmt"
 	"io"
+	"os"
+	"time"
 
 	"plateau/acquire"
 	"plateau/acquire/store"
 	"plateau/analysis"
+	"plateau/analysis/report"
+	"plateau/analysis/units"
 	"plateau/config"
 )
 
@@ -14,6 +19,8 @@ import (
 type runResult struct {
 	Result analysis.Result
 	Points []analysis.Point
+	Label  string
+	At     time.Time // when the run was last updated
 }
 
 // evaluate analyses the captured points of a run with the configuration's
@@ -28,15 +35,37 @@ func evaluate(st *store.Store, cfg *config.Config, id store.RunID) (*runResult, 
 	if err != nil {
 		return nil, fmt.Errorf("analyse %s: %w", id, err)
 	}
-	return &runResult{Result: res, Points: pts}, nil
+	run, err := st.Run(id)
+	if err != nil {
+		return nil, fmt.Errorf("read run %s: %w", id, err)
+	}
+	return &runResult{Result: res, Points: pts, Label: run.Label, At: run.Updated}, nil
 }
 
+// runInfo describes a run of this configuration for a report.
+func runInfo(cfg *config.Config, id store.RunID, label string, at time.Time) report.Info {
+	info := infoFromConfig(cfg)
+	info.Run = report.RunIdentity{ID: id.String(), Label: label}
+	info.GeneratedAt = at
+	if u, err := units.Lookup(cfg.Device.Unit); err == nil {
+		info.Unit = u
+	}
+	return info
+}
+
+// printResult writes the result table for the terminal.
 func printResult(w io.Writer, cfg *config.Config, id store.RunID, r *runResult) error {
-	fmt.Fprintf(w, "run %s: %d points, decision (%s): %s\n", id, len(r.Points), r.Result.DecisionRule, r.Result.Decision)
-	return nil
+	return report.Text(w, runInfo(cfg, id, r.Label, r.At), r.Result)
 }
 
-// writeHTMLReport renders a run's report to path.
+// writeHTMLReport renders a run's report to path, whole or not at all.
 func writeHTMLReport(path string, cfg *config.Config, id store.RunID, r *runResult) error {
-	return fmt.Errorf("html report for %s: not available yet", id)
+	var buf bytes.Buffer
+	if err := report.HTML(&buf, runInfo(cfg, id, r.Label, r.At), r.Result); err != nil {
+		return fmt.Errorf("report for %s: %w", id, err)
+	}
+	if err := os.WriteFile(path, buf.Bytes(), 0o644); err != nil {
+		return fmt.Errorf("write report: %w", err)
+	}
+	return nil
 }

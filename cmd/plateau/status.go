@@ -147,7 +147,11 @@ func printStatus(w io.Writer, st api.Status, now time.Time) {
 		}
 		last := "—"
 		if !in.LastAt.IsZero() {
-			last = fmt.Sprintf("%.6g %s (%s ago)", show.FromPa(in.LastPa), show.Symbol, now.Sub(in.LastAt).Round(time.Second))
+			when := fmt.Sprintf("%s ago", now.Sub(in.LastAt).Round(time.Second))
+			if in.LastAt.After(now) { // a simulated bench runs its clock ahead
+				when = "at " + in.LastAt.Local().Format("15:04:05")
+			}
+			last = fmt.Sprintf("%.6g %s (%s)", show.FromPa(in.LastPa), show.Symbol, when)
 		}
 		settled := "no"
 		if in.Settled {

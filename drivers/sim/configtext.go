@@ -41,9 +41,9 @@ func (r *Rig) ConfigYAML() (string, error) {
 	dev := r.cfg.Device
 	refUpper := r.p.refUnit.FromPa(max(r.p.maxPa, r.p.upper))
 	sections := []section{
-		{"instruments", insts, "The simulated rig's instruments. Other ways in: reference over a line instrument\n" +
-			"(link: {kind: serial, address: " + ep.ReferenceLine + "}, line: {query: \"READ?\\r\\n\"}),\n" +
-			"device over a line instrument at " + ep.DeviceLine + ", or any part over Modbus TCP at " + ep.TCP + "."},
+		{"instruments", insts, "The simulated rig's instruments. Also served: every part over Modbus TCP at " + ep.TCP + ";\n" +
+			"line instruments (link: {kind: serial, address: …}, line: {query: \"" + CmdRead + "\"}) for the\n" +
+			"reference at " + ep.ReferenceLine + " and the device at " + ep.DeviceLine + "."},
 		{"device", config.Device{
 			ID: "SIM-DUT", Manufacturer: "plateau", Model: "simulated " + dev.Kind, Kind: dev.Kind,
 			Lower: dev.Lower, Upper: dev.Upper, Unit: r.p.devUnit.Symbol, Resolution: dev.Resolution,

@@ -1,6 +1,7 @@
 package sim
 
 import (
+	"errors"
 	"math"
 	"strings"
 	"testing"
@@ -255,5 +256,50 @@ func TestParamsErrors(t *testing.T) {
 		if !strings.Contains(err.Error(), key) {
 			t.Errorf("error does not name %s:\n%v", key, err)
 		}
+	}
+}
+
+// The simulated operator reads the dial only after the pointer has stopped
+// and operator_delay has passed, rounded to the dial's resolution.
+func TestOperatorReadsSettledDial(t *testing.T) {
+	s := quiet()
+	s.Device.Kind = KindDial
+	s.Device.Resolution = "0.1 bar"
+	s.Device.Zero = "0.08 bar"
+	s.Device.DeadBand = "0.04 bar"
+	r, clk := newTestRig(t, s)
+	if err := r.SetPoint(8e5); err != nil {
+		t.Fatal(err)
+	}
+	start := clk.Now()
+	done := make(chan struct{})
+	go func() { // the clock runs while the operator watches
+		for {
+			select {
+			case <-done:
+				return
+			default:
+				clk.Advance(50 * time.Millisecond)
+				time.Sleep(100 * time.Microsecond)
+			}
+		}
+	}()
+	got, err := r.Operator().Read(t.Context())
+	close(done)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// 8 bar + 0.08 zero − 0.02 (half the dead band, rising) = 8.06 → 8.1 on a 0.1 bar dial.
+	if math.Abs(got.Raw-8.1) > 1e-9 || got.RawUnit != "bar" || math.Abs(got.Pa-8.1e5) > 1e-3 {
+		t.Errorf("operator read %+v, want 8.1 bar", got)
+	}
+	// The pointer of a τ = 1 s source moves less than a quarter division
+	// per second only after about 5.3 τ; then 3 s of operator delay.
+	if el := got.Time.Sub(start); el < 8*time.Second {
+		t.Errorf("operator answered %v after the step, before the pointer settled and the delay passed", el)
+	}
+	in, err := r.Resolve(config.Instrument{Name: "dial", Role: config.RoleDevice, Link: config.Link{Kind: config.LinkSim}, SimPart: PartDevice})
+	if !errors.Is(err, ErrNotStarted) {
+		t.Errorf("resolve before start: %+v, %v", in, err)
 	}
 }

@@ -55,6 +55,7 @@ var defaultSimulator = config.Simulator{
 		DeadBand: "0.02 bar", Resolution: "0.01 bar", Noise: "0.002 bar", Unit: "bar",
 		Lower: "0 bar", Upper: "16 bar", OperatorDelay: 5 * time.Second,
 	},
+	Faults: config.SimFaults{SlowBy: 2 * time.Second, StuckFor: 10 * time.Second},
 }
 
 // WithDefaults returns s with every empty field filled from the simulator's
@@ -89,6 +90,12 @@ func WithDefaults(s config.Simulator) config.Simulator {
 	fill(&dv.Upper, d.Device.Upper)
 	if dv.OperatorDelay <= 0 {
 		dv.OperatorDelay = d.Device.OperatorDelay
+	}
+	if s.Faults.SlowBy <= 0 {
+		s.Faults.SlowBy = d.Faults.SlowBy
+	}
+	if s.Faults.StuckFor <= 0 {
+		s.Faults.StuckFor = d.Faults.StuckFor
 	}
 	return s
 }

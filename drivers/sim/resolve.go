@@ -15,9 +15,6 @@ const (
 	PartSource    = config.RoleSource
 )
 
-// LineQuery is what a line driver sends to read a simulated line instrument.
-const LineQuery = CmdRead + "\r\n"
-
 // ErrNotStarted says the rig has no endpoints yet.
 var ErrNotStarted = errors.New("simulated rig not started")
 
@@ -102,7 +99,7 @@ func (r *Rig) Resolve(inst config.Instrument) (config.Instrument, error) {
 		link.Kind, link.Address = config.LinkSerial, line
 		link.Baud, link.DataBits, link.Parity, link.StopBits = 9600, 8, "none", 1
 		out.Value = config.ValueRead{}
-		out.Line = config.LineProtocol{Query: LineQuery, Terminator: "\r\n", Overload: []string{ReplyOverload}}
+		out.Line = config.LineProtocol{Query: CmdRead, Terminator: "\r\n", Overload: []string{ReplyOverload}}
 	default:
 		return bad("sim_via %q: want %s, %s or %s", via, config.LinkModbusTCP, config.LinkModbusRTU, config.LinkSerial)
 	}

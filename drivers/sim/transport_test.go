@@ -165,8 +165,10 @@ func TestRTUOnPTY(t *testing.T) {
 	}
 }
 
-// readLine sends a command to a line instrument through go.bug.st/serial
-// and returns the reply line without its terminator.
+// lineQuery is the read command with its line end, as a driver sends it.
+const lineQuery = CmdRead + "\r\n"
+
+// openLine opens a line instrument's device through go.bug.st/serial.
 func openLine(t *testing.T, path string) (serial.Port, *bufio.Reader) {
 	t.Helper()
 	p, err := serial.Open(path, &serial.Mode{BaudRate: 9600})
@@ -180,6 +182,7 @@ func openLine(t *testing.T, path string) (serial.Port, *bufio.Reader) {
 	return p, bufio.NewReader(p)
 }
 
+// ask sends a command and returns the reply line without its terminator.
 func ask(t *testing.T, p serial.Port, rd *bufio.Reader, cmd string) (string, error) {
 	t.Helper()
 	if _, err := p.Write([]byte(cmd)); err != nil {
@@ -206,7 +209,7 @@ func TestLineInstruments(t *testing.T) {
 		{ep.DeviceLine, "bar", want.Device, 2},       // resolution 0.01 bar
 	} {
 		p, rd := openLine(t, c.path)
-		line, err := ask(t, p, rd, LineQuery)
+		line, err := ask(t, p, rd, lineQuery)
 		if err != nil {
 			t.Fatalf("%s: %v", c.path, err)
 		}
@@ -252,7 +255,7 @@ func TestResolve(t *testing.T) {
 			t.Fatalf("%s via %q resolved to %+v", c.part, c.via, in.Link)
 		}
 		if math.IsNaN(c.want) {
-			if in.Line.Query != LineQuery {
+			if in.Line.Query != CmdRead {
 				t.Errorf("serial link without the line query: %+v", in.Line)
 			}
 			continue
