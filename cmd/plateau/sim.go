@@ -47,7 +47,9 @@ Try it:
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			var s config.Simulator
-			if cmd.Flags().Changed("config") {
+			fl := cmd.Flags()
+			fromFile := fl.Changed("config")
+			if fromFile {
 				cfg, err := config.Load(configPath)
 				if err != nil {
 					return err
@@ -55,14 +57,14 @@ Try it:
 				s = cfg.Simulator
 			}
 			s = sim.WithDefaults(s)
-			fl := cmd.Flags()
-			if fl.Changed("seed") {
+			// Flags override the file; without a file their defaults apply.
+			if !fromFile || fl.Changed("seed") {
 				s.Seed = seed
 			}
-			if fl.Changed("speed") {
+			if !fromFile || fl.Changed("speed") {
 				s.Speed = speed
 			}
-			if fl.Changed("device-kind") {
+			if !fromFile || fl.Changed("device-kind") {
 				s.Device.Kind = kind
 			}
 			for _, f := range faults {
