@@ -69,6 +69,25 @@ var (
 	ErrInvalid = errors.New("invalid request")
 )
 
+// AsConflict marks err as a refusal for the state things are in (409),
+// keeping its message as it is.
+func AsConflict(err error) error {
+	if err == nil {
+		return nil
+	}
+	return classified{err, ErrConflict}
+}
+
+// classified gives an error one of the kinds above without changing its text.
+type classified struct {
+	err  error
+	kind error
+}
+
+func (c classified) Error() string        { return c.err.Error() }
+func (c classified) Unwrap() error        { return c.err }
+func (c classified) Is(target error) bool { return target == c.kind }
+
 // StartRequest is the body of a start call. Every field is optional.
 type StartRequest struct {
 	// Label names the run in lists and reports, e.g. "as-found PG-0421".

@@ -4,6 +4,8 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"errors"
+	"fmt"
 	"io"
 	"net/http"
 	"os"
@@ -493,4 +495,15 @@ func metric(t testing.TB, c *Client, series string) string {
 		}
 	}
 	return ""
+}
+
+func TestAsConflict(t *testing.T) {
+	base := fmt.Errorf("start: %w", os.ErrExist)
+	err := AsConflict(base)
+	if !errors.Is(err, ErrConflict) || !errors.Is(err, os.ErrExist) || err.Error() != base.Error() {
+		t.Fatalf("AsConflict(%v) = %v", base, err)
+	}
+	if AsConflict(nil) != nil {
+		t.Fatal("AsConflict(nil) is not nil")
+	}
 }

@@ -117,13 +117,9 @@ func checkText(field, v string) error {
 	return nil
 }
 
-// invalidError is a client mistake whose message is complete as it is.
-type invalidError struct{ msg string }
-
-func (e invalidError) Error() string        { return e.msg }
-func (e invalidError) Is(target error) bool { return target == ErrInvalid }
-
-func invalid(format string, args ...any) error { return invalidError{fmt.Sprintf(format, args...)} }
+func invalid(format string, args ...any) error {
+	return classified{fmt.Errorf(format, args...), ErrInvalid}
+}
 
 func (r StartRequest) validate() error {
 	return checkText("label", r.Label)

@@ -50,9 +50,6 @@ func NewTCPClient(rawURL, token string) (*Client, error) {
 	return &Client{base: base, where: base, token: token, hc: &http.Client{}}, nil
 }
 
-// Where says which daemon the client calls, for messages.
-func (c *Client) Where() string { return c.where }
-
 // Error is a refusal from the daemon.
 type Error struct {
 	Status  int

@@ -173,14 +173,18 @@ func streamStart(r *http.Request) (startPoint, error) {
 }
 
 func (s *Server) resolveStart(p startPoint) (uint64, error) {
-	if !p.now && !p.hasTail {
-		return p.after, nil
-	}
 	last, err := s.o.Records.LastEventID()
 	if err != nil {
 		return 0, fmt.Errorf("last event id: %w", err)
 	}
-	if p.tail >= last {
+	switch {
+	case !p.now && !p.hasTail:
+		// An id beyond the end comes from an earlier store (the file was
+		// replaced): go on from this store's end, not from a future id.
+		return min(p.after, last), nil
+	case p.now:
+		return last, nil
+	case p.tail >= last:
 		return 0, nil
 	}
 	return last - p.tail, nil

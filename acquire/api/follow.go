@@ -35,6 +35,9 @@ type FollowOptions struct {
 	OnGap func(first, last uint64)
 	// OnDisconnect is told when the stream breaks, before the wait.
 	OnDisconnect func(err error, retryIn time.Duration)
+	// OnRestart is told when the daemon's event ids start below the last
+	// one seen: its store was replaced, and ids count from `now` again.
+	OnRestart func(lastSeen, now uint64)
 }
 
 // Follow streams events to fn until ctx ends or fn fails, reconnecting
@@ -151,7 +154,10 @@ func (f *follower) frame(fr sseFrame) error {
 		return fmt.Errorf("stream from %s: bad event id %q", f.c.where, fr.ID)
 	}
 	if len(fr.Data) == 0 { // the stream's starting position
-		if !f.known {
+		if f.known && id < f.last && f.o.OnRestart != nil {
+			f.o.OnRestart(f.last, id)
+		}
+		if !f.known || id < f.last {
 			f.last, f.known = id, true
 		}
 		return nil

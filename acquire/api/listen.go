@@ -53,7 +53,7 @@ func ListenTCP(addr string, allowRemote bool, token string) (net.Listener, Acces
 		return nil, 0, fmt.Errorf("listen on %q: want host:port, e.g. 127.0.0.1:8417: %w", addr, err)
 	}
 	access := Loopback
-	if !IsLoopback(host) {
+	if !isLoopback(host) {
 		access = Remote
 		if !allowRemote {
 			return nil, 0, fmt.Errorf("listen on %s: not a loopback address; set listen.allow_remote to accept calls from the network", addr)
@@ -69,8 +69,8 @@ func ListenTCP(addr string, allowRemote bool, token string) (net.Listener, Acces
 	return l, access, nil
 }
 
-// IsLoopback reports whether host names only this machine.
-func IsLoopback(host string) bool {
+// isLoopback reports whether host names only this machine.
+func isLoopback(host string) bool {
 	if host == "localhost" {
 		return true
 	}

@@ -121,10 +121,6 @@ func New(o Options) (*Server, error) {
 	return s, nil
 }
 
-// Registry is the server's private metrics registry, for the daemon to add
-// its own collectors (store size, for instance).
-func (s *Server) Registry() *prometheus.Registry { return s.reg }
-
 // Serve answers calls arriving on l with the given trust until Shutdown.
 // It returns nil after Shutdown.
 func (s *Server) Serve(l net.Listener, access Access) error {

@@ -306,6 +306,7 @@ func TestStreamStart(t *testing.T) {
 		{"tail", "/api/v1/events?tail=2", "", 3, "@8 9 10"},
 		{"tail longer than history", "/api/v1/events?tail=50", "", 3, "@0 1 2"},
 		{"from the start", "/api/v1/events?since=0", "", 2, "@0 1"},
+		{"id from a replaced store", "/api/v1/events", "99", 1, "@10"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -396,5 +397,28 @@ func TestFollowGivesUp(t *testing.T) {
 	err = remote.Follow(context.Background(), FollowOptions{Retry: true}, func(store.Event) error { return nil })
 	if !IsStatus(err, http.StatusForbidden) {
 		t.Fatalf("refused stream: %v", err)
+	}
+}
+
+// TestFollowAfterStoreReplaced: when the daemon's ids restart below the
+// last one seen (its store file was replaced), the client says so and
+// takes the new events instead of skipping them as already seen.
+func TestFollowAfterStoreReplaced(t *testing.T) {
+	var restarted [2]uint64
+	var got []uint64
+	f := &follower{c: &Client{where: "test"}, known: true, last: 500, o: FollowOptions{
+		OnRestart: func(a, b uint64) { restarted = [2]uint64{a, b} },
+		OnGap:     func(a, b uint64) { t.Errorf("gap %d…%d", a, b) },
+	}, fn: func(ev store.Event) error { got = append(got, ev.ID); return nil }}
+	for _, fr := range []sseFrame{
+		{ID: "3", HasID: true},
+		{ID: "4", HasID: true, Data: []byte(`{"id":4,"type":"state","message":"m","level":"INFO","time":"2026-03-01T08:00:00Z"}`)},
+	} {
+		if err := f.frame(fr); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if restarted != [2]uint64{500, 3} || len(got) != 1 || got[0] != 4 {
+		t.Fatalf("restart %v, events %v", restarted, got)
 	}
 }

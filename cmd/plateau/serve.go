@@ -272,7 +272,7 @@ func (c *engineControl) Start(_ context.Context, req api.StartRequest) (store.Ru
 	if err != nil {
 		// Start refuses for reasons of state (a run is active, the
 		// reference's calibration has expired); its messages say which.
-		return 0, fmt.Errorf("%w: %v", api.ErrConflict, err)
+		return 0, api.AsConflict(err)
 	}
 	return id, nil
 }
@@ -288,7 +288,7 @@ func (c *engineControl) Enter(_ context.Context, e api.Entry) error {
 	if err := c.eng.Enter(e.Value, e.Unit); err != nil {
 		// The API has checked the value and unit; what is left is that
 		// this bench takes no operator readings.
-		return fmt.Errorf("%w: %v", api.ErrConflict, err)
+		return api.AsConflict(err)
 	}
 	return nil
 }
@@ -296,7 +296,7 @@ func (c *engineControl) Enter(_ context.Context, e api.Entry) error {
 // refusal marks "no run is active" as a conflict, not a failure.
 func refusal(err error) error {
 	if errors.Is(err, acquire.ErrNoRun) {
-		return fmt.Errorf("%w: %v", api.ErrConflict, err)
+		return api.AsConflict(err)
 	}
 	return err
 }

@@ -74,6 +74,9 @@ line says how many were missed. Ctrl-C ends it.`,
 		p := &eventPrinter{w: out, json: asJSON, color: useColor}
 		opts := api.FollowOptions{Tail: lines, Retry: retry,
 			OnGap: func(first, last uint64) { p.gap(first, last) },
+			OnRestart: func(seen, now uint64) {
+				fmt.Fprintf(cmd.ErrOrStderr(), "plateau tail: the daemon's event log starts again at id %d (last seen %d): its store was replaced\n", now, seen)
+			},
 			OnDisconnect: func(err error, wait time.Duration) {
 				fmt.Fprintf(cmd.ErrOrStderr(), "plateau tail: %v; reconnecting in %v\n", err, wait.Round(time.Millisecond))
 			},

@@ -4,5 +4,6 @@ package all
 
 import (
 	_ "plateau/drivers/line"
+	_ "plateau/drivers/manual"
 	_ "plateau/drivers/modbus"
 )

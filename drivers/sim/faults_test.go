@@ -186,3 +186,22 @@ func TestNoFaultsByDefault(t *testing.T) {
 		t.Log(MapText(ep.Registers))
 	}
 }
+
+func TestSetFault(t *testing.T) {
+	var f config.SimFaults
+	for _, spec := range []string{"drop=0.1", "SLOW = 0.2", "slow_by=300ms", "bad_crc=0.05", "garbage=1", "stuck=0.01", "stuck_for=10s", "spike=0", "link_down=5s", "link_every=1m"} {
+		if err := SetFault(&f, spec); err != nil {
+			t.Errorf("%s: %v", spec, err)
+		}
+	}
+	want := config.SimFaults{Drop: 0.1, Slow: 0.2, SlowBy: 300 * time.Millisecond, BadCRC: 0.05, Garbage: 1, Stuck: 0.01,
+		StuckFor: 10 * time.Second, LinkDown: 5 * time.Second, LinkEvery: time.Minute}
+	if f != want {
+		t.Errorf("faults %+v, want %+v", f, want)
+	}
+	for _, bad := range []string{"drop", "drop=", "drop=1.5", "drop=-0.1", "slow_by=fast", "link_down=-1s", "smoke=0.1"} {
+		if err := SetFault(&f, bad); err == nil {
+			t.Errorf("%q accepted", bad)
+		}
+	}
+}

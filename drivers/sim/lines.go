@@ -40,29 +40,45 @@ func (r *Rig) serveLines(ctx context.Context, port *ptyPort, part string, value 
 		if err != nil && !idle {
 			return fmt.Errorf("%s line %s: %w", part, port.Path, err)
 		}
-		for {
-			i := bytes.IndexAny(pending, "\r\n")
-			if i < 0 {
-				break
-			}
-			cmd := string(pending[:i])
-			pending = pending[i+1:]
+		var cmds []string
+		cmds, pending = splitCommands(pending, idle)
+		for _, cmd := range cmds {
 			if err := r.answerLine(ctx, port, part, cmd, value, decimals); err != nil {
 				return err
 			}
-		}
-		if idle && len(pending) > 0 {
-			cmd := string(pending)
-			pending = nil
-			if err := r.answerLine(ctx, port, part, cmd, value, decimals); err != nil {
-				return err
-			}
-		}
-		if len(pending) > 1024 { // a stream with no line ends is noise, not a command
-			pending = nil
 		}
 	}
 	return nil
+}
+
+// maxPending bounds a command without a line end: a longer stream is
+// noise, not a command, and is thrown away.
+const maxPending = 1024
+
+// splitCommands takes the complete commands (ended by CR or LF; the rest
+// too when the line has gone idle) from received bytes and returns what is
+// left waiting for its line end. Empty commands are dropped.
+func splitCommands(pending []byte, idle bool) (cmds []string, rest []byte) {
+	for {
+		i := bytes.IndexAny(pending, "\r\n")
+		if i < 0 {
+			break
+		}
+		if c := strings.TrimSpace(string(pending[:i])); c != "" {
+			cmds = append(cmds, c)
+		}
+		pending = pending[i+1:]
+	}
+	if idle && len(pending) > 0 {
+		if c := strings.TrimSpace(string(pending)); c != "" {
+			cmds = append(cmds, c)
+		}
+		pending = nil
+	}
+	if len(pending) > maxPending {
+		pending = nil
+	}
+	return cmds, pending
 }
 
 func (r *Rig) answerLine(ctx context.Context, port *ptyPort, part, cmd string, value valueFunc, decimals int) error {

@@ -55,7 +55,7 @@ type model struct {
 	vented       bool
 	setpoint     float64
 	// Friction (play operator) state on the integration grid.
-	grid float64 // model time of the last grid point evaluated
+	step int64   // index of the last grid point evaluated (time = step × stepSeconds)
 	play float64 // indication after friction, Pa
 }
 
@@ -105,17 +105,33 @@ func (m *model) shaped(p float64) float64 {
 	return p + m.p.zero + m.p.span*p + m.p.bow*4*x*(1-x)
 }
 
-// advance integrates the friction state up to model time t. Before a
-// segment changes, the grid is brought up to the change, so a grid point
-// always sees the segment that was active at its time.
+// advance integrates the friction state up to model time t on a grid of
+// whole steps from the epoch (an integer index, so the grid is the same
+// however the calls fall). Before a segment changes, the grid is brought up
+// to the change, so a grid point always sees the segment active at its time.
 func (m *model) advance(t float64) {
 	h := m.p.band / 2
-	for next := m.grid + stepSeconds; next <= t; next += stepSeconds {
-		f := m.shaped(m.pressure(next))
+	last := int64(math.Floor(t / stepSeconds))
+	for k := m.step + 1; k <= last; k++ {
+		tk := float64(k) * stepSeconds
+		if m.still(tk) { // the pressure has stopped: one step stands for the rest
+			f := m.shaped(m.to)
+			m.play = min(max(m.play, f-h), f+h)
+			break
+		}
+		f := m.shaped(m.pressure(tk))
 		m.play = min(max(m.play, f-h), f+h)
-		m.grid = next
 	}
+	m.step = max(m.step, last)
 }
+
+// still says the source has come to rest at its target by model time t:
+// 40 time constants after the step (e^-40 of it left) with nothing leaking.
+func (m *model) still(t float64) bool {
+	return (t-m.t0)/m.tau > 40 && (m.p.leak == 0 || m.vented)
+}
+
+func (m *model) gridTime() float64 { return float64(m.step) * stepSeconds }
 
 // friction is the indication after friction at t (which must not be
 // earlier than the grid): the play operator applied to the state.
@@ -151,7 +167,7 @@ func (m *model) vent(at time.Time) {
 // sample evaluates every instrument at clock time at.
 func (m *model) sample(at time.Time) Sample {
 	m.mu.Lock()
-	t := max(m.seconds(at), m.grid)
+	t := max(m.seconds(at), m.gridTime())
 	m.advance(t)
 	p := m.pressure(t)
 	y := m.friction(t)
@@ -191,7 +207,7 @@ func (m *model) current(pa float64) float64 {
 // at, in the device unit, and the operator's reading scatter for that instant.
 func (m *model) needle(at time.Time) (pointer, scatter float64) {
 	m.mu.Lock()
-	t := max(m.seconds(at), m.grid)
+	t := max(m.seconds(at), m.gridTime())
 	m.advance(t)
 	y := m.friction(t)
 	m.mu.Unlock()

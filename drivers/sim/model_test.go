@@ -27,7 +27,7 @@ func quiet() config.Simulator {
 	}
 }
 
-func newTestRig(t *testing.T, s config.Simulator) (*Rig, *clock.Manual) {
+func newTestRig(t testing.TB, s config.Simulator) (*Rig, *clock.Manual) {
 	t.Helper()
 	clk := clock.NewManual(t0)
 	r, err := New(s, clk)

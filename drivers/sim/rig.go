@@ -214,8 +214,8 @@ func (r *Rig) closeLocked() {
 	for _, p := range r.ports {
 		p.Close()
 	}
-	r.ports = nil
-	r.started = false
+	r.ports, r.tcp = nil, nil
+	r.started, r.ep = false, Endpoints{}
 }
 
 // Endpoints returns where the started rig listens (zero before Start).
@@ -271,23 +271,35 @@ func (r *Rig) listenTCP() (*modbus.ModbusServer, string, error) {
 			addr = l.Addr().String()
 			l.Close()
 		}
-		srv, err := modbus.NewServer(&modbus.ServerConfiguration{
-			URL:        "tcp://" + addr,
-			Timeout:    5 * time.Minute,
-			MaxClients: 32,
-			Logger:     log.New(io.Discard, "", 0),
-		}, &tcpHandler{r: r})
-		if err != nil {
-			return nil, "", fmt.Errorf("modbus server on %s: %w", addr, err)
-		}
-		if last = srv.Start(); last == nil {
+		srv, err := r.serveTCP(addr)
+		if err == nil {
 			return srv, addr, nil
 		}
+		last = err
 		if !strings.HasSuffix(r.tcpAddr, ":0") {
 			break
 		}
 	}
-	return nil, "", fmt.Errorf("start modbus server on %s: %w", r.tcpAddr, last)
+	return nil, "", last
+}
+
+// serveTCP starts a Modbus TCP server on addr. A server is never restarted
+// after Stop (the library's accept loop reads its listener unguarded), so
+// the link schedule builds a new one each time the link comes back.
+func (r *Rig) serveTCP(addr string) (*modbus.ModbusServer, error) {
+	srv, err := modbus.NewServer(&modbus.ServerConfiguration{
+		URL:        "tcp://" + addr,
+		Timeout:    5 * time.Minute,
+		MaxClients: 32,
+		Logger:     log.New(io.Discard, "", 0),
+	}, &tcpHandler{r: r})
+	if err != nil {
+		return nil, fmt.Errorf("modbus server on %s: %w", addr, err)
+	}
+	if err := srv.Start(); err != nil {
+		return nil, fmt.Errorf("start modbus server on %s: %w", addr, err)
+	}
+	return srv, nil
 }
 
 // superviseLink takes the TCP server away and back on the link schedule;
@@ -303,11 +315,13 @@ func (r *Rig) superviseLink(ctx context.Context) error {
 		down := r.j.linkDown(r.clk.Now())
 		r.mu.Lock()
 		var err error
-		if r.tcp != nil && ctx.Err() == nil {
-			if down {
+		if ctx.Err() == nil {
+			switch {
+			case down && r.tcp != nil:
 				err = r.tcp.Stop()
-			} else {
-				err = r.tcp.Start()
+				r.tcp = nil
+			case !down && r.tcp == nil:
+				r.tcp, err = r.serveTCP(r.ep.TCP)
 			}
 		}
 		r.mu.Unlock()

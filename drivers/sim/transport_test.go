@@ -306,3 +306,30 @@ func TestConfigYAMLLoads(t *testing.T) {
 		t.Errorf("source control %+v", src)
 	}
 }
+
+// Ending the context (or Stop) closes every transport: the TCP port refuses
+// and the pseudo-terminals are gone.
+func TestStopClosesTransports(t *testing.T) {
+	r, _ := newTestRig(t, quiet())
+	ctx, cancel := context.WithCancel(context.Background())
+	ep, err := r.Start(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cancel()
+	r.Stop()
+	c, err := modbus.NewClient(&modbus.ClientConfiguration{URL: "tcp://" + ep.TCP, Timeout: 200 * time.Millisecond})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := c.Open(); err == nil {
+		c.Close()
+		t.Error("TCP server still accepts after Stop")
+	}
+	for _, path := range []string{ep.RTU, ep.ReferenceLine, ep.DeviceLine} {
+		if p, err := serial.Open(path, &serial.Mode{BaudRate: 9600}); err == nil {
+			p.Close()
+			t.Errorf("%s still opens after Stop", path)
+		}
+	}
+}
