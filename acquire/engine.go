@@ -252,7 +252,12 @@ func (e *Engine) Sample(instrument string, r drivers.Reading, err error) {
 	if run == nil {
 		return
 	}
-	if serr := e.st.AddSample(run.id, instrument, r, err); serr != nil {
+	if r.Time.IsZero() {
+		r.Time = e.clk.Now()
+	}
+	// A sample racing the end of its run is refused by the store; it
+	// belongs to no run, so that is not a fault.
+	if serr := e.st.AddSample(run.id, instrument, r, err); serr != nil && !errors.Is(serr, store.ErrRunEnded) {
 		e.log.Error("sample not stored", "instrument", instrument, "err", serr)
 	}
 }
@@ -341,6 +346,9 @@ func (e *Engine) Status() Status {
 func (e *Engine) Heartbeat() time.Time {
 	oldest := time.Time{}
 	for _, p := range e.pollers() {
+		if p == e.dut && e.dial != nil {
+			continue // read once per point, never polled
+		}
 		b := p.State().Beat
 		if oldest.IsZero() || b.Before(oldest) {
 			oldest = b

@@ -73,6 +73,9 @@ func (p *Poller) run(ctx context.Context) {
 }
 
 func (p *Poller) record(r drivers.Reading, err error) {
+	if r.Time.IsZero() {
+		r.Time = p.clk.Now() // a failed read is stored at the time it failed
+	}
 	if err != nil && drivers.KindOf(err) == 0 {
 		// A driver that forgot to classify its error still must not
 		// produce a value; count it as a bad reply.

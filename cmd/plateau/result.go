@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"plateau/acquire"
+	"plateau/acquire/api"
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/analysis/report"
@@ -68,4 +69,41 @@ func writeHTMLReport(path string, cfg *config.Config, id store.RunID, r *runResu
 		return fmt.Errorf("write report: %w", err)
 	}
 	return nil
+}
+
+func init() { newReportRenderer = daemonReport }
+
+// daemonReport renders reports for the API from the daemon's store, with the
+// configuration the run was made with when the store kept it.
+func daemonReport(st *store.Store, cfg *config.Config) api.RenderFunc {
+	return func(format string, w io.Writer, runID string) error {
+		id, err := store.ParseRunID(runID)
+		if err != nil {
+			return fmt.Errorf("%w: %v", api.ErrInvalid, err)
+		}
+		run, err := st.Run(id)
+		if err != nil {
+			return fmt.Errorf("%w: %v", api.ErrNotFound, err)
+		}
+		used := cfg
+		if len(run.Config) > 0 {
+			if c, err := config.Parse(run.Config, "run "+id.String()); err == nil {
+				used = c
+			}
+		}
+		res, err := evaluate(st, used, id)
+		if err != nil {
+			return err
+		}
+		info := runInfo(used, id, res.Label, res.At)
+		switch format {
+		case "html":
+			return report.HTML(w, info, res.Result)
+		case "csv":
+			return report.CSV(w, info, res.Result)
+		case "json":
+			return report.JSON(w, info, res.Result)
+		}
+		return fmt.Errorf("%w: format %q: use html, csv or json", api.ErrInvalid, format)
+	}
 }
