@@ -7,6 +7,7 @@ import (
 	"log/slog"
 	"net"
 	"os"
+	"strings"
 	"os/signal"
 	"path/filepath"
 	"sync"
@@ -55,6 +56,9 @@ serve carries it on.`,
 			log, err := newLogger(os.Stderr, stderrSetup(cfg.Log.Level, cfg.Log.Format))
 			if err != nil {
 				return err
+			}
+			if hasSource(cfg) {
+				log.Warn(strings.ReplaceAll(safetyNotice, "\n", " "))
 			}
 			ctx, stop := signal.NotifyContext(cmd.Context(), os.Interrupt, syscall.SIGTERM)
 			defer stop()

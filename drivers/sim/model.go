@@ -141,14 +141,16 @@ func (m *model) friction(t float64) float64 {
 	return min(max(m.play, f-h), f+h)
 }
 
-// restart begins a new segment at t from the current pressure.
+// restart begins a new segment at t from the current pressure. The new
+// step starts from rest (the old segment's rate is not carried over), which
+// is close enough for steps that are seconds apart.
 func (m *model) restart(t, to, tau, shape float64) {
 	m.advance(t)
 	from := m.pressure(max(t, m.t0))
 	m.t0, m.from, m.to, m.tau, m.shape = max(t, m.t0), from, to, tau, shape
 }
 
-// SetPoint moves the source toward pa and ends a vent.
+// setPoint moves the source toward pa and ends a vent.
 func (m *model) setPoint(at time.Time, pa float64) {
 	m.mu.Lock()
 	defer m.mu.Unlock()

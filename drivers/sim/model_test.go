@@ -67,7 +67,9 @@ func TestDeviceErrorTable(t *testing.T) {
 		{"bow at a quarter span (0.75 of peak)", "0 bar", "0 %", "0.03 bar", "0 bar", 4, 0.0225, 0.0225},
 		{"bow vanishes at full scale", "0 bar", "0 %", "0.03 bar", "0 bar", 16, 0, 0},
 		{"dead band splits up and down", "0 bar", "0 %", "0 bar", "0.04 bar", 8, -0.02, 0.02},
+		// 0.02 zero + 0.004 span + 0.0225 bow (x = 0.25) ∓ 0.02 band.
 		{"everything at 4 bar", "0.02 bar", "0.1 %", "0.03 bar", "0.04 bar", 4, 0.0265, 0.0665},
+		// −0.01 zero − 0.024 span (0.2 % of 12) + 0.0225 bow (x = 0.75) ∓ 0.01 band.
 		{"everything at 12 bar", "-0.01 bar", "-0.2 %", "0.03 bar", "0.02 bar", 12, -0.0215, -0.0015},
 		{"zero as % of span", "0.125 %", "0 %", "0 bar", "0 bar", 8, 0.02, 0.02},
 	}
