@@ -30,6 +30,9 @@ type Options struct {
 	Resolve func(config.Instrument) (config.Instrument, error)
 	// Observer receives per-reading and per-point notices for metrics; may be nil.
 	Observer Observer
+	// Dial, when set, reads the device under test instead of its configured
+	// link, once per point: the simulated operator of a simulated dial.
+	Dial drivers.Gauge
 }
 
 // Observer is told about readings and points, for metrics.
@@ -126,10 +129,15 @@ func New(opt Options) (*Engine, error) {
 			// A source's own pressure reading is not needed by the runner.
 			continue
 		}
-		g, err := drivers.OpenGauge(inst, env)
-		if err != nil {
-			e.Close()
-			return nil, err
+		var g drivers.Gauge
+		if inst.Role == config.RoleDevice && opt.Dial != nil {
+			g = opt.Dial
+		} else {
+			var err error
+			if g, err = drivers.OpenGauge(inst, env); err != nil {
+				e.Close()
+				return nil, err
+			}
 		}
 		e.closers = append(e.closers, g.Close)
 		if m, ok := g.(Enterer); ok && inst.Role == config.RoleDevice {
@@ -150,7 +158,7 @@ func New(opt Options) (*Engine, error) {
 			p.onReading = e.checkSafety
 		case config.RoleDevice:
 			e.dut = p
-			if cfg.Device.Kind == "dial" || inst.Link.Kind == config.LinkManual {
+			if cfg.Device.Kind == "dial" || inst.Link.Kind == config.LinkManual || opt.Dial != nil {
 				e.dial = g
 			}
 		default:

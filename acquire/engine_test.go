@@ -31,11 +31,6 @@ func bench(t *testing.T, edit func(*config.Config)) (*acquire.Engine, *store.Sto
 	cfg.Procedure.TopHold = 5 * time.Second
 	cfg.Procedure.Hold = 3 * time.Second
 	cfg.Simulator.Speed = 40
-	for i := range cfg.Instruments {
-		if cfg.Instruments[i].Role == config.RoleDevice {
-			cfg.Instruments[i].SimVia = config.LinkSerial
-		}
-	}
 	if edit != nil {
 		edit(cfg)
 	}

@@ -272,6 +272,7 @@ func (c *Config) validateInstruments(p *Problems) {
 			p.bad(key+".poll", in.Poll.String(), "must be positive")
 		}
 	}
+	c.validateSharedLinks(p)
 	if count[RoleReference] == 0 {
 		p.bad("instruments", "", "no instrument has role: reference; plateau needs a reference standard to compare against")
 	}
@@ -286,6 +287,29 @@ func (c *Config) validateInstruments(p *Problems) {
 	}
 	if count[RoleSource] > 1 {
 		p.bad("instruments", "", "only one instrument may be the pressure source")
+	}
+}
+
+// validateSharedLinks: instruments on one port or gateway share one
+// connection, so they must agree on how it is driven.
+func (c *Config) validateSharedLinks(p *Problems) {
+	first := map[string]int{}
+	for i, in := range c.Instruments {
+		l := in.Link
+		if l.Address == "" || l.Kind == LinkSim || l.Kind == LinkManual {
+			continue
+		}
+		j, seen := first[l.Address]
+		if !seen {
+			first[l.Address] = i
+			continue
+		}
+		o := c.Instruments[j].Link
+		o.UnitID, l.UnitID = 0, 0 // the one thing that may differ on a shared bus
+		if o != l {
+			p.bad(fmt.Sprintf("instruments[%d].link", i), l.Address,
+				"shares its port with instruments[%d] but not its settings: kind, baud, parity, data and stop bits, timeout, retries, backoff and pause must be the same", j)
+		}
 	}
 }
 
@@ -540,7 +564,22 @@ func (c *Config) validateHead(p *Problems) {
 }
 
 func (c *Config) validateSimulator(p *Problems) {
-	s := c.Simulator
+	s := &c.Simulator
+	// The simulated device is the configured device unless told otherwise.
+	if s.Device.Kind == "" {
+		s.Device.Kind = c.Device.Kind
+	}
+	if s.Device.Lower == "" {
+		s.Device.Lower = c.Device.Lower
+	}
+	if s.Device.Upper == "" {
+		s.Device.Upper = c.Device.Upper
+	}
+	for i, in := range c.Instruments {
+		if in.Role == RoleDevice && in.Link.Kind == LinkSim && s.Device.Kind != c.Device.Kind {
+			p.bad("simulator.device.kind", s.Device.Kind, "instruments[%d] is the simulated device, but device.kind is %q: make them the same", i, c.Device.Kind)
+		}
+	}
 	if s.Speed <= 0 || s.Speed > 10000 {
 		p.bad("simulator.speed", fmt.Sprint(s.Speed), "must be above 0 and at most 10000 (times real time)")
 	}

@@ -10,6 +10,7 @@ import (
 	"plateau/acquire/clock"
 	"plateau/acquire/store"
 	"plateau/config"
+	"plateau/drivers"
 	_ "plateau/drivers/all"
 	"plateau/drivers/sim"
 )
@@ -34,11 +35,22 @@ func usesSimulator(cfg *config.Config) bool {
 	return false
 }
 
+// simulatedDial says whether the device under test is the simulator's dial.
+func simulatedDial(cfg *config.Config) bool {
+	for _, in := range cfg.Instruments {
+		if in.Role == config.RoleDevice && in.Link.Kind == config.LinkSim {
+			return cfg.Simulator.Device.Kind == "dial"
+		}
+	}
+	return false
+}
+
 // openBench opens the store, starts the simulated rig if one is configured,
 // and opens every instrument. ctx bounds the rig's servers.
 func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*bench, error) {
 	b := &bench{cfg: cfg, clock: clock.Wall{}}
 	var resolve func(config.Instrument) (config.Instrument, error)
+	var dial drivers.Gauge
 	if usesSimulator(cfg) {
 		if cfg.Simulator.Speed != 1 {
 			b.clock = clock.NewScaled(cfg.Simulator.Speed)
@@ -51,6 +63,9 @@ func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*benc
 			return nil, fmt.Errorf("start simulator: %w", err)
 		}
 		b.rig, resolve = rig, rig.Resolve
+		if simulatedDial(cfg) {
+			dial = rig.Operator() // the simulated operator reads the simulated dial
+		}
 	}
 	st, err := store.Open(cfg.Store.Path, store.Options{Clock: b.clock})
 	if err != nil {
@@ -59,7 +74,7 @@ func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*benc
 	}
 	b.store = st
 	yaml, _ := os.ReadFile(cfg.File)
-	eng, err := acquire.New(acquire.Options{Config: cfg, ConfigYAML: yaml, Store: st, Clock: b.clock, Log: log, Resolve: resolve})
+	eng, err := acquire.New(acquire.Options{Config: cfg, ConfigYAML: yaml, Store: st, Clock: b.clock, Log: log, Resolve: resolve, Dial: dial})
 	if err != nil {
 		b.close()
 		return nil, err
