@@ -23,11 +23,7 @@ func TestKillAndResume(t *testing.T) {
 		t.Skip("builds the program and kills it 20 times")
 	}
 	dir := t.TempDir()
-	bin := filepath.Join(dir, "plateau")
-	build := exec.Command("go", "build", "-o", bin, ".")
-	if out, err := build.CombinedOutput(); err != nil {
-		t.Fatalf("build: %v\n%s", err, out)
-	}
+	bin := plateauBinary(t)
 	cfgText, err := os.ReadFile("../../testdata/config/sim.yaml")
 	if err != nil {
 		t.Fatal(err)

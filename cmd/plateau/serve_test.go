@@ -30,10 +30,7 @@ func TestServeTermAndResume(t *testing.T) {
 		t.Skip("builds the program and runs a calibration on the simulated bench")
 	}
 	dir := t.TempDir()
-	bin := filepath.Join(dir, "plateau")
-	if out, err := exec.Command("go", "build", "-o", bin, ".").CombinedOutput(); err != nil {
-		t.Fatalf("build: %v\n%s", err, out)
-	}
+	bin := plateauBinary(t)
 	cfgText, err := os.ReadFile("../../testdata/config/sim.yaml")
 	if err != nil {
 		t.Fatal(err)
