@@ -1,7 +1,6 @@
 package modbus
 
 import (
-	"encoding/binary"
 	"errors"
 	"io"
 	"testing"
@@ -12,31 +11,16 @@ import (
 
 	"plateau/config"
 	"plateau/drivers"
+	"plateau/drivers/crc16"
 )
 
-// crc16 is CRC-16/MODBUS (poly 0xA001 reflected, init 0xFFFF), REFERENCES.md §9.2.
-func crc16(b []byte) uint16 {
-	crc := uint16(0xFFFF)
-	for _, x := range b {
-		crc ^= uint16(x)
-		for range 8 {
-			if crc&1 != 0 {
-				crc = crc>>1 ^ 0xA001
-			} else {
-				crc >>= 1
-			}
-		}
-	}
-	return crc
-}
-
-func withCRC(b []byte) []byte { return binary.LittleEndian.AppendUint16(b, crc16(b)) }
+func withCRC(b []byte) []byte { return crc16.Append(b) }
 
 // The test's own CRC must match the published check value and example frames
 // before it may fake a device.
 func TestCRCCheckValues(t *testing.T) {
-	if c := crc16([]byte("123456789")); c != 0x4B37 { // REFERENCES §9.2 check value
-		t.Fatalf("crc16(123456789) = %04X", c)
+	if c := crc16.Modbus([]byte("123456789")); c != 0x4B37 { // REFERENCES §9.2 check value
+		t.Fatalf("crc16.Modbus(123456789) = %04X", c)
 	}
 	// REFERENCES §9.1: 01 03 00 6B 00 03 74 17 and 01 03 06 02 2B 00 00 00 64 05 7A.
 	for _, f := range [][]byte{{1, 3, 0, 0x6B, 0, 3, 0x74, 0x17}, {1, 3, 6, 2, 0x2B, 0, 0, 0, 0x64, 0x05, 0x7A}} {

@@ -7,6 +7,7 @@ import (
 	"github.com/simonvetter/modbus"
 
 	"plateau/config"
+	"plateau/drivers/crc16"
 )
 
 // BenchmarkSample evaluates the model 250 ms of clock time after the last
@@ -28,7 +29,7 @@ func BenchmarkSample(b *testing.B) {
 func BenchmarkRTURespond(b *testing.B) {
 	r, _ := newTestRig(b, WithDefaults(config.Simulator{Seed: 1}))
 	resp := &rtuResponder{unit: 1, h: r.bank}
-	frame := appendCRC([]byte{1, 3, 0, 0, 0, 17})
+	frame := crc16.Append([]byte{1, 3, 0, 0, 0, 17})
 	b.ReportAllocs()
 	for b.Loop() {
 		if resp.respond(frame) == nil {

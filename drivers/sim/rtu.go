@@ -5,6 +5,8 @@ import (
 	"errors"
 
 	"github.com/simonvetter/modbus"
+
+	"plateau/drivers/crc16"
 )
 
 // Modbus function codes the responder serves (MODBUS Application Protocol
@@ -40,28 +42,6 @@ const (
 	broadcastUnit = 0
 )
 
-// crc16 is CRC-16/MODBUS: reflected polynomial 0xA001, initial value 0xFFFF,
-// no final XOR (Modbus over Serial Line V1.02 §6.2.2; check value 0x4B37).
-func crc16(b []byte) uint16 {
-	crc := uint16(0xFFFF)
-	for _, c := range b {
-		crc ^= uint16(c)
-		for range 8 {
-			if crc&1 != 0 {
-				crc = crc>>1 ^ 0xA001
-			} else {
-				crc >>= 1
-			}
-		}
-	}
-	return crc
-}
-
-// appendCRC adds the CRC low byte first, as the wire carries it.
-func appendCRC(frame []byte) []byte {
-	return binary.LittleEndian.AppendUint16(frame, crc16(frame))
-}
-
 // rtuResponder turns complete RTU request frames into response frames for
 // one unit id, asking a modbus.RequestHandler for the data.
 type rtuResponder struct {
@@ -77,7 +57,7 @@ func (r *rtuResponder) respond(frame []byte) []byte {
 		return nil
 	}
 	body := frame[:len(frame)-2]
-	if binary.LittleEndian.Uint16(frame[len(frame)-2:]) != crc16(body) {
+	if binary.LittleEndian.Uint16(frame[len(frame)-2:]) != crc16.Modbus(body) {
 		return nil
 	}
 	unit := body[0]
@@ -88,7 +68,7 @@ func (r *rtuResponder) respond(frame []byte) []byte {
 	if unit == broadcastUnit {
 		return nil
 	}
-	return appendCRC(append([]byte{unit}, pdu...))
+	return crc16.Append(append([]byte{unit}, pdu...))
 }
 
 // pdu executes one request PDU and returns the response PDU (or exception).

@@ -7,6 +7,8 @@ import (
 	"testing"
 
 	"github.com/simonvetter/modbus"
+
+	"plateau/drivers/crc16"
 )
 
 // tableHandler is a plain register table for checking the responder
@@ -80,12 +82,12 @@ func unhex(t testing.TB, s string) []byte {
 // CRC-16/MODBUS check value for the ASCII string "123456789" is 0x4B37
 // (REFERENCES.md §9.2; the CRC catalogue's check value for CRC-16/MODBUS).
 func TestCRC16CheckValue(t *testing.T) {
-	if got := crc16([]byte("123456789")); got != 0x4B37 {
+	if got := crc16.Modbus([]byte("123456789")); got != 0x4B37 {
 		t.Fatalf("crc16(\"123456789\") = %#04x, want 0x4B37", got)
 	}
 	// The wire carries the low byte first: CRC 0x1774 appears as 74 17
 	// (REFERENCES.md §9.1, read holding 108–110 of slave 1).
-	if got := appendCRC(unhex(t, "01 03 00 6B 00 03")); !bytes.Equal(got, unhex(t, "01 03 00 6B 00 03 74 17")) {
+	if got := crc16.Append(unhex(t, "01 03 00 6B 00 03")); !bytes.Equal(got, unhex(t, "01 03 00 6B 00 03 74 17")) {
 		t.Fatalf("frame with CRC = % X", got)
 	}
 }
@@ -135,7 +137,7 @@ func TestRTUFramesByteForByte(t *testing.T) {
 }
 
 func appendHex(t *testing.T, s string) string {
-	return hex.EncodeToString(appendCRC(unhex(t, s)))
+	return hex.EncodeToString(crc16.Append(unhex(t, s)))
 }
 
 func TestRTUSilentCases(t *testing.T) {
@@ -172,21 +174,21 @@ func TestRTUExceptions(t *testing.T) {
 		{"absent register", "01 03 00 10 00 01", 0x83, exIllegalDataAddress},
 	}
 	for _, c := range cases {
-		got := r.respond(appendCRC(unhex(t, c.req)))
-		want := appendCRC([]byte{1, c.fc, c.code})
+		got := r.respond(crc16.Append(unhex(t, c.req)))
+		want := crc16.Append([]byte{1, c.fc, c.code})
 		if !bytes.Equal(got, want) {
 			t.Errorf("%s: got % X, want % X", c.name, got, want)
 		}
 	}
 	// FC05 then FC01 through the responder: the coil is set and read back.
-	if got := r.respond(appendCRC(unhex(t, "01 05 00 00 FF 00"))); !bytes.Equal(got, appendCRC(unhex(t, "01 05 00 00 FF 00"))) {
+	if got := r.respond(crc16.Append(unhex(t, "01 05 00 00 FF 00"))); !bytes.Equal(got, crc16.Append(unhex(t, "01 05 00 00 FF 00"))) {
 		t.Fatalf("FC05 reply % X", got)
 	}
-	if got := r.respond(appendCRC(unhex(t, "01 01 00 00 00 01"))); !bytes.Equal(got, appendCRC(unhex(t, "01 01 01 01"))) {
+	if got := r.respond(crc16.Append(unhex(t, "01 01 00 00 00 01"))); !bytes.Equal(got, crc16.Append(unhex(t, "01 01 01 01"))) {
 		t.Fatalf("FC01 reply % X", got)
 	}
 	// FC15 clears it.
-	if got := r.respond(appendCRC(unhex(t, "01 0F 00 00 00 01 01 00"))); !bytes.Equal(got, appendCRC(unhex(t, "01 0F 00 00 00 01"))) {
+	if got := r.respond(crc16.Append(unhex(t, "01 0F 00 00 00 01 01 00"))); !bytes.Equal(got, crc16.Append(unhex(t, "01 0F 00 00 00 01"))) {
 		t.Fatalf("FC15 reply % X", got)
 	}
 	if h.coils[0] {
@@ -199,7 +201,7 @@ func TestRTUExceptions(t *testing.T) {
 func FuzzRTUFrame(f *testing.F) {
 	f.Add(unhex(f, "01 03 00 6B 00 03 74 17"))
 	f.Add(unhex(f, "01 10 00 01 00 02 04 00 0A 01 02 92 30"))
-	f.Add(appendCRC(unhex(f, "01 0F 00 00 00 10 02 FF FF")))
+	f.Add(crc16.Append(unhex(f, "01 0F 00 00 00 10 02 FF FF")))
 	f.Add([]byte{})
 	f.Fuzz(func(t *testing.T, frame []byte) {
 		h := &tableHandler{holding: map[uint16]uint16{0: 1, 1: 2}, input: map[uint16]uint16{0: 3}, coils: map[uint16]bool{0: true, 1: false}}
@@ -208,7 +210,7 @@ func FuzzRTUFrame(f *testing.F) {
 		if got == nil {
 			return
 		}
-		if len(got) < 5 || got[0] != 1 || crc16(got[:len(got)-2]) != uint16(got[len(got)-2])|uint16(got[len(got)-1])<<8 {
+		if len(got) < 5 || got[0] != 1 || crc16.Modbus(got[:len(got)-2]) != uint16(got[len(got)-2])|uint16(got[len(got)-1])<<8 {
 			t.Fatalf("malformed reply % X to % X", got, frame)
 		}
 	})
