@@ -17,6 +17,7 @@ import (
 
 	"plateau/acquire"
 	"plateau/acquire/store"
+	"plateau/analysis/units"
 	"plateau/config"
 )
 
@@ -78,7 +79,7 @@ func runOnce(ctx context.Context, cfg *config.Config, label string, progress io.
 	}
 	done := make(chan struct{})
 	if showBar {
-		go showProgress(ctx, b.engine, progress, done)
+		go showProgress(ctx, b.engine, cfg.Device.Unit, progress, done)
 	}
 	state, reason := b.engine.Wait(ctx)
 	close(done)
@@ -110,7 +111,13 @@ func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (stor
 	return eng.Start(label)
 }
 
-func showProgress(ctx context.Context, eng *acquire.Engine, w io.Writer, done <-chan struct{}) {
+// showProgress draws points done of total, the current step and target, and
+// each instrument's settle state, on a terminal only.
+func showProgress(ctx context.Context, eng *acquire.Engine, unit string, w io.Writer, done <-chan struct{}) {
+	u, err := units.Lookup(unit)
+	if err != nil {
+		u = units.Pascal
+	}
 	st := eng.Status()
 	opts := []progressbar.Option{
 		progressbar.OptionSetWriter(w),
@@ -143,7 +150,11 @@ func showProgress(ctx context.Context, eng *acquire.Engine, w io.Writer, done <-
 				}
 				settle += fmt.Sprintf(" · %s %s", in.Name, mark)
 			}
-			bar.Describe(fmt.Sprintf("%s%s", st.Phase, settle))
+			target := ""
+			if st.Phase != "" {
+				target = fmt.Sprintf(" → %.6g %s", u.FromPa(st.TargetPa), u.Symbol)
+			}
+			bar.Describe(fmt.Sprintf("%s%s%s", st.Phase, target, settle))
 		}
 	}
 }
