@@ -101,6 +101,12 @@ func (n numbers) p(pa float64) string {
 // pu formats a pressure given in Pa, with the unit.
 func (n numbers) pu(pa float64) string { return n.p(pa) + " " + n.u.Symbol }
 
+// spec formats a pressure from a specification (a floor, a limit) with all
+// the digits it was given, so that a small floor is never shown as zero.
+func (n numbers) spec(pa float64) string {
+	return strconv.FormatFloat(n.u.FromPa(pa), 'g', 6, 64) + " " + n.u.Symbol
+}
+
 func pct(v float64) string { return strconv.FormatFloat(v, 'f', 3, 64) + " %" }
 
 func tur(t *float64) string {
@@ -126,7 +132,7 @@ func (n numbers) accuracy(a analysis.Accuracy) string {
 		parts = append(parts, strconv.FormatFloat(a.PercentOfReading, 'g', -1, 64)+" % of reading")
 	}
 	if a.FloorPa != 0 {
-		parts = append(parts, n.pu(a.FloorPa))
+		parts = append(parts, n.spec(a.FloorPa))
 	}
 	return strings.Join(parts, " + ")
 }
@@ -138,7 +144,7 @@ func (n numbers) refUncertainty(r analysis.Reference) string {
 		parts = append(parts, strconv.FormatFloat(r.PercentOfReading, 'g', -1, 64)+" % of reading")
 	}
 	if r.FloorPa != 0 {
-		parts = append(parts, n.pu(r.FloorPa))
+		parts = append(parts, n.spec(r.FloorPa))
 	}
 	return fmt.Sprintf("%s (k = %g)", strings.Join(parts, " + "), r.K)
 }
