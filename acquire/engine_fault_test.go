@@ -223,7 +223,7 @@ func TestFaultRuns(t *testing.T) {
 					}
 				}
 			}},
-		{name: "link_down", dutVia: config.LinkModbusRTU, faults: config.SimFaults{LinkDown: 3 * time.Second, LinkEvery: 25 * time.Second},
+		{name: "link_down", dutVia: config.LinkModbusRTU, faults: config.SimFaults{LinkDown: 5 * time.Second, LinkEvery: 15 * time.Second},
 			saw: func(t *testing.T, b *testBench, id store.RunID) {
 				kindSeen(config.RoleReference, drivers.KindLinkDown)(t, b, id)
 				kindSeen(config.RoleDevice, drivers.KindTimeout)(t, b, id)

@@ -5,7 +5,10 @@ package main
 
 import (
 	"fmt"
+	"log"
+	"log/slog"
 	"os"
+	"strings"
 
 	"github.com/spf13/cobra"
 )
@@ -50,7 +53,23 @@ func defaultConfigPath() string {
 	return "plateau.yaml"
 }
 
+// libraryLog catches what libraries print with the standard log package (the
+// serial back end of the Modbus RTU client reports a failed terminal restore
+// on close that way) and passes it to libraryLogger at debug level, so it
+// neither clutters a terminal nor is lost under `log.level: debug`.
+type libraryLog struct{}
+
+// libraryLogger is the daemon's logger once 'serve' has made it.
+var libraryLogger = slog.New(slog.DiscardHandler)
+
+func (libraryLog) Write(p []byte) (int, error) {
+	libraryLogger.Debug(strings.TrimSpace(string(p)), "from", "library")
+	return len(p), nil
+}
+
 func main() {
+	log.SetFlags(0)
+	log.SetOutput(libraryLog{})
 	if err := newRoot().Execute(); err != nil {
 		fmt.Fprintln(os.Stderr, "plateau:", err)
 		os.Exit(1)

@@ -57,6 +57,7 @@ serve carries it on.`,
 			if err != nil {
 				return err
 			}
+			libraryLogger = log
 			if hasSource(cfg) {
 				log.Warn(strings.ReplaceAll(safetyNotice, "\n", " "))
 			}
