@@ -26,9 +26,12 @@ func (e *Engine) captureDial(ctx context.Context, r *activeRun, s Step, rs Polle
 	deadline := asked.Add(e.cfg.Procedure.Timeout)
 	for {
 		rd, err := e.dial.Read(ctx)
-		e.Sample(e.dut.Name, rd, err)
+		if ctx.Err() != nil {
+			return analysis.Point{}, ctx.Err()
+		}
+		// record stores the reading (good or failed) once and counts it.
+		e.dut.record(rd, err)
 		if err == nil && !rd.Time.Before(asked) {
-			e.dut.record(rd, nil)
 			// The reference window is taken again now, so that it covers
 			// the moment the person read the dial.
 			ref := e.ref.State()
@@ -41,9 +44,6 @@ func (e *Engine) captureDial(ctx context.Context, r *activeRun, s Step, rs Polle
 			}
 			return analysis.Point{Cycle: s.Cycle, Direction: s.Direction, Kind: s.PointKind, Index: s.Index,
 				Nominal: s.TargetPa, Reference: ref.Window, DUT: dut, Note: note}, nil
-		}
-		if ctx.Err() != nil {
-			return analysis.Point{}, ctx.Err()
 		}
 		if e.clk.Now().After(deadline) {
 			return analysis.Point{}, &missedError{fmt.Sprintf("no dial reading entered within %s", e.cfg.Procedure.Timeout)}

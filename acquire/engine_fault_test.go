@@ -190,7 +190,7 @@ func TestFaultRuns(t *testing.T) {
 		rig    []sim.Option
 		saw    evidence
 	}{
-		{name: "drop", dutVia: config.LinkModbusRTU, faults: config.SimFaults{Drop: 0.01},
+		{name: "drop", dutVia: config.LinkModbusRTU, faults: config.SimFaults{Drop: 0.03},
 			rig: []sim.Option{sim.WithDropHold(150 * time.Millisecond)},
 			saw: func(t *testing.T, b *testBench, id store.RunID) {
 				kindSeen(config.RoleReference, drivers.KindTimeout, drivers.KindBadReply)(t, b, id)

@@ -24,6 +24,7 @@ type testBench struct {
 	st  *store.Store
 	rig *sim.Rig
 	cfg *config.Config
+	clk clock.Clock
 }
 
 // benchOption adjusts what bench builds beyond the configuration.
@@ -120,7 +121,7 @@ func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBe
 		}
 		time.Sleep(20 * time.Millisecond)
 	}
-	return &testBench{eng: eng, st: st, rig: rig, cfg: cfg}
+	return &testBench{eng: eng, st: st, rig: rig, cfg: cfg, clk: clk}
 }
 
 // run starts a run and waits (at most limit of wall time) for it to end.

@@ -43,6 +43,9 @@ func (e *Engine) runner(ctx context.Context, r *activeRun) {
 		e.ventQuietly()
 		e.finish(r, store.StateStopped, stop.reason, slog.LevelWarn)
 	case errors.As(cause, &abort):
+		// The safety check vented once already; vent again in case that
+		// command was lost on the link.
+		e.ventQuietly()
 		e.finish(r, store.StateFailed, abort.msg, slog.LevelError)
 	case ctx.Err() != nil:
 		// Shutdown: keep the run resumable; the source holds its setpoint
@@ -69,8 +72,35 @@ func (e *Engine) ventQuietly() {
 	}
 	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Second)
 	defer cancel()
-	if err := e.source.Vent(ctx); err != nil {
+	if err := e.command(ctx, 0, "vent", e.source.Vent); err != nil {
 		e.log.Error("vent failed: vent the system by hand before disconnecting", "err", err)
+	}
+}
+
+// command sends one command to the source and, when it fails, sends it
+// again until it succeeds, ctx ends or the point time-out has passed: a
+// setpoint or vent lost to one dropped reply or a short link outage must
+// not end an unattended run. Both commands are idempotent, so a repeat of
+// one that did arrive does no harm. run 0 logs without an event.
+func (e *Engine) command(ctx context.Context, run store.RunID, what string, do func(context.Context) error) error {
+	deadline := e.clk.Now().Add(e.cfg.Procedure.Timeout)
+	wait := e.tick()
+	for attempt := 1; ; attempt++ {
+		err := do(ctx)
+		if err == nil || ctx.Err() != nil || e.clk.Now().After(deadline) {
+			return err
+		}
+		if attempt == 1 && run != 0 {
+			e.emit(run, slog.LevelWarn, "source", "", fmt.Sprintf("%s failed, sending it again: %v", what, err), nil)
+		} else {
+			e.log.Warn("source command failed, sending it again", "command", what, "attempt", attempt, "err", err)
+		}
+		select {
+		case <-ctx.Done():
+			return err
+		case <-e.clk.After(wait):
+		}
+		wait = min(2*wait, 10*time.Second)
 	}
 }
 
@@ -241,8 +271,9 @@ func (e *Engine) setPressure(ctx context.Context, r *activeRun, target float64, 
 		e.emit(r.id, slog.LevelInfo, "operator", "", fmt.Sprintf("set the pressure to %s %s", e.fmtPa(target), how), map[string]float64{"target_pa": target})
 		return nil
 	}
-	if err := e.source.SetPoint(ctx, target); err != nil {
-		return fmt.Errorf("setpoint %s: %w", e.fmtPa(target), err)
+	what := "setpoint " + e.fmtPa(target)
+	if err := e.command(ctx, r.id, what, func(ctx context.Context) error { return e.source.SetPoint(ctx, target) }); err != nil {
+		return fmt.Errorf("%s: %w", what, err)
 	}
 	return nil
 }
@@ -297,7 +328,7 @@ func (e *Engine) capture(ctx context.Context, r *activeRun, s Step) (analysis.Po
 	up := s.Direction == analysis.Ascending
 	note := ""
 	for attempt := 0; ; attempt++ {
-		if err := e.approach(ctx, r, s); err != nil {
+		if err := e.approach(ctx, r, s, attempt > 0); err != nil {
 			return analysis.Point{}, err
 		}
 		changed := e.clk.Now()
@@ -377,12 +408,14 @@ func wrongSide(w analysis.Window, target, band float64, up bool) bool {
 }
 
 // approach sets the pressure so the target is reached from the series'
-// side: ascending points from below, descending points from above.
-func (e *Engine) approach(ctx context.Context, r *activeRun, s Step) error {
+// side: ascending points from below, descending points from above. After
+// the pressure went past the target once (careful), it retreats and creeps
+// up on the target instead of stepping onto it.
+func (e *Engine) approach(ctx context.Context, r *activeRun, s Step, careful bool) error {
 	target := s.TargetPa
 	if s.PointKind != analysis.Measurement {
 		if e.source != nil {
-			if err := e.source.Vent(ctx); err != nil {
+			if err := e.command(ctx, r.id, "vent for the zero reading", e.source.Vent); err != nil {
 				return fmt.Errorf("vent for the zero reading: %w", err)
 			}
 			return nil
@@ -392,7 +425,7 @@ func (e *Engine) approach(ctx context.Context, r *activeRun, s Step) error {
 	up := s.Direction == analysis.Ascending
 	last := e.ref.State().Last.Pa
 	lower, upper := e.cfg.Device.LowerPa, e.cfg.Device.UpperPa
-	if e.source != nil && ((up && last > target+e.band()) || (!up && last < target-e.band())) {
+	if e.source != nil && (careful || (up && last > target+e.band()) || (!up && last < target-e.band())) {
 		via := target - e.margin()
 		if !up {
 			via = target + e.margin()
@@ -405,6 +438,11 @@ func (e *Engine) approach(ctx context.Context, r *activeRun, s Step) error {
 			if err := e.waitNear(ctx, via); err != nil {
 				return err
 			}
+			if careful {
+				if err := e.creep(ctx, r, target, via); err != nil {
+					return err
+				}
+			}
 		}
 	}
 	how := "rising to it from below"
@@ -412,4 +450,44 @@ func (e *Engine) approach(ctx context.Context, r *activeRun, s Step) error {
 		how = "falling to it from above"
 	}
 	return e.setPressure(ctx, r, target, "("+how+")")
+}
+
+// creep closes in on target from a steady pressure at from, in steps of
+// two thirds of the remaining distance, each waited out until the
+// reference holds steady. A controller that overshoots by less than half a
+// step then never carries the pressure past the target, and the last step
+// (which the caller makes) is no larger than the device's resolution, so
+// its overshoot stays inside the device's dead band and the pointer stays
+// on the branch of the series' direction (common practice: approach a
+// point slowly and never reverse onto it).
+func (e *Engine) creep(ctx context.Context, r *activeRun, target, from float64) error {
+	fine := math.Max(e.cfg.Device.ResolutionPa, 1e-4*(e.cfg.Device.UpperPa-e.cfg.Device.LowerPa))
+	for d := from - target; ; d /= 3 {
+		if err := e.waitSteady(ctx, target+d); err != nil {
+			return err
+		}
+		if math.Abs(d) <= fine {
+			return nil
+		}
+		if err := e.setPressure(ctx, r, target+d/3, ""); err != nil {
+			return err
+		}
+	}
+}
+
+// waitSteady waits until the reference is settled within the band of pa,
+// for at most the point time-out.
+func (e *Engine) waitSteady(ctx context.Context, pa float64) error {
+	from := e.clk.Now()
+	e.ref.restart(from, pa, true)
+	deadline := from.Add(e.cfg.Procedure.Timeout)
+	for !e.ref.State().Settled {
+		if e.clk.Now().After(deadline) {
+			return &missedError{fmt.Sprintf("the reference did not hold steady at %s within %s", e.fmtPa(pa), e.cfg.Procedure.Timeout)}
+		}
+		if err := e.sleep(ctx, e.tick()); err != nil {
+			return err
+		}
+	}
+	return nil
 }

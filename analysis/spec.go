@@ -4,10 +4,9 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"sort"
-	"strconv"
 	"strings"
 
+	"plateau/analysis/limits"
 	"plateau/analysis/units"
 )
 
@@ -36,28 +35,6 @@ type Accuracy struct {
 	FloorPa          float64 `json:"floor_pa,omitempty"`           // custom constant limit, Pa
 }
 
-// en837Classes are the accuracy classes of EN 837-1:1996 Table 11; the MPE is
-// the class number in % of span.
-var en837Classes = []float64{0.1, 0.25, 0.6, 1, 1.6, 2.5, 4}
-
-// asmeGrade is an ASME B40.100 accuracy grade: permissible error in % of span
-// in the first and last quarter of the scale and in the middle half.
-type asmeGrade struct{ outer, middle float64 }
-
-// asmeGrades: 4A, A and D from secondary sources quoting ASME B40.100;
-// 3A, 2A, 1A, B and C are from memory, not yet confirmed against the
-// standard (REFERENCES.md §2.2).
-var asmeGrades = map[string]asmeGrade{
-	"4A": {0.1, 0.1},
-	"3A": {0.25, 0.25}, // from memory
-	"2A": {0.5, 0.5},   // from memory
-	"1A": {1, 1},       // from memory
-	"A":  {2, 1},
-	"B":  {3, 2}, // from memory
-	"C":  {4, 3}, // from memory
-	"D":  {5, 5},
-}
-
 // quarterTolerance keeps a reference value that sits on a quarter-span
 // boundary in the middle half although unit conversion moved it by a few
 // parts in 10¹⁶; no pressure reading is that exact.
@@ -70,34 +47,21 @@ const quarterTolerance = 1e-9
 // text we have does not say which side owns the boundary, so we take the
 // stricter reading, which can only make a verdict more conservative.
 func ASMEGradeLimitPercent(grade string, f float64) (float64, error) {
-	g, ok := asmeGrades[strings.ToUpper(strings.TrimSpace(grade))]
-	if !ok {
-		return 0, fmt.Errorf("unknown ASME B40.100 grade %q (known: %s)", grade, strings.Join(ASMEGrades(), ", "))
+	g, err := limits.Grade(grade)
+	if err != nil {
+		return 0, err
 	}
 	if f >= 0.25-quarterTolerance && f <= 0.75+quarterTolerance {
-		return g.middle, nil
+		return g.Middle, nil
 	}
-	return g.outer, nil
+	return g.Outer, nil
 }
 
 // ASMEGrades lists the known ASME B40.100 grades, tightest first.
-func ASMEGrades() []string {
-	out := make([]string, 0, len(asmeGrades))
-	for k := range asmeGrades {
-		out = append(out, k)
-	}
-	sort.Slice(out, func(i, j int) bool {
-		gi, gj := asmeGrades[out[i]], asmeGrades[out[j]]
-		if gi.outer != gj.outer {
-			return gi.outer < gj.outer
-		}
-		return gi.middle < gj.middle
-	})
-	return out
-}
+func ASMEGrades() []string { return limits.ASMEGrades() }
 
 // EN837Classes lists the EN 837-1 accuracy classes.
-func EN837Classes() []float64 { return append([]float64(nil), en837Classes...) }
+func EN837Classes() []float64 { return limits.EN837Classes() }
 
 func (a Accuracy) set() bool {
 	return a.EN837Class != 0 || a.ASMEGrade != "" || a.PercentOfSpan != 0 || a.PercentOfReading != 0 || a.FloorPa != 0
@@ -107,20 +71,8 @@ func (a Accuracy) validate() error {
 	if !a.set() {
 		return errors.New("no accuracy specification: give an EN 837-1 class, an ASME B40.100 grade or a custom limit")
 	}
-	if a.EN837Class != 0 {
-		ok := false
-		for _, c := range en837Classes {
-			if a.EN837Class == c {
-				ok = true
-			}
-		}
-		if !ok {
-			names := make([]string, len(en837Classes))
-			for i, c := range en837Classes {
-				names[i] = strconv.FormatFloat(c, 'g', -1, 64)
-			}
-			return fmt.Errorf("EN 837-1 class %g is not in Table 11 (known: %s)", a.EN837Class, strings.Join(names, ", "))
-		}
+	if a.EN837Class != 0 && !limits.IsEN837Class(a.EN837Class) {
+		return fmt.Errorf("EN 837-1 class %g is not in Table 11 (known: %s)", a.EN837Class, strings.Join(limits.EN837ClassNames(), ", "))
 	}
 	if a.ASMEGrade != "" {
 		if _, err := ASMEGradeLimitPercent(a.ASMEGrade, 0.5); err != nil {

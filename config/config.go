@@ -147,6 +147,7 @@ type Safety struct {
 	MaxPressure string `mapstructure:"max_pressure"` // never to be exceeded; vent and abort above it
 
 	MaxPressurePa float64 `mapstructure:"-"`
+	Set           bool    `mapstructure:"-"` // the limit is in force (the device range is valid)
 }
 
 // Head is the liquid-head correction between the reference's and the DUT's

@@ -10,6 +10,7 @@ import (
 	"strings"
 	"time"
 
+	"plateau/analysis/limits"
 	"plateau/analysis/units"
 )
 
@@ -18,10 +19,8 @@ var baudRates = []int{300, 600, 1200, 1800, 2400, 4800, 9600, 14400, 19200, 2880
 
 // EN 837-1 Table 11 accuracy classes and ASME B40.100 grades accepted in device.class / device.grade.
 var (
-	classes = []string{"0.1", "0.25", "0.6", "1", "1.6", "2.5", "4"}
-	grades  = []string{"4A", "3A", "2A", "1A", "A", "B", "C", "D"}
-	// tightest % of span of each grade, used only to derive settle defaults
-	gradeTightest = map[string]float64{"4A": 0.1, "3A": 0.25, "2A": 0.5, "1A": 1, "A": 1, "B": 2, "C": 3, "D": 5}
+	classes = limits.EN837ClassNames()
+	grades  = limits.ASMEGrades()
 )
 
 var (
@@ -39,8 +38,10 @@ var (
 	compares   = []string{"set-by-reference", "set-by-device"}
 	decisions  = []string{"simple", "guarded", "four-state"}
 	devKinds   = []string{"digital", "transmitter", "dial"}
-	levels     = []string{"debug", "info", "warn", "error"}
-	formats    = []string{"auto", "text", "json"}
+	// Gases that are oil-free and do not burn, for oxygen-service gauges.
+	oxygenSafeMedia = []string{"air", "dry air", "synthetic air", "nitrogen", "oxygen", "argon", "helium", "carbon dioxide"}
+	levels          = []string{"debug", "info", "warn", "error"}
+	formats         = []string{"auto", "text", "json"}
 )
 
 func oneOf(p *Problems, key, val string, allowed []string) bool {
@@ -163,6 +164,9 @@ func (c *Config) validateDevice(p *Problems) {
 		if r <= 0 {
 			p.bad("device.resolution", d.Resolution, "must be above zero: the smallest step the device shows or that can be read off its dial")
 		}
+		if okLo && okHi && r >= hi-lo {
+			p.bad("device.resolution", d.Resolution, "is not smaller than the span %s … %s: check the unit", d.Lower, d.Upper)
+		}
 		d.ResolutionPa = r
 	}
 	n := 0
@@ -192,8 +196,9 @@ func (c *Config) validateDevice(p *Problems) {
 	case n > 1:
 		p.bad("device", "", "give only one of device.class, device.grade and device.limit")
 	}
-	if d.Oxygen && strings.Contains(strings.ToLower(d.Medium), "oil") {
-		p.bad("device.medium", d.Medium, "an oxygen-service gauge must never see oil: calibrate it with clean, oil-free, non-flammable gas")
+	if d.Oxygen && !slices.Contains(oxygenSafeMedia, strings.ToLower(strings.TrimSpace(d.Medium))) {
+		p.bad("device.medium", d.Medium, "an oxygen-service gauge is calibrated only with clean, oil-free, non-flammable gas (one of %s), never with oil or on an oil-filled comparator",
+			strings.Join(oxygenSafeMedia, ", "))
 	}
 }
 
@@ -206,7 +211,8 @@ func (d *Device) tolerancePa() float64 {
 		f, _ := strconv.ParseFloat(d.Class, 64)
 		return f / 100 * span
 	case d.Grade != "":
-		return gradeTightest[d.Grade] / 100 * span
+		g, _ := limits.Grade(d.Grade)
+		return g.Tightest() / 100 * span
 	}
 	return d.Limit.SpanPct/100*span + d.Limit.ReadingPct/100*math.Abs(d.UpperPa) + d.Limit.FloorPa
 }
@@ -429,15 +435,34 @@ func validateValue(p *Problems, key string, v ValueRead) {
 	}
 }
 
+// The safety limit sits a little above full scale, as a fraction of span:
+// room for noise and a small overshoot at the top point, not a real
+// over-range (common practice; gauges take full scale only briefly). The
+// default is defaultOverRange; an explicit limit may go up to maxOverRange.
+const (
+	defaultOverRange = 0.02
+	maxOverRange     = 0.05
+)
+
 func (c *Config) validateSafety(p *Problems) {
 	s := &c.Safety
-	d := c.Device
-	if s.MaxPressure == "" {
-		if d.UpperPa > d.LowerPa {
-			// Full scale plus 2 % of span leaves room for noise at the top point
-			// without allowing a real over-range.
-			s.MaxPressurePa = d.UpperPa + 0.02*(d.UpperPa-d.LowerPa)
+	d, r := c.Device, c.Reference
+	if d.UpperPa <= d.LowerPa {
+		return // the device range is wrong and already reported
+	}
+	// The highest limit: the lower of the two full scales, each with an
+	// over-range allowance.
+	limit := func(allow float64) float64 {
+		l := d.UpperPa + allow*(d.UpperPa-d.LowerPa)
+		if r.UpperPa > r.LowerPa {
+			l = math.Min(l, r.UpperPa+allow*(r.UpperPa-r.LowerPa))
 		}
+		return l
+	}
+	ceiling := limit(maxOverRange)
+	s.Set = true
+	if s.MaxPressure == "" {
+		s.MaxPressurePa = limit(defaultOverRange)
 		return
 	}
 	mp, ok := pressure(p, "safety.max_pressure", s.MaxPressure, true)
@@ -445,12 +470,22 @@ func (c *Config) validateSafety(p *Problems) {
 		return
 	}
 	s.MaxPressurePa = mp
-	if d.UpperPa > 0 && mp < d.UpperPa {
+	if mp < d.UpperPa {
 		p.bad("safety.max_pressure", s.MaxPressure, "is below the device's full scale (%s): the top point could never be reached", d.Upper)
 	}
-	if c.Reference.UpperPa > 0 && mp > c.Reference.UpperPa*1.1 {
-		p.bad("safety.max_pressure", s.MaxPressure, "is more than 10 %% above the reference's upper limit (%s)", c.Reference.Upper)
+	if mp > ceiling*(1+1e-12) {
+		p.bad("safety.max_pressure", s.MaxPressure, "is above the lower of the device's and the reference's full scale plus %g %% of span (%s): never exceed a gauge's range",
+			maxOverRange*100, formatPa(ceiling, d.Unit))
 	}
+}
+
+// formatPa writes a pressure in the named unit for a message.
+func formatPa(pa float64, unit string) string {
+	u, err := units.Lookup(unit)
+	if err != nil {
+		u = units.Pascal
+	}
+	return strconv.FormatFloat(u.FromPa(pa), 'g', 6, 64) + " " + u.Symbol
 }
 
 func (c *Config) validateProcedure(p *Problems) {
@@ -461,6 +496,12 @@ func (c *Config) validateProcedure(p *Problems) {
 	oneOf(p, "procedure.compare", pr.Compare, compares)
 	oneOf(p, "procedure.decision", pr.Decision, decisions)
 	span := d.UpperPa - d.LowerPa
+	if pr.Mode == "free" && d.Kind == "dial" {
+		p.bad("procedure.mode", pr.Mode, "free runs capture the plateaus both instruments hold; a dial read by a person has no readings between entries: use mode plan")
+	}
+	if span <= 0 {
+		return // the device range is wrong and already reported; points cannot be judged
+	}
 	if pr.Mode == "plan" && len(pr.Points) == 0 {
 		p.bad("procedure.points", "", "a plan needs at least one point")
 	}
@@ -557,6 +598,9 @@ func (c *Config) validateHead(p *Problems) {
 	}
 	if math.Abs(h.ReferenceHeight-h.DeviceHeight) > 10 {
 		p.bad("head.device_height", fmt.Sprint(h.DeviceHeight), "more than 10 m from the reference's height: heights are in metres")
+	}
+	if c.Device.Oxygen && h.FluidDensity > 50 {
+		p.bad("head.fluid_density", fmt.Sprint(h.FluidDensity), "is the density of a liquid, but the device is for oxygen service: it must see only clean, oil-free gas")
 	}
 	if h.HeightUncertainty < 0 || h.DensityUncertainty < 0 {
 		p.bad("head", "", "uncertainties cannot be negative")

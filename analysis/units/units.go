@@ -94,11 +94,17 @@ func normalise(s string) string {
 	}, s)
 }
 
-// Lookup finds a unit by symbol or common spelling, case-insensitively.
-// Case matters for nothing in the list: "MPa" and "mpa" mean the same, since
-// no accepted spelling is ambiguous (millipascal is not accepted).
+// Lookup finds a unit by symbol or common spelling. Case is ignored except
+// where it is a prefix: "m" is milli and "M" mega, so "mPa" (a millipascal,
+// which plateau does not accept) is never taken for MPa, nor "Mbar" for mbar.
+// All capitals ("MBAR", "KPA") are read as the one unit they can mean.
 func Lookup(name string) (Unit, error) {
 	if u, ok := aliases[normalise(name)]; ok {
+		t := strings.TrimSpace(name)
+		if t != "" && (t[0] == 'm' || t[0] == 'M') && t[0] != u.Symbol[0] && t != strings.ToUpper(t) {
+			return Unit{}, fmt.Errorf("pressure unit %q: m is milli and M is mega; plateau knows %q (%s) but not %q",
+				name, u.Symbol, u.Name, t)
+		}
 		return u, nil
 	}
 	return Unit{}, fmt.Errorf("unknown pressure unit %q (known: %s)", name, strings.Join(Symbols(), ", "))

@@ -81,6 +81,15 @@ func TestParseQuantity(t *testing.T) {
 		{in: "bar", errFrag: "does not start with a number"},
 		{in: "", errFrag: "empty"},
 		{in: "16 furlongs", errFrag: "unknown pressure unit"},
+		// Case is a prefix for m and M (SI brochure: m = milli, M = mega).
+		{in: "50 mPa", errFrag: "m is milli and M is mega"},
+		{in: "5 Mbar", errFrag: "m is milli and M is mega"},
+		{in: "5 mpa", errFrag: "m is milli and M is mega"},
+		{in: "5 MPA", wantPa: 5e6},
+		{in: "5 MBAR", wantPa: 500},
+		{in: "5 mmhg", wantPa: 5 * 133.322387415},
+		{in: "5 torr", wantPa: 5 * 101325.0 / 760},
+		{in: "5 KPA", wantPa: 5000},
 		{in: "1e999 bar", errFrag: "bad number"},
 	}
 	for _, c := range cases {
