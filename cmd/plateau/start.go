@@ -27,11 +27,7 @@ configured procedure and prints its id. Follow it with 'plateau tail'.`,
 		if err != nil {
 			return err
 		}
-		// The daemon's configuration may not be readable here; when it is
-		// and it names no pressure source, the cautions are not needed.
-		if cfg, err := config.Load(configPath); err != nil || hasSource(cfg) {
-			fmt.Fprintln(cmd.ErrOrStderr(), safetyNotice)
-		}
+		showCautions(cmd)
 		id, err := c.Start(cmd.Context(), api.StartRequest{Label: label})
 		if err != nil {
 			return err
@@ -40,4 +36,13 @@ configured procedure and prints its id. Follow it with 'plateau tail'.`,
 		return nil
 	}
 	return cmd
+}
+
+// showCautions prints the safety notice before a call that makes the daemon
+// drive its pressure source. The daemon's configuration may not be readable
+// here; only when it is and it names no source are the cautions left out.
+func showCautions(cmd *cobra.Command) {
+	if cfg, err := config.Load(configPath); err != nil || hasSource(cfg) {
+		fmt.Fprintln(cmd.ErrOrStderr(), safetyNotice)
+	}
 }

@@ -51,6 +51,7 @@ func newResumeCmd() *cobra.Command {
 	}
 	df := addDaemonFlags(cmd)
 	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
+		showCautions(cmd) // resuming approaches the step's pressure again
 		return runControl(cmd, df, "resumed", (*api.Client).Resume)
 	}
 	return cmd
