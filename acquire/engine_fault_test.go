@@ -262,6 +262,7 @@ func TestFaultRuns(t *testing.T) {
 			t.Logf("%d failed reads inside captured windows, left out of them", left)
 			checkErrors(t, b.rig, pts, len(b.cfg.Procedure.PointsPa)-1, 0.012e5)
 			tc.saw(t, b, id)
+			t.Logf("%d source commands sent again after a failure", len(eventsOf(b.events(t, id), "source")))
 		})
 	}
 }
