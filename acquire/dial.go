@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"log/slog"
+	"math"
+	"time"
 
 	"plateau/acquire/settle"
 	"plateau/analysis"
@@ -11,48 +13,101 @@ import (
 	"plateau/drivers"
 )
 
-// captureDial pairs the settled reference window with one reading of an
-// analog dial typed by a person (or by the simulated operator). In
-// set-by-device mode the pointer is brought onto the scale mark and the DUT
-// reading is the mark itself.
-func (e *Engine) captureDial(ctx context.Context, r *activeRun, s Step, rs PollerState, note string) (analysis.Point, error) {
-	asked := e.clk.Now()
+// captureDial pairs a reading of an analog dial, typed by a person (or by
+// the simulated operator), with the reference window that was settled when
+// the dial was read. In set-by-device mode the pointer must stand on the
+// scale mark: an entry off the mark is refused, and with a pressure source
+// the setpoint is corrected by the difference and the dial read again.
+func (e *Engine) captureDial(ctx context.Context, r *activeRun, s Step, note string) (analysis.Point, error) {
+	// Zero readings are taken vented: there is no mark to set the pointer on.
+	onMark := e.cfg.Procedure.Compare == "set-by-device" && s.PointKind == analysis.Measurement
+	deadline := e.clk.Now().Add(e.cfg.Procedure.Timeout)
 	how := "read the dial and enter its indication"
-	if e.cfg.Procedure.Compare == "set-by-device" {
-		how = "bring the pointer exactly onto the mark, then confirm by entering the mark's value"
+	if onMark {
+		how = "bring the pointer exactly onto the mark, then enter the mark's value"
 	}
-	e.emit(r.id, slog.LevelInfo, "enter", e.dut.Name,
-		fmt.Sprintf("%s: %s (target %s)", s, how, e.fmtPa(s.TargetPa)), map[string]float64{"target_pa": s.TargetPa})
-	deadline := asked.Add(e.cfg.Procedure.Timeout)
+	for adjust := 0; ; adjust++ {
+		asked := e.clk.Now()
+		e.emit(r.id, slog.LevelInfo, "enter", e.dut.Name,
+			fmt.Sprintf("%s: %s (target %s)", s, how, e.fmtPa(s.TargetPa)), map[string]float64{"target_pa": s.TargetPa})
+		rd, err := e.nextDialReading(ctx, asked, deadline)
+		if err != nil {
+			return analysis.Point{}, err
+		}
+		// The reference window must be settled and cover the moment the
+		// dial was read; an older window is never paired with the entry.
+		ref := e.ref.State()
+		if !ref.Settled || rd.Time.Before(ref.Window.Start) || !e.current(ref, rd.Time) {
+			e.emit(r.id, slog.LevelWarn, "enter", e.dut.Name,
+				fmt.Sprintf("%s: the reference was not steady when the dial was read; waiting for it, then read the dial again", s), nil)
+			if err := e.waitReferenceSettled(ctx, deadline); err != nil {
+				return analysis.Point{}, err
+			}
+			continue
+		}
+		if off := s.TargetPa - rd.Pa; onMark && math.Abs(off) > e.cfg.Device.ResolutionPa/2*(1+1e-9) {
+			if next := e.setpoint + off; e.source != nil && next < e.cfg.Device.LowerPa {
+				// Below the lower range value the source cannot go (a vented
+				// gauge at its stop): take the dial as it reads.
+				note = joinNote(note, "pointer could not be brought onto the mark; taken as read")
+			} else if e.source == nil || adjust >= 5 {
+				e.emit(r.id, slog.LevelWarn, "enter", e.dut.Name,
+					fmt.Sprintf("%s: the entry %s is not the mark %s: bring the pointer onto the mark and enter again", s, e.fmtPa(rd.Pa), e.fmtPa(s.TargetPa)), nil)
+				continue
+			} else {
+				// Move the pressure by what the pointer is off the mark.
+				if err := e.setPressure(ctx, r, e.setpoint+off, "(bringing the pointer onto the mark)"); err != nil {
+					return analysis.Point{}, err
+				}
+				e.ref.restart(e.clk.Now().Add(e.cfg.Procedure.Hold), 0, false)
+				if err := e.waitReferenceSettled(ctx, deadline); err != nil {
+					return analysis.Point{}, err
+				}
+				continue
+			}
+		}
+		dut := analysis.Window{Mean: rd.Pa, Count: 1, Start: rd.Time, End: rd.Time}
+		return analysis.Point{Cycle: s.Cycle, Direction: s.Direction, Kind: s.PointKind, Index: s.Index,
+			Nominal: s.TargetPa, Reference: ref.Window, DUT: dut, Note: note}, nil
+	}
+}
+
+// nextDialReading waits for a dial reading entered after asked.
+func (e *Engine) nextDialReading(ctx context.Context, asked, deadline time.Time) (drivers.Reading, error) {
 	for {
 		rd, err := e.dial.Read(ctx)
 		if ctx.Err() != nil {
-			return analysis.Point{}, ctx.Err()
+			return drivers.Reading{}, ctx.Err()
 		}
 		// record stores the reading (good or failed) once and counts it.
 		e.dut.record(rd, err)
 		if err == nil && !rd.Time.Before(asked) {
-			// The reference window is taken again now, so that it covers
-			// the moment the person read the dial.
-			ref := e.ref.State()
-			if !ref.Settled {
-				ref = rs
-			}
-			dut := analysis.Window{Mean: rd.Pa, Count: 1, Start: rd.Time, End: rd.Time}
-			if e.cfg.Procedure.Compare == "set-by-device" {
-				dut.Mean = s.TargetPa
-			}
-			return analysis.Point{Cycle: s.Cycle, Direction: s.Direction, Kind: s.PointKind, Index: s.Index,
-				Nominal: s.TargetPa, Reference: ref.Window, DUT: dut, Note: note}, nil
+			return rd, nil
 		}
 		if e.clk.Now().After(deadline) {
-			return analysis.Point{}, &missedError{fmt.Sprintf("no dial reading entered within %s", e.cfg.Procedure.Timeout)}
+			return drivers.Reading{}, &missedError{fmt.Sprintf("no dial reading entered within %s", e.cfg.Procedure.Timeout)}
 		}
 		if err != nil && drivers.KindOf(err) != drivers.KindTimeout {
 			e.log.Warn("dial reading not usable", "err", err)
 		}
 		if err := e.sleep(ctx, e.tick()); err != nil {
-			return analysis.Point{}, err
+			return drivers.Reading{}, err
+		}
+	}
+}
+
+// waitReferenceSettled waits until the reference holds a live settled window.
+func (e *Engine) waitReferenceSettled(ctx context.Context, deadline time.Time) error {
+	for {
+		now := e.clk.Now()
+		if st := e.ref.State(); st.Settled && e.current(st, now) {
+			return nil
+		}
+		if now.After(deadline) {
+			return &missedError{"the reference did not settle: " + e.ref.State().Why}
+		}
+		if err := e.sleep(ctx, e.tick()); err != nil {
+			return err
 		}
 	}
 }
@@ -124,4 +179,11 @@ func formatIn(pa float64, unit string) string {
 		return fmt.Sprintf("%.6g Pa", pa)
 	}
 	return fmt.Sprintf("%.6g %s", u.FromPa(pa), u.Symbol)
+}
+
+func joinNote(a, b string) string {
+	if a == "" {
+		return b
+	}
+	return a + "; " + b
 }

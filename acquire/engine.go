@@ -2,12 +2,15 @@ package acquire
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"log/slog"
 	"math"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"plateau/acquire/clock"
@@ -63,6 +66,12 @@ type Engine struct {
 	ready    chan struct{} // closed once Serve has resumed any unfinished run
 	closers  []func() error
 
+	plan string // fingerprint of the plan, kept in each run's cursor
+	// setpoint is the last pressure the runner asked for (runner goroutine only).
+	setpoint float64
+	// overPressure is set while the reference is above the safety limit.
+	overPressure atomic.Bool
+
 	mu      sync.Mutex
 	run     *activeRun
 	started bool
@@ -107,6 +116,7 @@ func New(opt Options) (*Engine, error) {
 	if cfg.Procedure.Mode == "plan" {
 		e.steps = Plan(cfg.Procedure, cfg.Device.LowerPa)
 	}
+	e.plan = planPrint(cfg.Procedure.Mode, e.steps)
 	env := drivers.OpenEnv{Log: opt.Log, Clock: opt.Clock}
 	rules := settleRules(cfg)
 	for _, inst := range cfg.Instruments {
@@ -155,7 +165,7 @@ func New(opt Options) (*Engine, error) {
 		switch inst.Role {
 		case config.RoleReference:
 			e.ref = p
-			p.onReading = e.checkSafety
+			p.onRead = e.checkSafety
 		case config.RoleDevice:
 			e.dut = p
 			if cfg.Device.Kind == "dial" || inst.Link.Kind == config.LinkManual || opt.Dial != nil {
@@ -270,27 +280,48 @@ func (e *Engine) Sample(instrument string, r drivers.Reading, err error) {
 	}
 }
 
-// checkSafety runs on the reference poller for every good reading: above the
-// safety limit the source is vented at once and the run aborted.
-func (e *Engine) checkSafety(r drivers.Reading) {
-	limit := e.cfg.Safety.MaxPressurePa
-	if limit <= 0 || r.Pa <= limit {
+// checkSafety runs on the reference poller for every reading: above the
+// safety limit, or when the reference itself says it is over its range, the
+// run is aborted (so that no further setpoint is sent) and the source vented
+// at once. The alarm is raised once per excursion, not for every reading.
+func (e *Engine) checkSafety(r drivers.Reading, err error) {
+	lim := e.cfg.Safety
+	var msg string
+	switch {
+	case err == nil && lim.Set && r.Pa > lim.MaxPressurePa:
+		msg = fmt.Sprintf("over-pressure: reference reads %s, above the safety limit %s", e.fmtPa(r.Pa), e.fmtPa(lim.MaxPressurePa))
+	case err != nil && drivers.KindOf(err) == drivers.KindOverload:
+		msg = fmt.Sprintf("over-pressure: the reference reports over-range (%v)", err)
+	case err != nil && drivers.KindOf(err) == drivers.KindOutOfRange && r.Raw > drivers.LoopValidHigh:
+		msg = fmt.Sprintf("over-pressure: the reference's loop current is above its range (%v)", err)
+	default:
+		if err == nil {
+			e.overPressure.Store(false) // back below the limit: the next excursion alarms again
+		}
 		return
+	}
+	if e.overPressure.Swap(true) {
+		return // already handled this excursion
 	}
 	e.mu.Lock()
 	run := e.run
 	e.mu.Unlock()
-	if e.source != nil {
+	if run != nil {
+		run.cancel(&abortError{msg + "; source vented, run aborted"})
+	}
+	vented := e.source != nil
+	if vented {
 		ctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
-		if err := e.source.Vent(ctx); err != nil {
-			e.log.Error("vent after over-pressure failed: vent by hand", "err", err)
+		if verr := e.source.Vent(ctx); verr != nil {
+			vented = false
+			e.log.Error("vent after over-pressure failed: vent by hand", "err", verr)
 		}
 		cancel()
 	}
-	msg := fmt.Sprintf("over-pressure: reference reads %.6g Pa, above the safety limit %.6g Pa; source vented, run aborted", r.Pa, limit)
-	if run != nil {
-		run.cancel(&abortError{msg})
-	} else {
+	if run == nil {
+		if vented {
+			msg += "; source vented"
+		}
 		e.emit(0, slog.LevelError, "safety", e.ref.Name, msg, nil)
 	}
 }
@@ -502,6 +533,16 @@ func (e *Engine) resumeUnfinished(ctx context.Context) error {
 			return fmt.Errorf("run %s: cursor: %w", r.ID, err)
 		}
 	}
+	if c.Plan != "" && c.Plan != e.plan {
+		// The cursor counts steps of the plan the run started with; applied
+		// to another plan it would mix points of two procedures in one run.
+		reason := "the procedure in the configuration changed since this run started; its points are kept, start a new run"
+		if _, err := e.st.SetState(r.ID, store.StateFailed, reason); err != nil {
+			return err
+		}
+		e.emit(r.ID, slog.LevelError, "state", "", fmt.Sprintf("run %s not resumed: %s", r.ID, reason), map[string]string{"state": string(store.StateFailed)})
+		return nil
+	}
 	e.mu.Lock()
 	e.launch(r.ID, c.Step, r.State == store.StatePaused)
 	e.mu.Unlock()
@@ -509,6 +550,20 @@ func (e *Engine) resumeUnfinished(ctx context.Context) error {
 	return nil
 }
 
+// cursor is what the store keeps of a run's progress: the step in progress
+// and a fingerprint of the plan that step belongs to.
 type cursor struct {
-	Step int `json:"step"`
+	Step int    `json:"step"`
+	Plan string `json:"plan,omitempty"`
+}
+
+// planPrint fingerprints a plan (mode and every step), so that a resume can
+// tell whether the configuration still describes the same procedure.
+func planPrint(mode string, steps []Step) string {
+	h := sha256.New()
+	fmt.Fprintln(h, mode)
+	for _, s := range steps {
+		fmt.Fprintf(h, "%s|%d|%s|%s|%d|%.9g|%t\n", s.Kind, s.Cycle, s.Direction, s.PointKind, s.Index, s.TargetPa, s.TopHold)
+	}
+	return hex.EncodeToString(h.Sum(nil)[:12])
 }

@@ -58,8 +58,15 @@ func TestApproachFromTheSeriesSide(t *testing.T) {
 // and ends the run failed with an error event that names the over-pressure.
 func TestOverPressureVentsAndAborts(t *testing.T) {
 	t.Parallel()
-	const limit = 12e5
-	b := bench(t, func(c *config.Config) { c.Safety.MaxPressurePa = limit })
+	// The controller overshoots its steps by 30 %: on the way to the
+	// 16 bar exercise point the pressure passes a 16.3 bar limit that no
+	// setpoint ever asked for. (Every setpoint above the limit is refused
+	// before it is sent; this is the physical excursion.)
+	const limit = 16.3e5
+	b := bench(t, func(c *config.Config) {
+		c.Safety.MaxPressurePa = limit
+		c.Simulator.Source.Overshoot = 0.3
+	})
 	id, state, reason := b.run(t, 20*time.Second)
 	if state != store.StateFailed || !strings.Contains(reason, "over-pressure") {
 		t.Fatalf("run ended %q (%s), want failed for over-pressure", state, reason)
@@ -76,8 +83,8 @@ func TestOverPressureVentsAndAborts(t *testing.T) {
 	if s := b.rig.Sample(); !s.Vented {
 		t.Errorf("simulator not vented: setpoint %.3f bar, pressure %.3f bar", s.Setpoint, s.Reference)
 	}
-	// Vented at once: the exercise step rises at about 2 bar/s through the
-	// limit, so the highest reading stays within 1 bar of it.
+	// Vented at once: the pressure rises through the limit at a few bar
+	// per second, so the highest reading stays within 1 bar of it.
 	peak := 0.0
 	ref := instrumentNamed(t, b.cfg, config.RoleReference).Name
 	if err := b.st.Flush(); err != nil {
@@ -203,7 +210,13 @@ func TestDialRun(t *testing.T) {
 				if p.DUT.Count != 1 {
 					t.Errorf("%s: dial window of %d readings, want 1", describe(p), p.DUT.Count)
 				}
-				if compare == "set-by-device" && p.DUT.Mean != p.Nominal {
+				// Set by the device: the pointer is brought onto the mark by
+				// moving the source until the operator reads the mark, within
+				// half a division. Zero readings are taken vented, and at the
+				// lower range value the source cannot go below the stop: those
+				// are taken as read and say so.
+				if compare == "set-by-device" && p.Kind == analysis.Measurement && !strings.Contains(p.Note, "taken as read") &&
+					math.Abs(p.DUT.Mean-p.Nominal) > b.cfg.Device.ResolutionPa/2+1e-6 {
 					t.Errorf("%s: set by the device, its reading %.0f Pa must be the mark %.0f Pa", describe(p), p.DUT.Mean, p.Nominal)
 				}
 			}
@@ -212,12 +225,8 @@ func TestDialRun(t *testing.T) {
 				// the pointer's 0.002 bar scatter an error may differ from
 				// the model by about one division.
 				checkErrors(t, b.rig, pts, 2, 0.012e5)
-				// In set-by-device the stored dial reading is where the
-				// pointer stood, not the mark: the engine sets the pressure
-				// by the reference and does not yet bring the pointer onto
-				// the mark, so the store cannot reproduce that window.
-				checkWindowsFromStore(t, b, id, pts)
 			}
+			checkWindowsFromStore(t, b, id, pts)
 		})
 	}
 }

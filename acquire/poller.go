@@ -28,9 +28,10 @@ type Poller struct {
 	clk      clock.Clock
 	sink     SampleSink
 	log      *slog.Logger
-	// onReading is called for each good reading before it enters the
-	// detector (the safety check runs here, on the poller's goroutine).
-	onReading func(drivers.Reading)
+	// onRead is called for every reading, good or failed, before a good one
+	// enters the detector (the safety check runs here, on the poller's
+	// goroutine).
+	onRead func(drivers.Reading, error)
 
 	mu       sync.Mutex
 	det      *settle.Detector
@@ -38,8 +39,10 @@ type Poller struct {
 	lastErr  error
 	reads    uint64
 	failures map[drivers.Kind]uint64
-	beat     time.Time // wall time of the last completed read attempt
-	since    time.Time // clock time from which samples count (after a pressure change)
+	beat     time.Time     // wall time of the last completed read attempt
+	done     time.Time     // clock time of the last completed read attempt
+	cycle    time.Duration // clock time between the last two completed attempts
+	since    time.Time     // clock time from which samples count (after a pressure change)
 }
 
 func newPoller(name string, g drivers.Gauge, interval time.Duration, rules settle.Rules, clk clock.Clock, sink SampleSink, log *slog.Logger) (*Poller, error) {
@@ -84,12 +87,17 @@ func (p *Poller) record(r drivers.Reading, err error) {
 	if p.sink != nil {
 		p.sink.Sample(p.Name, r, err)
 	}
-	if err == nil && p.onReading != nil {
-		p.onReading(r)
+	if p.onRead != nil {
+		p.onRead(r, err)
 	}
 	p.mu.Lock()
 	defer p.mu.Unlock()
 	p.beat = time.Now()
+	if now := p.clk.Now(); !p.done.IsZero() {
+		p.cycle, p.done = now.Sub(p.done), now
+	} else {
+		p.done = now
+	}
 	p.reads++
 	if err != nil {
 		p.lastErr = err
@@ -132,6 +140,9 @@ type PollerState struct {
 	Why      string            `json:"why,omitempty"`
 	Window   analysis.Window   `json:"window"`
 	Beat     time.Time         `json:"-"`
+	// Every is how often readings arrive: the poll interval, or the time
+	// the last read took when the instrument is slower than that.
+	Every time.Duration `json:"-"`
 }
 
 func (p *Poller) State() PollerState {
@@ -143,7 +154,7 @@ func (p *Poller) State() PollerState {
 		f[k.String()] = n
 	}
 	s := PollerState{Name: p.Name, Last: p.last, Reads: p.reads, Failures: f, Settle: st,
-		Settled: st.Settled, Why: st.Why, Window: st.Window, Beat: p.beat}
+		Settled: st.Settled, Why: st.Why, Window: st.Window, Beat: p.beat, Every: max(p.interval, p.cycle)}
 	if p.lastErr != nil {
 		s.LastErr = p.lastErr.Error()
 	}

@@ -48,9 +48,10 @@ func (e *Engine) runner(ctx context.Context, r *activeRun) {
 		e.ventQuietly()
 		e.finish(r, store.StateFailed, abort.msg, slog.LevelError)
 	case ctx.Err() != nil:
-		// Shutdown: keep the run resumable; the source holds its setpoint
-		// only as long as the controller itself does.
-		r.final, r.reason = store.StateRunning, "interrupted by shutdown; resumes on next start"
+		// Shutdown: keep the run resumable, but never leave an unattended
+		// bench under pressure; the resumed step approaches its point again.
+		e.ventQuietly()
+		r.final, r.reason = store.StateRunning, "interrupted by shutdown; source vented; resumes on next start"
 		e.emit(r.id, slog.LevelWarn, "state", "", r.reason, nil)
 	default:
 		e.ventQuietly()
@@ -197,7 +198,7 @@ func (e *Engine) fmtPa(pa float64) string {
 }
 
 func (e *Engine) saveCursor(r *activeRun, step int) error {
-	b, _ := json.Marshal(cursor{Step: step})
+	b, _ := json.Marshal(cursor{Step: step, Plan: e.plan})
 	if _, err := e.st.SetCursor(r.id, b); err != nil {
 		return fmt.Errorf("store cursor: %w", err)
 	}
@@ -267,10 +268,15 @@ func (e *Engine) margin() float64 {
 
 // setPressure drives the source, or asks a person to set the pressure.
 func (e *Engine) setPressure(ctx context.Context, r *activeRun, target float64, how string) error {
+	if lim := e.cfg.Safety; lim.Set && target > lim.MaxPressurePa {
+		// Never ask for more than the limit, whatever computed the target.
+		return fmt.Errorf("setpoint %s refused: above the safety limit %s", e.fmtPa(target), e.fmtPa(lim.MaxPressurePa))
+	}
 	if e.source == nil {
 		e.emit(r.id, slog.LevelInfo, "operator", "", fmt.Sprintf("set the pressure to %s %s", e.fmtPa(target), how), map[string]float64{"target_pa": target})
 		return nil
 	}
+	e.setpoint = target
 	what := "setpoint " + e.fmtPa(target)
 	if err := e.command(ctx, r.id, what, func(ctx context.Context) error { return e.source.SetPoint(ctx, target) }); err != nil {
 		return fmt.Errorf("%s: %w", what, err)
@@ -332,12 +338,14 @@ func (e *Engine) capture(ctx context.Context, r *activeRun, s Step) (analysis.Po
 			return analysis.Point{}, err
 		}
 		changed := e.clk.Now()
-		e.ref.restart(changed, target, true)
-		e.dut.restart(changed, 0, false)
 		hold := e.cfg.Procedure.Hold
 		if s.TopHold {
 			hold += e.cfg.Procedure.TopHold
 		}
+		// The hold is a wait before reading: only samples taken after it
+		// can enter a settling window.
+		e.ref.restart(changed.Add(hold), target, true)
+		e.dut.restart(changed.Add(hold), 0, false)
 		deadline := changed.Add(e.cfg.Procedure.Timeout + hold)
 		retry := false
 		for !retry {
@@ -365,12 +373,12 @@ func (e *Engine) capture(ctx context.Context, r *activeRun, s Step) (analysis.Po
 				note = "approached from the wrong side"
 			}
 			now := e.clk.Now()
-			if now.Sub(changed) >= hold && rs.Settled {
+			if now.Sub(changed) >= hold && rs.Settled && e.current(rs, now) {
 				if e.dial != nil {
-					return e.captureDial(ctx, r, s, rs, note)
+					return e.captureDial(ctx, r, s, note)
 				}
 				ds := e.dut.State()
-				if settle.Both(rs.Settle, ds.Settle) {
+				if settle.Both(rs.Settle, ds.Settle) && e.current(ds, now) {
 					return analysis.Point{Cycle: s.Cycle, Direction: s.Direction, Kind: s.PointKind, Index: s.Index,
 						Nominal: target, Reference: rs.Window, DUT: ds.Window, Note: note}, nil
 				}
@@ -386,6 +394,14 @@ func (e *Engine) capture(ctx context.Context, r *activeRun, s Step) (analysis.Po
 			}
 		}
 	}
+}
+
+// current says whether an instrument's settled window is still live: its
+// last read succeeded and its window reaches to within about two readings of
+// now. A detector whose instrument stopped answering keeps its last window,
+// which must never be paired with a fresh one from the other instrument.
+func (e *Engine) current(st PollerState, now time.Time) bool {
+	return st.LastErr == "" && now.Sub(st.Window.End) <= 2*st.Every+e.tick()
 }
 
 func side(up bool) string {

@@ -119,12 +119,15 @@ func (c Conversion) FromPa(pa float64) float64 {
 }
 
 // Finish fills Pa from Raw and returns the reading, or a KindOutOfRange
-// *ReadError when the raw value is no measurement. Drivers call it last.
+// *ReadError when the raw value is no measurement. Drivers call it last. A
+// refused reading keeps its raw value (with Pa left at zero) so that the
+// fault is recorded as it came and the safety check can see a loop current
+// above its range.
 func (c Conversion) Finish(instrument string, r Reading) (Reading, error) {
 	r.RawUnit = c.RawUnit()
 	pa, err := c.ToPa(r.Raw)
 	if err != nil {
-		return Reading{}, Fail(instrument, KindOutOfRange, err)
+		return r, Fail(instrument, KindOutOfRange, err)
 	}
 	r.Pa = pa
 	return r, nil

@@ -73,7 +73,12 @@ func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*benc
 		return nil, fmt.Errorf("open store: %w", err)
 	}
 	b.store = st
-	yaml, _ := os.ReadFile(cfg.File)
+	// The file as used is kept with every run, for the record.
+	yaml, err := os.ReadFile(cfg.File)
+	if err != nil {
+		b.close()
+		return nil, fmt.Errorf("keep the configuration with the run: %w", err)
+	}
 	eng, err := acquire.New(acquire.Options{Config: cfg, ConfigYAML: yaml, Store: st, Clock: b.clock, Log: log, Resolve: resolve, Dial: dial})
 	if err != nil {
 		b.close()

@@ -115,3 +115,60 @@ func TestKillAndResume(t *testing.T) {
 	}
 	t.Logf("%d kills, %d points, none lost or doubled", kills, total)
 }
+
+// A run interrupted under one procedure is not resumed under another: the
+// cursor counts steps of the plan it started with. The old run is closed
+// as failed with the reason, its points kept, and a new run starts.
+func TestResumeRefusesChangedPlan(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs the program as a process")
+	}
+	dir := t.TempDir()
+	bin := plateauBinary(t)
+	cfgText, err := os.ReadFile("../../testdata/config/sim.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	base := strings.NewReplacer("path: plateau-sim.db", "path: "+filepath.Join(dir, "plan.db"), "speed: 20", "speed: 60").Replace(string(cfgText))
+	cfgPath := filepath.Join(dir, "plan.yaml")
+	write := func(text string) {
+		if err := os.WriteFile(cfgPath, []byte(text), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	write(base)
+	cmd := exec.Command(bin, "run", "-q", "-c", cfgPath)
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	time.Sleep(1500 * time.Millisecond)
+	cmd.Process.Kill()
+	cmd.Wait()
+
+	changed := strings.Replace(base, "points: [0 %, 20 %, 40 %, 60 %, 80 %, 100 %]", "points: [0 %, 50 %, 100 %]", 1)
+	if changed == base {
+		t.Fatal("the example's points line changed; update this test")
+	}
+	write(changed)
+	if out, err := exec.Command(bin, "run", "-q", "-c", cfgPath).CombinedOutput(); err != nil {
+		t.Fatalf("second run: %v\n%s", err, out)
+	}
+	st, err := store.Open(filepath.Join(dir, "plan.db"), store.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	runs, err := st.Runs()
+	if err != nil || len(runs) != 2 {
+		t.Fatalf("runs %+v, %v; want the refused run and a new one", runs, err)
+	}
+	if runs[0].State != store.StateFailed || !strings.Contains(runs[0].Reason, "procedure in the configuration changed") {
+		t.Errorf("first run %s: %s", runs[0].State, runs[0].Reason)
+	}
+	if runs[1].State != store.StateFinished {
+		t.Errorf("second run %s: %s", runs[1].State, runs[1].Reason)
+	}
+	if err := st.Check(); err != nil {
+		t.Error(err)
+	}
+}
