@@ -49,6 +49,14 @@ func svg(p *plot.Plot) (string, error) {
 	return s, nil
 }
 
+// roomForLegend raises the top of the y axis so that the legend, drawn in
+// the upper part of the plot, sits above the data instead of on it.
+func roomForLegend(p *plot.Plot) {
+	if p.Legend.Top && p.Y.Max > p.Y.Min {
+		p.Y.Max += 0.45 * (p.Y.Max - p.Y.Min)
+	}
+}
+
 func newPlot(x, y string) *plot.Plot {
 	p := plot.New()
 	p.X.Label.Text, p.Y.Label.Text = x, y
@@ -146,6 +154,7 @@ func errorChart(n numbers, res analysis.Result) (*chart, error) {
 	p.Legend.Left = true // errors usually grow with pressure: the top left stays clear
 	p.Legend.Add(fmt.Sprintf("mean ± U (k = %s)", ftoa(res.CoverageFactor)), dots)
 
+	roomForLegend(p)
 	s, err := svg(p)
 	if err != nil {
 		return nil, err
@@ -177,6 +186,7 @@ func hysteresisChart(n numbers, res analysis.Result) (*chart, error) {
 	b.Color, b.LineStyle.Color = fillBar, fillBar
 	p.Add(b)
 	p.NominalX(names...)
+	roomForLegend(p)
 	s, err := svg(p)
 	if err != nil {
 		return nil, err
@@ -236,6 +246,7 @@ func driftChart(n numbers, res analysis.Result) (*chart, error) {
 		p.Legend.Add(n.pu(pd.NominalPa), l, sc)
 	}
 	p.Legend.Top, p.Legend.Left = true, false
+	roomForLegend(p)
 	s, err := svg(p)
 	if err != nil {
 		return nil, err
@@ -274,6 +285,7 @@ func zeroChart(n numbers, res analysis.Result) (*chart, error) {
 		p.Add(l, sc)
 		p.Legend.Add(s.name, l, sc)
 	}
+	roomForLegend(p)
 	s, err := svg(p)
 	if err != nil {
 		return nil, err

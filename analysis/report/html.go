@@ -26,11 +26,14 @@ type budgetBlock struct {
 func (n numbers) budgets(res analysis.Result) []budgetBlock {
 	out := make([]budgetBlock, len(res.Points))
 	for i, p := range res.Points {
-		b := budgetBlock{Index: itoa(p.Index + 1), Nominal: n.pu(p.NominalPa), Combined: n.pu(p.CombinedUncertaintyPa),
-			Expanded: n.pu(p.ExpandedUncertaintyPa), K: ftoa(res.CoverageFactor)}
+		// A budget shows two digits more than the tables: its small terms
+		// are what it is read for, and must not print as zero.
+		fine := numbers{u: n.u, decimals: n.decimals + 2}
+		b := budgetBlock{Index: itoa(p.Index + 1), Nominal: n.pu(p.NominalPa), Combined: fine.pu(p.CombinedUncertaintyPa),
+			Expanded: fine.pu(p.ExpandedUncertaintyPa), K: ftoa(res.CoverageFactor)}
 		for _, c := range p.Budget {
-			b.Lines = append(b.Lines, budgetLine{Name: contributionText(c.Name), Estimate: n.pu(c.EstimatePa),
-				Distribution: c.Distribution, Divisor: fmt.Sprintf("%.4g", c.Divisor), Standard: n.pu(c.StandardUncertaintyPa)})
+			b.Lines = append(b.Lines, budgetLine{Name: contributionText(c.Name), Estimate: fine.pu(c.EstimatePa),
+				Distribution: c.Distribution, Divisor: fmt.Sprintf("%.4g", c.Divisor), Standard: fine.pu(c.StandardUncertaintyPa)})
 		}
 		out[i] = b
 	}
