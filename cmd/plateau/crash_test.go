@@ -24,16 +24,7 @@ func TestKillAndResume(t *testing.T) {
 	}
 	dir := t.TempDir()
 	bin := plateauBinary(t)
-	cfgText, err := os.ReadFile("../../testdata/config/sim.yaml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	text := strings.Replace(string(cfgText), "path: plateau-sim.db", "path: "+filepath.Join(dir, "crash.db"), 1)
-	text = strings.Replace(text, "speed: 20", "speed: 60", 1)
-	cfgPath := filepath.Join(dir, "crash.yaml")
-	if err := os.WriteFile(cfgPath, []byte(text), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	cfgPath := simConfig(t, dir, "crash")
 	cfg, err := config.Load(cfgPath)
 	if err != nil {
 		t.Fatal(err)
@@ -125,18 +116,16 @@ func TestResumeRefusesChangedPlan(t *testing.T) {
 	}
 	dir := t.TempDir()
 	bin := plateauBinary(t)
-	cfgText, err := os.ReadFile("../../testdata/config/sim.yaml")
+	cfgPath := simConfig(t, dir, "plan")
+	base, err := os.ReadFile(cfgPath)
 	if err != nil {
 		t.Fatal(err)
 	}
-	base := strings.NewReplacer("path: plateau-sim.db", "path: "+filepath.Join(dir, "plan.db"), "speed: 20", "speed: 60").Replace(string(cfgText))
-	cfgPath := filepath.Join(dir, "plan.yaml")
 	write := func(text string) {
 		if err := os.WriteFile(cfgPath, []byte(text), 0o644); err != nil {
 			t.Fatal(err)
 		}
 	}
-	write(base)
 	cmd := exec.Command(bin, "run", "-q", "-c", cfgPath)
 	if err := cmd.Start(); err != nil {
 		t.Fatal(err)
@@ -145,8 +134,8 @@ func TestResumeRefusesChangedPlan(t *testing.T) {
 	cmd.Process.Kill()
 	cmd.Wait()
 
-	changed := strings.Replace(base, "points: [0 %, 20 %, 40 %, 60 %, 80 %, 100 %]", "points: [0 %, 50 %, 100 %]", 1)
-	if changed == base {
+	changed := strings.Replace(string(base), "points: [0 %, 20 %, 40 %, 60 %, 80 %, 100 %]", "points: [0 %, 50 %, 100 %]", 1)
+	if changed == string(base) {
 		t.Fatal("the example's points line changed; update this test")
 	}
 	write(changed)

@@ -31,20 +31,8 @@ func TestServeTermAndResume(t *testing.T) {
 	}
 	dir := t.TempDir()
 	bin := plateauBinary(t)
-	cfgText, err := os.ReadFile("../../testdata/config/sim.yaml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	socket := filepath.Join(dir, "api.sock")
-	text := strings.NewReplacer(
-		"path: plateau-sim.db", "path: "+filepath.Join(dir, "serve.db"),
-		"socket: plateau-sim.sock", "socket: "+socket,
-		"speed: 20", "speed: 60",
-	).Replace(string(cfgText))
-	cfgPath := filepath.Join(dir, "serve.yaml")
-	if err := os.WriteFile(cfgPath, []byte(text), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	cfgPath := simConfig(t, dir, "serve")
+	socket := filepath.Join(dir, "serve.sock")
 	cfg, err := config.Load(cfgPath)
 	if err != nil {
 		t.Fatal(err)
