@@ -89,6 +89,11 @@ func (w Watchdog) Run(ctx context.Context) error {
 	}
 	wasStale := ""
 	for {
+		// A wait and the end of ctx can both be ready; select picks either,
+		// so stopping is checked here too.
+		if ctx.Err() != nil {
+			return nil
+		}
 		if stale := w.stale(); stale != "" {
 			if stale != wasStale {
 				w.Log.Error("watchdog: no progress, pings withheld; systemd will restart the daemon", "part", stale, "max_age_seconds", w.MaxAge.Seconds())
