@@ -27,6 +27,7 @@ func init() { register(newAnalyzeCmd) }
 // analyzeFlags are the command-line overrides of the configuration.
 type analyzeFlags struct {
 	format, out, label, unit string
+	asFound                  string // a table of the device before adjustment
 	rule, class, grade       string
 	lower, upper, resolution string
 	refUncertainty, refFloor string
@@ -58,6 +59,7 @@ and --rule are required (--lower defaults to 0).`,
 	}
 	fl := cmd.Flags()
 	fl.StringVar(&f.format, "format", "text", "report format: text, json, csv or html")
+	fl.StringVar(&f.asFound, "as-found", "", "a table of the same device before adjustment: add the as-found / as-left comparison (text and json)")
 	fl.StringVarP(&f.out, "output", "o", "", "write the report to this file instead of standard output")
 	fl.StringVar(&f.label, "label", "", "run label printed on the report (default: the CSV file name)")
 	fl.StringVar(&f.unit, "unit", "", "unit to show pressures in (default: the device's unit)")
@@ -125,7 +127,11 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 	}
 	// Render fully before writing so that a failure leaves no half report.
 	var b bytes.Buffer
-	if err := render(&b, info, res); err != nil {
+	if f.asFound != "" {
+		if err := renderComparison(&b, f, info, res, dev, ref, opt); err != nil {
+			return err
+		}
+	} else if err := render(&b, info, res); err != nil {
 		return err
 	}
 	if f.out == "" {
@@ -136,6 +142,35 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 		return fmt.Errorf("write report: %w", err)
 	}
 	return nil
+}
+
+// renderComparison evaluates the as-found table with the same device,
+// reference and rule, and writes the as-left report with the change at each
+// point (text) or both results with their comparison (json).
+func renderComparison(w io.Writer, f analyzeFlags, info report.Info, asLeft analysis.Result,
+	dev analysis.Device, ref analysis.Reference, opt analysis.Options) error {
+	if f.format != "text" && f.format != "json" {
+		return fmt.Errorf("--as-found works with --format text or json, not %q", f.format)
+	}
+	points, err := readRecorded(f.asFound)
+	if err != nil {
+		return err
+	}
+	asFound, err := analysis.Analyze(points, dev, ref, opt)
+	if err != nil {
+		return fmt.Errorf("analyse %s: %w", f.asFound, err)
+	}
+	c, err := analysis.Compare(asFound, asLeft)
+	if err != nil {
+		return err
+	}
+	if f.format == "json" {
+		return report.ComparisonJSON(w, info, asFound, asLeft, c)
+	}
+	if err := report.Text(w, info, asLeft); err != nil {
+		return err
+	}
+	return report.ComparisonText(w, info, c, dev.ResolutionPa)
 }
 
 func readRecorded(path string) ([]analysis.Point, error) {

@@ -12,6 +12,9 @@ import (
 // deadweight is an invented dead-weight tester run (see the file's header).
 const deadweight = "../../testdata/recorded/deadweight.csv"
 
+// deadweightLeft is the same invented gauge after adjustment.
+const deadweightLeft = "../../testdata/recorded/deadweight-as-left.csv"
+
 // runPlateau runs the root command with args and returns stdout and the error.
 func runPlateau(t *testing.T, args ...string) (string, error) {
 	t.Helper()
@@ -27,6 +30,7 @@ func runPlateau(t *testing.T, args ...string) (string, error) {
 func TestAnalyze(t *testing.T) {
 	// No config file at the default path: everything comes from the flags.
 	abs := filepath.Join(mustWd(t), deadweight)
+	left := filepath.Join(mustWd(t), deadweightLeft)
 	t.Chdir(t.TempDir())
 	flags := []string{"--upper", "16 bar", "--resolution", "0.05 bar", "--class", "1", "--ref-uncertainty", "0.015 %"}
 
@@ -50,6 +54,15 @@ func TestAnalyze(t *testing.T) {
 		{"bad format", append([]string{"analyze", abs, "--rule", "simple", "--format", "pdf"}, flags...), nil, `--format "pdf"`},
 		{"percent as pressure", []string{"analyze", abs, "--rule", "simple", "--upper", "16 %", "--resolution", "0.05 bar", "--class", "1", "--ref-floor", "1 mbar"},
 			nil, "--upper"},
+		// The as-left table is the as-found one with the pointer reset and
+		// the span adjusted (invented, see its header): the 12 bar point that
+		// was a conditional pass becomes a pass, its error falling by 0.087 bar.
+		{"as found, as left", append([]string{"analyze", left, "--as-found", abs, "--rule", "four-state"}, flags...),
+			[]string{"As found → as left", "4   12.000        0.111       0.024  -0.087", "AS FOUND: CONDITIONAL PASS    AS LEFT: PASS"}, ""},
+		{"as found, json", append([]string{"analyze", left, "--as-found", abs, "--rule", "four-state", "--format", "json"}, flags...),
+			[]string{`"as_found": {`, `"as_left": {`, `"comparison": {`, `"as_found_decision": "conditional-pass"`}, ""},
+		{"as found, csv refused", append([]string{"analyze", left, "--as-found", abs, "--rule", "simple", "--format", "csv"}, flags...),
+			nil, "--as-found works with --format text or json"},
 		{"missing csv", append([]string{"analyze", "nope.csv", "--rule", "simple"}, flags...), nil, "open recorded run"},
 		{"explicit config missing", append([]string{"--config", "absent.yaml", "analyze", abs, "--rule", "simple"}, flags...), nil, "absent.yaml"},
 	}
