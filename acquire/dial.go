@@ -141,7 +141,7 @@ func (e *Engine) freeRun(ctx context.Context, r *activeRun) error {
 			continue
 		}
 		p := rs.Window.Mean
-		if have && abs(p-last) <= e.band() {
+		if have && math.Abs(p-last) <= e.band() {
 			continue // the same plateau as the last point
 		}
 		if have {
@@ -163,13 +163,6 @@ func (e *Engine) freeRun(ctx context.Context, r *activeRun) error {
 		e.ref.restart(now, 0, false)
 		e.dut.restart(now, 0, false)
 	}
-}
-
-func abs(x float64) float64 {
-	if x < 0 {
-		return -x
-	}
-	return x
 }
 
 // formatIn prints a pressure in the named unit.

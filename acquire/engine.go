@@ -16,7 +16,6 @@ import (
 	"plateau/acquire/clock"
 	"plateau/acquire/settle"
 	"plateau/acquire/store"
-	"plateau/analysis"
 	"plateau/config"
 	"plateau/drivers"
 )
@@ -31,17 +30,9 @@ type Options struct {
 	// Resolve rewrites an instrument before it is opened; the simulated rig
 	// uses it to point "sim" links at its real endpoints. nil keeps it as is.
 	Resolve func(config.Instrument) (config.Instrument, error)
-	// Observer receives per-reading and per-point notices for metrics; may be nil.
-	Observer Observer
 	// Dial, when set, reads the device under test instead of its configured
 	// link, once per point: the simulated operator of a simulated dial.
 	Dial drivers.Gauge
-}
-
-// Observer is told about readings and points, for metrics.
-type Observer interface {
-	Reading(instrument string, r drivers.Reading, err error)
-	Point(run store.RunID, p analysis.Point, done, total int)
 }
 
 // Engine owns the instruments, their pollers and at most one active run.
@@ -51,7 +42,6 @@ type Engine struct {
 	st    *store.Store
 	clk   clock.Clock
 	log   *slog.Logger
-	obs   Observer
 	bus   *Bus
 	steps []Step
 
@@ -89,7 +79,6 @@ type activeRun struct {
 	paused bool
 	resume chan struct{}
 	step   int
-	total  int
 	points int
 	target float64
 	phase  string
@@ -111,7 +100,7 @@ func New(opt Options) (*Engine, error) {
 		opt.Log = slog.New(slog.DiscardHandler)
 	}
 	cfg := opt.Config
-	e := &Engine{cfg: cfg, yaml: opt.ConfigYAML, st: opt.Store, clk: opt.Clock, log: opt.Log, obs: opt.Observer, bus: NewBus(),
+	e := &Engine{cfg: cfg, yaml: opt.ConfigYAML, st: opt.Store, clk: opt.Clock, log: opt.Log, bus: NewBus(),
 		ready: make(chan struct{})}
 	if cfg.Procedure.Mode == "plan" {
 		e.steps = Plan(cfg.Procedure, cfg.Device.LowerPa)
@@ -261,9 +250,6 @@ func (e *Engine) pollers() []*Poller {
 
 // Sample implements SampleSink: every reading of an active run is stored.
 func (e *Engine) Sample(instrument string, r drivers.Reading, err error) {
-	if e.obs != nil {
-		e.obs.Reading(instrument, r, err)
-	}
 	e.mu.Lock()
 	run := e.run
 	e.mu.Unlock()
@@ -375,25 +361,11 @@ func (e *Engine) Status() Status {
 	}
 	e.mu.Unlock()
 	for _, p := range e.pollers() {
-		s.Instruments = append(s.Instruments, p.State())
+		st := p.State()
+		st.Polled = !(p == e.dut && e.dial != nil)
+		s.Instruments = append(s.Instruments, st)
 	}
 	return s
-}
-
-// Heartbeat is the wall time of the oldest latest poll: the watchdog feeds
-// only while every poller makes progress.
-func (e *Engine) Heartbeat() time.Time {
-	oldest := time.Time{}
-	for _, p := range e.pollers() {
-		if p == e.dut && e.dial != nil {
-			continue // read once per point, never polled
-		}
-		b := p.State().Beat
-		if oldest.IsZero() || b.Before(oldest) {
-			oldest = b
-		}
-	}
-	return oldest
 }
 
 var (
@@ -433,7 +405,7 @@ func (e *Engine) Start(label string) (store.RunID, error) {
 func (e *Engine) launch(id store.RunID, step int, paused bool) {
 	ctx, cancel := context.WithCancelCause(e.serveCtx)
 	r := &activeRun{id: id, cancel: cancel, done: make(chan struct{}), paused: paused,
-		resume: make(chan struct{}), step: step, total: CaptureCount(e.steps)}
+		resume: make(chan struct{}), step: step}
 	e.run = r
 	go e.runner(ctx, r)
 }

@@ -48,8 +48,11 @@ func (s Step) String() string {
 
 // Key identifies a captured point of this step; the store keeps at most one
 // point per key, so a resumed run never duplicates a point.
-func (s Step) Key() string {
-	return fmt.Sprintf("%d/%s/%s/%d", s.Cycle, s.Direction, s.PointKind, s.Index)
+func (s Step) Key() string { return captureKey(s.Cycle, s.Direction, s.PointKind, s.Index) }
+
+// captureKey is the one spelling of a point's identity, for steps and points alike.
+func captureKey(cycle int, dir analysis.Direction, kind analysis.PointKind, index int) string {
+	return fmt.Sprintf("%d/%s/%s/%d", cycle, dir, kind, index)
 }
 
 // Plan lays out a procedure: exercise cycles to full scale, then for each

@@ -2,7 +2,6 @@ package acquire
 
 import (
 	"context"
-	"errors"
 	"log/slog"
 	"sync"
 	"time"
@@ -143,6 +142,8 @@ type PollerState struct {
 	// Every is how often readings arrive: the poll interval, or the time
 	// the last read took when the instrument is slower than that.
 	Every time.Duration `json:"-"`
+	// Polled is false for a dial read once per point: it has no poll loop.
+	Polled bool `json:"polled"`
 }
 
 func (p *Poller) State() PollerState {
@@ -160,6 +161,3 @@ func (p *Poller) State() PollerState {
 	}
 	return s
 }
-
-// errStopped ends a runner step when the run is stopped or the context ends.
-var errStopped = errors.New("run stopped")

@@ -156,9 +156,7 @@ func (e *Engine) execute(ctx context.Context, r *activeRun) error {
 }
 
 // pointKey matches Step.Key for a captured point.
-func pointKey(p analysis.Point) string {
-	return fmt.Sprintf("%d/%s/%s/%d", p.Cycle, p.Direction, p.Kind, p.Index)
-}
+func pointKey(p analysis.Point) string { return captureKey(p.Cycle, p.Direction, p.Kind, p.Index) }
 
 func (e *Engine) commitPoint(r *activeRun, p analysis.Point) error {
 	_, existed, err := e.st.AddPoint(r.id, p)
@@ -170,11 +168,7 @@ func (e *Engine) commitPoint(r *activeRun, p analysis.Point) error {
 	}
 	e.mu.Lock()
 	r.points++
-	done, total := r.points, r.total
 	e.mu.Unlock()
-	if e.obs != nil {
-		e.obs.Point(r.id, p, done, total)
-	}
 	e.emit(r.id, slog.LevelInfo, "point", "",
 		fmt.Sprintf("captured %s: reference %s, device %s (error %s)", describePoint(p), e.fmtPa(p.Reference.Mean), e.fmtPa(p.DUT.Mean), e.fmtPa(p.DUT.Mean-p.Reference.Mean)),
 		p)

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"fmt"
 	"math/rand/v2"
 	"os"
 	"os/exec"
@@ -55,7 +56,7 @@ func TestKillAndResume(t *testing.T) {
 		}
 		now := map[string]bool{}
 		for _, p := range pts {
-			k := string(p.Kind) + "/" + string(p.Direction) + "/" + string(rune('0'+p.Cycle)) + "/" + string(rune('0'+p.Index))
+			k := fmt.Sprintf("%d/%s/%s/%d", p.Cycle, p.Direction, p.Kind, p.Index)
 			if now[k] {
 				t.Fatalf("%s: point %s twice", stage, k)
 			}

@@ -360,8 +360,8 @@ func (c *engineControl) reportStatus(ctx context.Context, log *slog.Logger) {
 // store writer (idle, or committing its queue).
 func (c *engineControl) probes() []systemd.Probe {
 	var out []systemd.Probe
-	for _, in := range c.cfg.Instruments {
-		if !polled(c.cfg, in) {
+	for _, in := range c.eng.Status().Instruments {
+		if !in.Polled {
 			continue
 		}
 		name := in.Name
@@ -390,16 +390,4 @@ func (c *engineControl) probes() []systemd.Probe {
 		return ws.LastCommit
 	}})
 	return out
-}
-
-// polled says whether the engine polls an instrument continuously: sources
-// are driven, not polled, and a dial under test is read once per point.
-func polled(cfg *config.Config, in config.Instrument) bool {
-	switch {
-	case in.Role == config.RoleSource:
-		return false
-	case in.Role == config.RoleDevice && (cfg.Device.Kind == "dial" || in.Link.Kind == config.LinkManual):
-		return false
-	}
-	return true
 }
