@@ -84,6 +84,15 @@ func (m *Manual) After(d time.Duration) <-chan time.Time {
 	return ch
 }
 
+// Waiting is how many waits are pending. A test moves the clock only once
+// the goroutine it steers is waiting; otherwise that goroutine would start
+// its wait after the move and miss it.
+func (m *Manual) Waiting() int {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	return len(m.waiters)
+}
+
 // Advance moves the clock forward and fires every wait that is due.
 func (m *Manual) Advance(d time.Duration) {
 	m.mu.Lock()

@@ -123,6 +123,8 @@ func TestFaultLinkDownAndUp(t *testing.T) {
 	if err := tcpRead(); err != nil {
 		t.Fatalf("link up at start: %v", err)
 	}
+	// Move the clock only once the link supervisor waits on it.
+	eventually(t, "the link supervisor waits", func() bool { return clk.Waiting() > 0 })
 	clk.Advance(8 * time.Second)
 	eventually(t, "the TCP server is away", func() bool { return tcpRead() != nil })
 	rtu := modbusClient(t, "rtu://"+ep.RTU, 200*time.Millisecond)
@@ -131,6 +133,7 @@ func TestFaultLinkDownAndUp(t *testing.T) {
 	}
 	p, rd := openLine(t, ep.ReferenceLine)
 	expectSilence(t, p)
+	eventually(t, "the link supervisor waits again", func() bool { return clk.Waiting() > 0 })
 	clk.Advance(2 * time.Second)
 	eventually(t, "the TCP server is back", func() bool { return tcpRead() == nil })
 	if _, err := rtu.ReadRegister(RegStatus, modbus.INPUT_REGISTER); err != nil {
