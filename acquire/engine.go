@@ -13,11 +13,11 @@ import (
 	"sync/atomic"
 	"time"
 
-	"plateau/acquire/clock"
 	"plateau/acquire/settle"
 	"plateau/acquire/store"
 	"plateau/config"
 	"plateau/drivers"
+	"plateau/drivers/clock"
 )
 
 // Options wire an engine together.

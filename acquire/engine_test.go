@@ -8,11 +8,11 @@ import (
 	"time"
 
 	"plateau/acquire"
-	"plateau/acquire/clock"
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/config"
 	_ "plateau/drivers/all"
+	"plateau/drivers/clock"
 	"plateau/drivers/sim"
 )
 

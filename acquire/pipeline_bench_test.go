@@ -7,11 +7,11 @@ import (
 	"testing"
 	"time"
 
-	"plateau/acquire/clock"
 	"plateau/acquire/settle"
 	"plateau/acquire/store"
 	"plateau/config"
 	"plateau/drivers"
+	"plateau/drivers/clock"
 	"plateau/drivers/sim"
 )
 

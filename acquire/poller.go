@@ -6,10 +6,10 @@ import (
 	"sync"
 	"time"
 
-	"plateau/acquire/clock"
 	"plateau/acquire/settle"
 	"plateau/analysis"
 	"plateau/drivers"
+	"plateau/drivers/clock"
 )
 
 // SampleSink receives every reading, good or failed, for storage.

@@ -6,8 +6,8 @@ import (
 	"sort"
 	"sync"
 
-	"plateau/acquire/clock"
 	"plateau/config"
+	"plateau/drivers/clock"
 )
 
 // OpenEnv is what every driver gets besides its configuration.

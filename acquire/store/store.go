@@ -34,7 +34,7 @@ import (
 
 	bolt "go.etcd.io/bbolt"
 
-	"plateau/acquire/clock"
+	"plateau/drivers/clock"
 )
 
 const formatVersion = "1"

@@ -17,9 +17,9 @@ import (
 	bolt "go.etcd.io/bbolt"
 	berrors "go.etcd.io/bbolt/errors"
 
-	"plateau/acquire/clock"
 	"plateau/analysis"
 	"plateau/drivers"
+	"plateau/drivers/clock"
 )
 
 var t0 = time.Date(2026, 3, 14, 22, 0, 0, 0, time.UTC)

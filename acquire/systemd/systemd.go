@@ -14,7 +14,7 @@ import (
 
 	"github.com/coreos/go-systemd/v22/daemon"
 
-	"plateau/acquire/clock"
+	"plateau/drivers/clock"
 )
 
 // Ready says start-up is complete, with a status line.

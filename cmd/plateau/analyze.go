@@ -14,12 +14,12 @@ import (
 	"github.com/spf13/cobra"
 
 	"plateau/acquire"
-	"plateau/acquire/clock"
 	"plateau/analysis"
 	"plateau/analysis/recorded"
 	"plateau/analysis/report"
 	"plateau/analysis/units"
 	"plateau/config"
+	"plateau/drivers/clock"
 )
 
 func init() { register(newAnalyzeCmd) }

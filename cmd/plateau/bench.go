@@ -7,11 +7,11 @@ import (
 	"os"
 
 	"plateau/acquire"
-	"plateau/acquire/clock"
 	"plateau/acquire/store"
 	"plateau/config"
 	"plateau/drivers"
 	_ "plateau/drivers/all"
+	"plateau/drivers/clock"
 	"plateau/drivers/sim"
 )
 

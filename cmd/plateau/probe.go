@@ -13,11 +13,11 @@ import (
 	"github.com/spf13/cobra"
 	"gonum.org/v1/gonum/stat"
 
-	"plateau/acquire/clock"
 	"plateau/analysis/units"
 	"plateau/config"
 	"plateau/drivers"
 	_ "plateau/drivers/all"
+	"plateau/drivers/clock"
 )
 
 func init() { register(newProbeCmd) }

@@ -12,8 +12,8 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"plateau/acquire/clock"
 	"plateau/config"
+	"plateau/drivers/clock"
 	"plateau/drivers/sim"
 )
 

@@ -13,9 +13,9 @@ import (
 
 	"go.bug.st/serial"
 
-	"plateau/acquire/clock"
 	"plateau/config"
 	"plateau/drivers"
+	"plateau/drivers/clock"
 )
 
 func init() {

@@ -8,9 +8,9 @@ import (
 
 	mb "github.com/simonvetter/modbus"
 
-	"plateau/acquire/clock"
 	"plateau/config"
 	"plateau/drivers"
+	"plateau/drivers/clock"
 	"plateau/drivers/regcodec"
 )
 

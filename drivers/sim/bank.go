@@ -6,7 +6,7 @@ import (
 
 	"github.com/simonvetter/modbus"
 
-	"plateau/acquire/clock"
+	"plateau/drivers/clock"
 	"plateau/drivers/regcodec"
 )
 

@@ -6,10 +6,10 @@ import (
 	"testing"
 	"time"
 
-	"plateau/acquire/clock"
 	"plateau/config"
 	"plateau/drivers"
 	_ "plateau/drivers/all"
+	"plateau/drivers/clock"
 	"plateau/drivers/sim"
 )
 

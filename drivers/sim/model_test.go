@@ -7,9 +7,9 @@ import (
 	"testing"
 	"time"
 
-	"plateau/acquire/clock"
 	"plateau/analysis"
 	"plateau/config"
+	"plateau/drivers/clock"
 )
 
 var t0 = time.Date(2026, 3, 2, 8, 0, 0, 0, time.UTC)

@@ -32,9 +32,9 @@ import (
 
 	"github.com/simonvetter/modbus"
 
-	"plateau/acquire/clock"
 	"plateau/analysis"
 	"plateau/config"
+	"plateau/drivers/clock"
 )
 
 // Endpoints tells where the running rig can be reached.

@@ -15,8 +15,8 @@ import (
 	"github.com/simonvetter/modbus"
 	"go.bug.st/serial"
 
-	"plateau/acquire/clock"
 	"plateau/config"
+	"plateau/drivers/clock"
 	"plateau/drivers/regcodec"
 )
 
