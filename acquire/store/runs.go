@@ -40,6 +40,9 @@ type Run struct {
 	ID      RunID
 	Label   string
 	Config  []byte // the configuration as used (YAML), opaque to the store
+	// Record is what the run was frozen with when it was created (resolved
+	// device, reference, procedure and decision rule), opaque to the store.
+	Record []byte
 	State   State
 	Reason  string // why it last changed state, e.g. the fault that failed it
 	Created time.Time
@@ -52,6 +55,7 @@ type Run struct {
 type runRecord struct {
 	Label   string    `json:"label"`
 	Config  []byte    `json:"config"`
+	Record  []byte    `json:"record,omitempty"`
 	State   State     `json:"state"`
 	Reason  string    `json:"reason,omitempty"`
 	Created time.Time `json:"created"`
@@ -68,7 +72,7 @@ func readRun(tx *bolt.Tx, id RunID) (Run, error) {
 	if err := json.Unmarshal(b.Get(keyRun), &rec); err != nil {
 		return Run{}, fmt.Errorf("run %s: %w: %v", id, ErrBadRecord, err)
 	}
-	return Run{ID: id, Label: rec.Label, Config: rec.Config, State: rec.State, Reason: rec.Reason,
+	return Run{ID: id, Label: rec.Label, Config: rec.Config, Record: rec.Record, State: rec.State, Reason: rec.Reason,
 		Created: rec.Created, Updated: rec.Updated, Cursor: rec.Cursor}, nil
 }
 
@@ -77,7 +81,7 @@ func writeRun(tx *bolt.Tx, r Run) error {
 	if err != nil {
 		return err
 	}
-	v, err := json.Marshal(runRecord{Label: r.Label, Config: r.Config, State: r.State, Reason: r.Reason,
+	v, err := json.Marshal(runRecord{Label: r.Label, Config: r.Config, Record: r.Record, State: r.State, Reason: r.Reason,
 		Created: r.Created, Updated: r.Updated, Cursor: r.Cursor})
 	if err != nil {
 		return fmt.Errorf("run %s: %w", r.ID, err)
@@ -87,13 +91,19 @@ func writeRun(tx *bolt.Tx, r Run) error {
 
 // CreateRun stores a new pending run and returns it once committed.
 func (s *Store) CreateRun(label string, config []byte) (Run, error) {
+	return s.CreateFrozenRun(label, config, nil)
+}
+
+// CreateFrozenRun stores a new pending run with the record it is frozen
+// with, and returns it once committed.
+func (s *Store) CreateFrozenRun(label string, config, record []byte) (Run, error) {
 	end, err := s.begin()
 	if err != nil {
 		return Run{}, err
 	}
 	defer end()
 	now := s.opt.Clock.Now()
-	r := Run{Label: label, Config: slices.Clone(config), State: StatePending, Created: now, Updated: now}
+	r := Run{Label: label, Config: slices.Clone(config), Record: slices.Clone(record), State: StatePending, Created: now, Updated: now}
 	err = s.db.Update(func(tx *bolt.Tx) error {
 		runs := tx.Bucket(bucketRuns)
 		seq, err := runs.NextSequence()
