@@ -96,35 +96,3 @@ func CaptureCount(steps []Step) int {
 	}
 	return n
 }
-
-// AnalysisInputs turns the configuration into the analysis's descriptions of
-// the device, the reference and the evaluation options.
-func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, analysis.Options) {
-	d := cfg.Device
-	dev := analysis.Device{LowerPa: d.LowerPa, UpperPa: d.UpperPa, ResolutionPa: d.ResolutionPa, Unit: d.Unit}
-	switch {
-	case d.Class != "":
-		fmt.Sscan(d.Class, &dev.Accuracy.EN837Class)
-	case d.Grade != "":
-		dev.Accuracy.ASMEGrade = d.Grade
-	default:
-		dev.Accuracy.PercentOfSpan = d.Limit.SpanPct
-		dev.Accuracy.PercentOfReading = d.Limit.ReadingPct
-		dev.Accuracy.FloorPa = d.Limit.FloorPa
-	}
-	h := cfg.Head
-	ref := analysis.Reference{
-		PercentOfReading: cfg.Reference.UncertaintyPct,
-		FloorPa:          cfg.Reference.FloorPa,
-		K:                cfg.Reference.Coverage,
-	}
-	if h.ReferenceHeight != h.DeviceHeight || h.HeightUncertainty != 0 || h.DensityUncertainty != 0 {
-		ref.Head = analysis.HeadCorrection{
-			FluidDensity: h.FluidDensity, AirDensity: h.AmbientDensity, Gravity: h.Gravity,
-			ZRef: h.ReferenceHeight, ZDUT: h.DeviceHeight,
-			HeightHalfWidth: h.HeightUncertainty, DensityHalfWidth: h.DensityUncertainty,
-		}
-	}
-	opt := analysis.Options{Rule: analysis.DecisionRule(cfg.Procedure.Decision)}
-	return dev, ref, opt
-}

@@ -13,12 +13,12 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"plateau/acquire"
 	"plateau/analysis"
 	"plateau/analysis/recorded"
 	"plateau/analysis/report"
 	"plateau/analysis/units"
 	"plateau/config"
+	"plateau/config/record"
 	"plateau/drivers/clock"
 )
 
@@ -99,7 +99,7 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 		info report.Info
 	)
 	if cfg != nil {
-		dev, ref, opt = acquire.AnalysisInputs(cfg)
+		dev, ref, opt = record.AnalysisInputs(cfg)
 		info = infoFromConfig(cfg)
 	} else if missing := f.missing(); len(missing) > 0 {
 		return fmt.Errorf("no configuration file %s, so these flags are required: %s", configPath, strings.Join(missing, ", "))

@@ -7,13 +7,13 @@ import (
 	"os"
 	"time"
 
-	"plateau/acquire"
 	"plateau/acquire/api"
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/analysis/report"
 	"plateau/analysis/units"
 	"plateau/config"
+	"plateau/config/record"
 )
 
 // runResult is a run's evaluation with what a report needs besides it.
@@ -31,7 +31,7 @@ func evaluate(st *store.Store, cfg *config.Config, id store.RunID) (*runResult, 
 	if err != nil {
 		return nil, fmt.Errorf("read points of %s: %w", id, err)
 	}
-	dev, ref, opt := acquire.AnalysisInputs(cfg)
+	dev, ref, opt := record.AnalysisInputs(cfg)
 	res, err := analysis.Analyze(pts, dev, ref, opt)
 	if err != nil {
 		return nil, fmt.Errorf("analyse %s: %w", id, err)

@@ -1,0 +1,130 @@
+// Package record freezes what a run is evaluated with. When a run is
+// created, the resolved device, reference, procedure and decision rule are
+// taken from the configuration once and kept with the run; every report of
+// that run is computed from this record, never from the file or the
+// environment as they are later.
+package record
+
+import (
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+
+	"plateau/analysis"
+	"plateau/analysis/report"
+	"plateau/analysis/units"
+	"plateau/config"
+)
+
+// Version is the layout of a stored record.
+const Version = 1
+
+// Run is the frozen record of one run.
+type Run struct {
+	Version   int                `json:"version"`
+	Device    analysis.Device    `json:"device"`
+	Reference analysis.Reference `json:"reference"`
+	Options   analysis.Options   `json:"options"`
+	// Info is the report's description of the bench (identities,
+	// conditions, procedure); its display unit travels in Unit.
+	Info report.Info `json:"info"`
+	Unit string      `json:"unit"`
+}
+
+// Of builds the record of a run from a loaded configuration.
+func Of(cfg *config.Config) Run {
+	dev, ref, opt := AnalysisInputs(cfg)
+	return Run{Version: Version, Device: dev, Reference: ref, Options: opt, Info: Info(cfg), Unit: cfg.Device.Unit}
+}
+
+// Encode is the stored form of the record.
+func (r Run) Encode() []byte {
+	b, err := json.Marshal(r)
+	if err != nil {
+		// Every field is plain data; a failure here is a programming error.
+		panic(fmt.Sprintf("encode run record: %v", err))
+	}
+	return b
+}
+
+// Decode reads a stored record.
+func Decode(b []byte) (Run, error) {
+	var r Run
+	if err := json.Unmarshal(b, &r); err != nil {
+		return Run{}, fmt.Errorf("run record: %w", err)
+	}
+	if r.Version != Version {
+		return Run{}, fmt.Errorf("run record version %d, this build reads %d", r.Version, Version)
+	}
+	return r, nil
+}
+
+// ReportInfo is the report description with its display unit resolved.
+func (r Run) ReportInfo() report.Info {
+	info := r.Info
+	if u, err := units.Lookup(r.Unit); err == nil {
+		info.Unit = u
+	}
+	return info
+}
+
+// Identity fingerprints the device under test and the reference standard,
+// so that a resumed run can tell whether the bench still holds the same
+// instruments.
+func Identity(cfg *config.Config) string {
+	d, r := cfg.Device, cfg.Reference
+	h := sha256.New()
+	fmt.Fprintf(h, "device|%s|%s|%s|%s|%s|%s|%s\n", d.ID, d.Manufacturer, d.Model, d.Serial, d.Lower, d.Upper, d.Unit)
+	fmt.Fprintf(h, "reference|%s|%s|%s|%s\n", r.ID, r.Model, r.Serial, r.Certificate)
+	return hex.EncodeToString(h.Sum(nil)[:12])
+}
+
+// Info describes the bench of a configuration for a report.
+func Info(cfg *config.Config) report.Info {
+	d, r := cfg.Device, cfg.Reference
+	info := report.Info{
+		Device:    report.DeviceIdentity{ID: d.ID, Manufacturer: d.Manufacturer, Model: d.Model, Serial: d.Serial},
+		Reference: report.ReferenceIdentity{ID: r.ID, Model: r.Model, Serial: r.Serial, Certificate: r.Certificate, Expires: r.ExpiresAt},
+		Procedure: report.Procedure{PointsPa: cfg.Procedure.PointsPa, Cycles: cfg.Procedure.Cycles, Method: cfg.Procedure.Compare},
+	}
+	if d.Medium != "" {
+		info.Conditions = append(info.Conditions, report.Condition{Name: "Medium", Value: d.Medium})
+	}
+	if d.Oxygen {
+		info.Conditions = append(info.Conditions, report.Condition{Name: "Oxygen service", Value: "yes: kept free of oil and grease"})
+	}
+	return info
+}
+
+// AnalysisInputs turns the configuration into the analysis's descriptions of
+// the device, the reference and the evaluation options.
+func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, analysis.Options) {
+	d := cfg.Device
+	dev := analysis.Device{LowerPa: d.LowerPa, UpperPa: d.UpperPa, ResolutionPa: d.ResolutionPa, Unit: d.Unit}
+	switch {
+	case d.Class != "":
+		fmt.Sscan(d.Class, &dev.Accuracy.EN837Class)
+	case d.Grade != "":
+		dev.Accuracy.ASMEGrade = d.Grade
+	default:
+		dev.Accuracy.PercentOfSpan = d.Limit.SpanPct
+		dev.Accuracy.PercentOfReading = d.Limit.ReadingPct
+		dev.Accuracy.FloorPa = d.Limit.FloorPa
+	}
+	h := cfg.Head
+	ref := analysis.Reference{
+		PercentOfReading: cfg.Reference.UncertaintyPct,
+		FloorPa:          cfg.Reference.FloorPa,
+		K:                cfg.Reference.Coverage,
+	}
+	if h.ReferenceHeight != h.DeviceHeight || h.HeightUncertainty != 0 || h.DensityUncertainty != 0 {
+		ref.Head = analysis.HeadCorrection{
+			FluidDensity: h.FluidDensity, AirDensity: h.AmbientDensity, Gravity: h.Gravity,
+			ZRef: h.ReferenceHeight, ZDUT: h.DeviceHeight,
+			HeightHalfWidth: h.HeightUncertainty, DensityHalfWidth: h.DensityUncertainty,
+		}
+	}
+	opt := analysis.Options{Rule: analysis.DecisionRule(cfg.Procedure.Decision)}
+	return dev, ref, opt
+}
