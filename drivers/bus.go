@@ -8,76 +8,121 @@ import (
 	"time"
 )
 
-// Bus runs the requests of every instrument on one line (an RTU port, a TCP
-// gateway) one at a time on a goroutine of its own, with a quiet pause after
-// each. The Modbus library keeps unit id and encoding as client-wide state,
-// so the client may only be touched from inside Do.
+// Bus gives one line (an RTU port, a TCP connection, a serial port) one
+// owner: requests run one at a time, each on its caller's goroutine while it
+// holds the line, with a quiet pause after each. The Modbus library keeps unit
+// id and encoding as client-wide state, so the client may only be touched
+// from inside Do.
+//
+// A request whose context has ended never starts: Do checks before it
+// queues and again once it holds the line, so a setpoint queued behind a
+// slow read cannot reach the wire after its context was cancelled (by a vent,
+// a pause or shutdown). Running the request on the caller's goroutine, rather
+// than handing it to a goroutine of the bus, saves two goroutine switches and
+// a channel per request; ownership is the same since only the holder touches
+// the line.
 //
 // The pause is wall time on purpose: it is there for the physical line (a
 // device releasing the RS-485 bus) and a faster simulation clock does not
 // make the wire faster.
 type Bus struct {
-	jobs  chan func()
+	turn  chan struct{} // holds a token while a request owns the line
 	quit  chan struct{}
-	done  chan struct{}
 	pause time.Duration
 	once  sync.Once
+
+	quietUntil time.Time // end of the pause after the last request; only the holder touches it
 }
 
 // ErrBusClosed is returned by Do after Close.
 var ErrBusClosed = errors.New("bus closed")
 
-// NewBus starts the goroutine that owns a line.
+// NewBus makes the owner of one line. pause is the quiet time after each
+// request (zero for none).
 func NewBus(pause time.Duration) *Bus {
-	b := &Bus{jobs: make(chan func()), quit: make(chan struct{}), done: make(chan struct{}), pause: pause}
-	go b.run()
-	return b
+	return &Bus{turn: make(chan struct{}, 1), quit: make(chan struct{}), pause: pause}
 }
 
-func (b *Bus) run() {
-	defer close(b.done)
-	for {
-		select {
-		case <-b.quit:
-			return
-		case job := <-b.jobs:
-			job()
-			if b.pause > 0 {
-				select {
-				case <-time.After(b.pause):
-				case <-b.quit:
-					return
-				}
-			}
-		}
-	}
-}
-
-// Do runs fn on the bus goroutine and returns its error. When ctx ends while
-// the request waits for its turn, Do gives up without running it; once
-// started, fn runs to the end (its own time-out bounds it) and Do returns
-// ctx's error if ctx ended meanwhile.
+// Do runs fn while holding the line and returns its error. When ctx ends
+// before fn starts, fn never runs and Do returns ctx's error. Once started, fn
+// runs to the end (its own time-out bounds it).
 func (b *Bus) Do(ctx context.Context, fn func() error) error {
-	res := make(chan error, 1)
+	if err := b.Acquire(ctx); err != nil {
+		return err
+	}
+	defer b.Release()
+	return fn()
+}
+
+// Acquire waits for the line, then for the pause after the previous
+// request, and returns with the line held, or with ctx's error (or
+// ErrBusClosed) and the line not held. It checks ctx before queueing and
+// again once the line is won, so work whose context has ended never starts.
+// Every successful Acquire must be followed by one Release.
+func (b *Bus) Acquire(ctx context.Context) error {
+	if err := ctx.Err(); err != nil { // before queueing
+		return err
+	}
 	select {
-	case b.jobs <- func() { res <- fn() }:
+	case b.turn <- struct{}{}:
 	case <-ctx.Done():
 		return ctx.Err()
 	case <-b.quit:
 		return ErrBusClosed
 	}
+	// select picks at random among ready cases: the line may have been won
+	// just as ctx ended or the bus closed. Check both again before the wire.
+	err := b.waitQuiet(ctx)
+	if err == nil {
+		select {
+		case <-b.quit:
+			err = ErrBusClosed
+		default:
+			err = ctx.Err()
+		}
+	}
+	if err != nil {
+		<-b.turn
+	}
+	return err
+}
+
+// Release ends the request that holds the line and starts its pause.
+func (b *Bus) Release() {
+	if b.pause > 0 {
+		b.quietUntil = time.Now().Add(b.pause)
+	}
+	<-b.turn
+}
+
+// waitQuiet waits out the pause after the previous request.
+func (b *Bus) waitQuiet(ctx context.Context) error {
+	if b.pause <= 0 {
+		return nil
+	}
+	left := time.Until(b.quietUntil)
+	if left <= 0 {
+		return nil
+	}
+	t := time.NewTimer(left)
+	defer t.Stop()
 	select {
-	case err := <-res:
-		return err
+	case <-t.C:
+		return nil
 	case <-ctx.Done():
 		return ctx.Err()
+	case <-b.quit:
+		return ErrBusClosed
 	}
 }
 
-// Close stops the goroutine after the running request, if any, finishes.
+// Close makes every later Do fail with ErrBusClosed and waits for the
+// running request, if any, to finish.
 func (b *Bus) Close() error {
-	b.once.Do(func() { close(b.quit) })
-	<-b.done
+	b.once.Do(func() {
+		close(b.quit)
+		b.turn <- struct{}{} // wait for the holder; the token is never given back
+	})
 	return nil
 }
 

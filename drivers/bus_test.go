@@ -132,3 +132,48 @@ func TestRegistry(t *testing.T) {
 	}()
 	Register("test-only", Opener{Gauge: func(config.Instrument, OpenEnv) (Gauge, error) { return nopGauge{}, nil }})
 }
+
+// Work whose context has ended never starts: not when it ended before the
+// call, not while waiting for the line, not during the pause after the
+// previous request.
+func TestBusNeverStartsEndedWork(t *testing.T) {
+	cancelled, cancel := context.WithCancel(context.Background())
+	cancel()
+	cases := []struct {
+		name  string
+		pause time.Duration
+		busy  time.Duration // how long an earlier request holds the line
+		ctx   func() (context.Context, context.CancelFunc)
+		want  error
+	}{
+		{"cancelled before the call", 0, 0, func() (context.Context, context.CancelFunc) { return cancelled, func() {} }, context.Canceled},
+		{"ends while the line is busy", 0, 50 * time.Millisecond,
+			func() (context.Context, context.CancelFunc) { return context.WithTimeout(context.Background(), 10*time.Millisecond) }, context.DeadlineExceeded},
+		{"ends during the pause", 200 * time.Millisecond, time.Millisecond,
+			func() (context.Context, context.CancelFunc) { return context.WithTimeout(context.Background(), 30*time.Millisecond) }, context.DeadlineExceeded},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			b := NewBus(c.pause)
+			defer b.Close()
+			if c.busy > 0 {
+				held := make(chan struct{})
+				go b.Do(context.Background(), func() error { close(held); time.Sleep(c.busy); return nil })
+				<-held
+			}
+			ctx, cancel := c.ctx()
+			defer cancel()
+			var ran atomic.Int32
+			if err := b.Do(ctx, func() error { ran.Add(1); return nil }); !errors.Is(err, c.want) {
+				t.Errorf("err = %v, want %v", err, c.want)
+			}
+			if ran.Load() != 0 {
+				t.Error("ended work ran")
+			}
+			// The line is free again for live work.
+			if err := b.Do(context.Background(), func() error { ran.Add(1); return nil }); err != nil || ran.Load() != 1 {
+				t.Errorf("live work after: %v, ran %d", err, ran.Load())
+			}
+		})
+	}
+}

@@ -1,7 +1,9 @@
 package drivers
 
 import (
+	"errors"
 	"fmt"
+	"math"
 
 	"plateau/analysis/units"
 	"plateau/config"
@@ -36,8 +38,13 @@ func NewCurrentLoop(c config.CurrentLoop) (CurrentLoop, error) {
 	if hi == lo {
 		return CurrentLoop{}, fmt.Errorf("current_loop: lower and upper range values are equal (%s)", c.Lower)
 	}
+	if !finite(lo) || !finite(hi) || !finite(hi-lo) {
+		return CurrentLoop{}, fmt.Errorf("current_loop: range %s … %s is not finite", c.Lower, c.Upper)
+	}
 	return CurrentLoop{LowerPa: lo, UpperPa: hi}, nil
 }
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 
 func quantityPa(s string) (float64, error) {
 	q, err := units.ParseQuantity(s)
@@ -77,7 +84,7 @@ type Conversion struct {
 // "mA" with the current loop enabled.
 func NewConversion(inst config.Instrument) (Conversion, error) {
 	if inst.Loop.Enabled {
-		if inst.Unit != "" && inst.Unit != "mA" {
+		if inst.Unit != "mA" {
 			return Conversion{}, fmt.Errorf("instrument %q: unit %q with current_loop enabled: the raw value must be in mA", inst.Name, inst.Unit)
 		}
 		loop, err := NewCurrentLoop(inst.Loop)
@@ -118,16 +125,30 @@ func (c Conversion) FromPa(pa float64) float64 {
 	return c.Unit.FromPa(pa)
 }
 
+// ErrNotFinite says a value is NaN or infinite: no measurement, whatever
+// produced it (the wire, a scale or offset, a range conversion).
+var ErrNotFinite = errors.New("not a finite number")
+
 // Finish fills Pa from Raw and returns the reading, or a KindOutOfRange
 // *ReadError when the raw value is no measurement. Drivers call it last. A
 // refused reading keeps its raw value (with Pa left at zero) so that the
 // fault is recorded as it came and the safety check can see a loop current
-// above its range.
+// above its range — except a raw value that is not finite, which is zeroed:
+// a reading never carries NaN or ±Inf, since every comparison with NaN is
+// false and an over-pressure check would never fire.
 func (c Conversion) Finish(instrument string, r Reading) (Reading, error) {
 	r.RawUnit = c.RawUnit()
+	if !finite(r.Raw) {
+		err := fmt.Errorf("raw value %g %s: %w", r.Raw, r.RawUnit, ErrNotFinite)
+		r.Raw = 0
+		return r, Fail(instrument, KindOutOfRange, err)
+	}
 	pa, err := c.ToPa(r.Raw)
 	if err != nil {
 		return r, Fail(instrument, KindOutOfRange, err)
+	}
+	if !finite(pa) {
+		return r, Fail(instrument, KindOutOfRange, fmt.Errorf("%g %s is %g Pa: %w", r.Raw, r.RawUnit, pa, ErrNotFinite))
 	}
 	r.Pa = pa
 	return r, nil

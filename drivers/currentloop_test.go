@@ -5,6 +5,7 @@ import (
 	"math"
 	"testing"
 
+	"plateau/analysis/units"
 	"plateau/config"
 )
 
@@ -54,7 +55,8 @@ func TestNewConversion(t *testing.T) {
 	}{
 		{"pressure", config.Instrument{Name: "a", Unit: "kPa"}, true, "kPa"},
 		{"loop", config.Instrument{Name: "b", Unit: "mA", Loop: config.CurrentLoop{Enabled: true, Lower: "-1 bar", Upper: "9 bar"}}, true, "mA"},
-		{"loop unit unset", config.Instrument{Name: "c", Loop: config.CurrentLoop{Enabled: true, Lower: "0 psi", Upper: "100 psi"}}, true, "mA"},
+		{"loop unit unset", config.Instrument{Name: "c", Loop: config.CurrentLoop{Enabled: true, Lower: "0 psi", Upper: "100 psi"}}, false, ""}, // no default unit
+		{"loop range overflows", config.Instrument{Name: "h", Unit: "mA", Loop: config.CurrentLoop{Enabled: true, Lower: "-1e308 Pa", Upper: "1e308 Pa"}}, false, ""},
 		{"loop with bar unit", config.Instrument{Name: "d", Unit: "bar", Loop: config.CurrentLoop{Enabled: true, Lower: "0 bar", Upper: "1 bar"}}, false, ""},
 		{"loop empty range", config.Instrument{Name: "e", Unit: "mA", Loop: config.CurrentLoop{Enabled: true, Lower: "1 bar", Upper: "1 bar"}}, false, ""},
 		{"loop bad quantity", config.Instrument{Name: "f", Unit: "mA", Loop: config.CurrentLoop{Enabled: true, Lower: "0", Upper: "1 bar"}}, false, ""},
@@ -76,4 +78,49 @@ func TestNewConversion(t *testing.T) {
 	if err != nil || r.Pa != -1e5 || r.RawUnit != "mA" {
 		t.Errorf("compound loop: %+v %v", r, err)
 	}
+}
+
+// Every way a value can stop being a number ends in a failed read of kind
+// out_of_range, with Pa zero and no NaN or Inf left in the reading.
+func TestFinishRefusesNonFinite(t *testing.T) {
+	bar := Conversion{Unit: mustUnit(t, "bar")}
+	huge := CurrentLoop{LowerPa: 0, UpperPa: math.MaxFloat64} // 20.5 mA is 1.03 × the top: overflow
+	cases := []struct {
+		name string
+		conv Conversion
+		raw  float64
+	}{
+		{"NaN from the wire or a scale", bar, math.NaN()},
+		{"+Inf", bar, math.Inf(1)},
+		{"-Inf", bar, math.Inf(-1)},
+		{"finite bar, infinite pascal", bar, 1e304},
+		{"loop conversion overflows", Conversion{Loop: &huge}, 20.5},
+		{"NaN loop current", Conversion{Loop: &huge}, math.NaN()},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			r, err := c.conv.Finish("ref", Reading{Raw: c.raw, Wire: "7FC0 0000"})
+			if !errors.Is(err, ErrOutOfRange) {
+				t.Fatalf("err = %v, want out of range", err)
+			}
+			if KindOf(err) != KindOutOfRange || r.Pa != 0 || math.IsNaN(r.Raw) || math.IsInf(r.Raw, 0) {
+				t.Errorf("reading %+v carries a non-number (kind %s)", r, KindOf(err))
+			}
+			if r.Wire != "7FC0 0000" {
+				t.Errorf("wire %q lost: the audit text stays with a failed read", r.Wire)
+			}
+		})
+	}
+	if r, err := bar.Finish("ref", Reading{Raw: 1.01325}); err != nil || r.Pa != 101325 {
+		t.Errorf("a finite reading: %+v %v", r, err)
+	}
+}
+
+func mustUnit(t *testing.T, sym string) units.Unit {
+	t.Helper()
+	u, err := units.Lookup(sym)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return u
 }

@@ -7,8 +7,8 @@ import (
 	"fmt"
 	"log/slog"
 	"regexp"
+	"strconv"
 	"strings"
-	"sync"
 	"time"
 
 	"go.bug.st/serial"
@@ -23,9 +23,8 @@ func init() {
 }
 
 const (
-	defaultTimeout = time.Second
-	readSlice      = 50 * time.Millisecond // longest single Read, so deadlines are kept
-	maxLine        = 4096                  // a longer "line" is noise, not a reply
+	readSlice = 50 * time.Millisecond // longest single Read, so deadlines are kept
+	maxLine   = 4096                  // a longer "line" is noise, not a reply
 )
 
 // port is what the gauge needs from a serial port; go.bug.st/serial's Port
@@ -38,30 +37,35 @@ type port interface {
 	Close() error
 }
 
-// options configure one line instrument.
+// options configure one line instrument. Every field comes from the
+// configuration; the driver supplies no values of its own.
 type options struct {
 	Device     string
 	Mode       serial.Mode
 	Query      string // sent before each read; empty for a streaming instrument
 	Terminator string // end of a reply line
 	Timeout    time.Duration
-	Backoff    time.Duration // wait before reopening a vanished port
+	Backoff    time.Duration // wait before reopening a vanished port; 0 = at the next read
 	Parser     Parser
 }
 
-// Gauge is a line instrument on a serial port. Reads are serialised: the
-// port belongs to this gauge alone.
+// Gauge is a line instrument on a serial port. The port belongs to this
+// gauge alone; a drivers.Bus makes reads take turns, and a read whose
+// context has ended never touches the port.
 type Gauge struct {
 	name string
 	opts options
 	conv drivers.Conversion
 	clk  clock.Clock
 	log  *slog.Logger
+	bus  *drivers.Bus
 
-	mu      sync.Mutex
+	// Below: touched only while holding bus.
 	port    port
 	nextTry time.Time
 	buf     []byte
+	chunk   []byte
+	query   []byte
 }
 
 var _ drivers.Gauge = (*Gauge)(nil)
@@ -81,61 +85,65 @@ func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, erro
 }
 
 func newGauge(name string, opts options, conv drivers.Conversion, env drivers.OpenEnv) *Gauge {
-	if opts.Timeout <= 0 {
-		opts.Timeout = defaultTimeout
-	}
-	if opts.Backoff <= 0 {
-		opts.Backoff = time.Second
-	}
-	return &Gauge{name: name, opts: opts, conv: conv, clk: env.Time(),
+	return &Gauge{name: name, opts: opts, conv: conv, clk: env.Time(), bus: drivers.NewBus(0),
+		chunk: make([]byte, 256), query: []byte(opts.Query),
 		log: env.Logger("instrument", name, "link", config.LinkSerial, "device", opts.Device)}
 }
 
+var (
+	parities = map[string]serial.Parity{"none": serial.NoParity, "even": serial.EvenParity, "odd": serial.OddParity}
+	stops    = map[int]serial.StopBits{1: serial.OneStopBit, 2: serial.TwoStopBits}
+)
+
+// lineOptions checks the configuration and names every option that is
+// missing or wrong.
 func lineOptions(inst config.Instrument) (options, error) {
 	l := inst.Link
 	if strings.TrimSpace(l.Address) == "" {
 		return options{}, errors.New("link.address is empty: give the serial device, e.g. /dev/serial/by-id/…")
 	}
-	parity := map[string]serial.Parity{"": serial.NoParity, "none": serial.NoParity, "even": serial.EvenParity, "odd": serial.OddParity}
-	p, ok := parity[strings.ToLower(l.Parity)]
+	var errs []error
+	bad := func(format string, a ...any) { errs = append(errs, fmt.Errorf(format, a...)) }
+	p, ok := parities[strings.ToLower(l.Parity)]
 	if !ok {
-		return options{}, fmt.Errorf("link.parity %q: want none, even or odd", l.Parity)
+		bad("link.parity %q: want none, even or odd", l.Parity)
 	}
-	stop := map[int]serial.StopBits{0: serial.OneStopBit, 1: serial.OneStopBit, 2: serial.TwoStopBits}
-	sb, ok := stop[l.StopBits]
+	sb, ok := stops[l.StopBits]
 	if !ok {
-		return options{}, fmt.Errorf("link.stop_bits %d: want 1 or 2", l.StopBits)
+		bad("link.stop_bits %d: want 1 or 2", l.StopBits)
 	}
-	baud, bits := l.Baud, l.DataBits
-	if baud == 0 {
-		baud = 9600
+	if l.Baud <= 0 {
+		bad("link.baud %d: want the instrument's baud rate", l.Baud)
 	}
-	if bits == 0 {
-		bits = 8
+	if l.DataBits < 5 || l.DataBits > 8 {
+		bad("link.data_bits %d: want 5 … 8", l.DataBits)
 	}
-	if bits < 5 || bits > 8 {
-		return options{}, fmt.Errorf("link.data_bits %d: want 5 … 8", bits)
+	if l.Timeout <= 0 {
+		bad("link.timeout %s: want a positive time-out per reading", l.Timeout)
+	}
+	if l.Backoff < 0 {
+		bad("link.backoff %s: cannot be negative", l.Backoff)
 	}
 	term := inst.Line.Terminator
-	if term == "" {
-		term = "\r\n"
-	}
 	if term != "\r\n" && term != "\n" && term != "\r" {
-		return options{}, fmt.Errorf("line.terminator %q: want \"\\r\\n\", \"\\n\" or \"\\r\"", term)
+		bad("line.terminator %q: want \"\\r\\n\", \"\\n\" or \"\\r\"", term)
 	}
 	var re *regexp.Regexp
 	if inst.Line.Reply != "" {
 		var err error
 		if re, err = regexp.Compile(inst.Line.Reply); err != nil {
-			return options{}, fmt.Errorf("line.reply: %w", err)
+			bad("line.reply: %w", err)
 		}
+	}
+	if len(errs) > 0 {
+		return options{}, errors.Join(errs...)
 	}
 	query := inst.Line.Query
 	if query != "" && !strings.HasSuffix(query, "\r") && !strings.HasSuffix(query, "\n") {
 		query += term // instruments expect the query ended like their replies
 	}
 	return options{
-		Device: l.Address, Mode: serial.Mode{BaudRate: baud, DataBits: bits, Parity: p, StopBits: sb},
+		Device: l.Address, Mode: serial.Mode{BaudRate: l.Baud, DataBits: l.DataBits, Parity: p, StopBits: sb},
 		Query: query, Terminator: term, Timeout: l.Timeout, Backoff: l.Backoff,
 		Parser: Parser{Reply: re, Overload: inst.Line.Overload, Unit: inst.Unit},
 	}, nil
@@ -144,35 +152,46 @@ func lineOptions(inst config.Instrument) (options, error) {
 // Read returns one reading. A query instrument gets the query after the
 // input is flushed and answers within the time-out. For a streaming
 // instrument, stale input is flushed and the first complete line after that
-// is used — the newest, never a half line.
+// is used — the newest, never a half line. A failed read keeps the line it
+// got, for the audit trail.
 func (g *Gauge) Read(ctx context.Context) (drivers.Reading, error) {
-	g.mu.Lock()
-	defer g.mu.Unlock()
+	if err := g.bus.Acquire(ctx); err != nil {
+		return drivers.Reading{}, drivers.Fail(g.name, readKind(err), err)
+	}
+	defer g.bus.Release()
 	if err := g.ensureOpen(); err != nil {
 		return drivers.Reading{}, drivers.Fail(g.name, drivers.KindLinkDown, err)
 	}
 	line, err := g.exchange(ctx)
 	if err != nil {
-		if errors.Is(err, errTimeout) || errors.Is(err, context.DeadlineExceeded) {
-			return drivers.Reading{}, drivers.Fail(g.name, drivers.KindTimeout, err)
-		}
-		if !errors.Is(err, context.Canceled) {
+		if k := readKind(err); k != drivers.KindTimeout && !errors.Is(err, context.Canceled) {
 			// An unplugged adapter reports PortClosed and stays dead: close
 			// it and reopen by name next time.
 			g.drop(err)
 		}
-		return drivers.Reading{}, drivers.Fail(g.name, drivers.KindLinkDown, err)
+		return drivers.Reading{}, drivers.Fail(g.name, readKind(err), err)
 	}
-	at := g.clk.Now()
-	g.log.Debug("line reply", "line", fmt.Sprintf("%q", line))
+	r := drivers.Reading{Time: g.clk.Now(), Wire: line}
+	if g.log.Enabled(ctx, slog.LevelDebug) {
+		g.log.Debug("line reply", "line", strconv.Quote(line))
+	}
 	v, err := g.opts.Parser.Parse(line)
 	switch {
 	case errors.Is(err, ErrOverrange):
-		return drivers.Reading{}, drivers.Fail(g.name, drivers.KindOverload, err)
+		return r, drivers.Fail(g.name, drivers.KindOverload, err)
 	case err != nil:
-		return drivers.Reading{}, drivers.Fail(g.name, drivers.KindBadReply, err)
+		return r, drivers.Fail(g.name, drivers.KindBadReply, err)
 	}
-	return g.conv.Finish(g.name, drivers.Reading{Time: at, Raw: v, Wire: line})
+	r.Raw = v
+	return g.conv.Finish(g.name, r)
+}
+
+// readKind classifies a failed exchange.
+func readKind(err error) drivers.Kind {
+	if errors.Is(err, errTimeout) || errors.Is(err, context.DeadlineExceeded) {
+		return drivers.KindTimeout
+	}
+	return drivers.KindLinkDown
 }
 
 func (g *Gauge) ensureOpen() error {
@@ -220,8 +239,10 @@ func (g *Gauge) exchange(ctx context.Context) (string, error) {
 		}
 		return g.readLine(ctx, deadline, false)
 	}
-	g.log.Debug("line query", "query", fmt.Sprintf("%q", g.opts.Query))
-	if _, err := g.port.Write([]byte(g.opts.Query)); err != nil {
+	if g.log.Enabled(ctx, slog.LevelDebug) {
+		g.log.Debug("line query", "query", strconv.Quote(g.opts.Query))
+	}
+	if _, err := g.port.Write(g.query); err != nil {
 		return "", fmt.Errorf("write query: %w", err)
 	}
 	return g.readLine(ctx, deadline, false)
@@ -234,8 +255,8 @@ var errTimeout = errors.New("no complete reply line before the time-out")
 // the deadline-aware reader go.bug.st/serial lacks: its Read returns (0, nil)
 // on a time-out, which this turns into errTimeout.
 func (g *Gauge) readLine(ctx context.Context, deadline time.Time, partial bool) (string, error) {
-	term := []byte(g.opts.Terminator)
-	chunk := make([]byte, 256)
+	term := g.opts.Terminator
+	chunk := g.chunk
 	for {
 		if line, ok := g.takeLine(term, partial); ok {
 			return line, nil
@@ -263,8 +284,8 @@ func (g *Gauge) readLine(ctx context.Context, deadline time.Time, partial bool) 
 
 // takeLine removes every complete line from the buffer and returns the last
 // non-empty one; a trailing partial line stays for the next read.
-func (g *Gauge) takeLine(term []byte, partial bool) (string, bool) {
-	i := bytes.LastIndex(g.buf, term)
+func (g *Gauge) takeLine(term string, partial bool) (string, bool) {
+	i := bytes.LastIndex(g.buf, []byte(term))
 	if i < 0 {
 		return "", false
 	}
@@ -273,7 +294,7 @@ func (g *Gauge) takeLine(term []byte, partial bool) (string, bool) {
 	if partial {
 		return "", true
 	}
-	lines := strings.Split(complete, string(term))
+	lines := strings.Split(complete, term)
 	for j := len(lines) - 1; j >= 0; j-- {
 		if s := strings.TrimSpace(lines[j]); s != "" {
 			return s, true
@@ -282,10 +303,9 @@ func (g *Gauge) takeLine(term []byte, partial bool) (string, bool) {
 	return "", false
 }
 
-// Close closes the port.
+// Close waits for a running read, refuses later ones and closes the port.
 func (g *Gauge) Close() error {
-	g.mu.Lock()
-	defer g.mu.Unlock()
+	g.bus.Close() // from here on this goroutine is the port's only user
 	if g.port == nil {
 		return nil
 	}

@@ -38,8 +38,14 @@ func instrumentPty(t *testing.T) (*os.File, string) {
 
 func openLine(t *testing.T, dev string, lp config.LineProtocol) drivers.Gauge {
 	t.Helper()
+	if lp.Terminator == "" {
+		lp.Terminator = "\r\n"
+	}
+	if lp.Overload == nil {
+		lp.Overload = common
+	}
 	in := config.Instrument{Name: "dut", Unit: "bar", Line: lp,
-		Link: config.Link{Kind: config.LinkSerial, Address: dev, Baud: 9600, Parity: "none", StopBits: 1,
+		Link: config.Link{Kind: config.LinkSerial, Address: dev, Baud: 9600, DataBits: 8, Parity: "none", StopBits: 1,
 			Timeout: 300 * time.Millisecond, Backoff: 50 * time.Millisecond}}
 	g, err := drivers.OpenGauge(in, drivers.OpenEnv{})
 	if err != nil {

@@ -25,6 +25,8 @@ var (
 // Parser turns one reply line into a number. The zero Parser accepts a line
 // holding one number with an optional label before it and an optional unit
 // after it ("P1: +1.01325E+00 bar"); anything else on the line is garbage.
+// Its only over-range marker is a field of dashes (how displays blank a
+// value); words such as OL come from Overload, as configured.
 type Parser struct {
 	Reply    *regexp.Regexp // optional; group 1 (or the whole match) holds the number
 	Overload []string       // words or symbols meaning over/under range, matched as whole tokens, case-insensitively
@@ -36,9 +38,6 @@ var defaultLine = regexp.MustCompile(`^\s*(?:[A-Za-z][A-Za-z0-9_.]*\s*[:=,]?\s+|
 	`([+-]?\s*(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z%°²₂/][A-Za-z0-9%°²₂/]*)?\s*$`)
 
 var number = regexp.MustCompile(`^([+-]?\s*(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z%°²₂/][A-Za-z0-9%°²₂/]*)?$`)
-
-// defaultOverload holds the markers common practice uses when a config lists none.
-var defaultOverload = []string{"OL", "OVER", "UNDER", "OVERLOAD", "OVERRANGE", "UNDERRANGE"}
 
 // Parse returns the number on line, in the instrument's unit.
 func (p Parser) Parse(line string) (float64, error) {
@@ -100,9 +99,6 @@ func (p Parser) checkUnit(unit string) error {
 
 func (p Parser) overload(s string) bool {
 	words := p.Overload
-	if len(words) == 0 {
-		words = defaultOverload
-	}
 	for _, tok := range strings.FieldsFunc(s, func(r rune) bool { return r == ' ' || r == '\t' || r == ',' || r == ';' || r == ':' || r == '=' }) {
 		// A field of dashes is how displays blank an unreadable value.
 		if len(tok) >= 2 && strings.Trim(tok, "-") == "" {

@@ -7,6 +7,9 @@ import (
 	"testing"
 )
 
+// common is an overload list as a configuration would give it.
+var common = []string{"OL", "OVER", "UNDER"}
+
 func TestParse(t *testing.T) {
 	cases := []struct {
 		name string
@@ -27,8 +30,9 @@ func TestParse(t *testing.T) {
 		{"non-pressure suffix", Parser{Unit: "bar"}, "2.5 G", 2.5, nil},
 		{"regex group", Parser{Reply: regexp.MustCompile(`^R,(\S+),OK$`)}, "R,+0.99870,OK", 0.9987, nil},
 		{"regex whole", Parser{Reply: regexp.MustCompile(`-?\d+\.\d+`)}, "x 3.25 y", 3.25, nil},
-		{"overload OL", Parser{}, "OL", 0, ErrOverrange},
-		{"overload -OL with unit", Parser{}, "-OL bar", 0, ErrOverrange},
+		{"overload OL", Parser{Overload: common}, "OL", 0, ErrOverrange},
+		{"no words configured", Parser{}, "OL", 0, ErrGarbled},
+		{"overload -OL with unit", Parser{Overload: common}, "-OL bar", 0, ErrOverrange},
 		{"dashes", Parser{}, "-----", 0, ErrOverrange},
 		{"dashes with label", Parser{}, "P1: ---- bar", 0, ErrOverrange},
 		{"configured word", Parser{Overload: []string{"HIGH"}}, "high", 0, ErrOverrange},
@@ -42,6 +46,13 @@ func TestParse(t *testing.T) {
 		{"binary noise", Parser{}, "\x00\xff\x13", 0, ErrGarbled},
 		{"exponent only", Parser{}, "e5", 0, ErrGarbled},
 		{"overflow", Parser{}, "1e999", 0, ErrGarbled},
+		{"nan", Parser{}, "nan", 0, ErrGarbled},
+		{"NaN with unit", Parser{Unit: "bar"}, "NaN bar", 0, ErrGarbled},
+		{"inf", Parser{}, "inf", 0, ErrGarbled},
+		{"signed infinity", Parser{}, "-Infinity", 0, ErrGarbled},
+		{"regex captures NaN", Parser{Reply: regexp.MustCompile(`^P=(\S+)$`)}, "P=NaN", 0, ErrGarbled},
+		{"regex captures inf", Parser{Reply: regexp.MustCompile(`^P=(\S+)$`)}, "P=+Inf", 0, ErrGarbled},
+		{"huge but finite", Parser{}, "1e308", 1e308, nil},
 		{"regex no match", Parser{Reply: regexp.MustCompile(`^R,(\S+),OK$`)}, "R,1.0,ERR", 0, ErrGarbled},
 		{"regex group not a number", Parser{Reply: regexp.MustCompile(`^R,(\S+)$`)}, "R,abc", 0, ErrGarbled},
 	}

@@ -71,12 +71,16 @@ func (g *Gauge) Enter(value float64, unit string, at time.Time) error {
 		return fmt.Errorf("manual gauge %q: entry has no time", g.name)
 	}
 	pa := u.ToPa(value)
+	raw := g.unit.FromPa(pa)
+	if math.IsInf(pa, 0) || math.IsInf(raw, 0) {
+		return fmt.Errorf("manual gauge %q: %v %s is too large to be a pressure", g.name, value, u.Symbol)
+	}
 	g.mu.Lock()
 	defer g.mu.Unlock()
 	if g.closed {
 		return fmt.Errorf("manual gauge %q is closed", g.name)
 	}
-	g.pending = &drivers.Reading{Time: at, Pa: pa, Raw: g.unit.FromPa(pa), RawUnit: g.unit.Symbol,
+	g.pending = &drivers.Reading{Time: at, Pa: pa, Raw: raw, RawUnit: g.unit.Symbol,
 		Wire: "entered " + strconv.FormatFloat(value, 'g', -1, 64) + " " + u.Symbol}
 	close(g.fresh)
 	g.fresh = make(chan struct{})

@@ -54,7 +54,9 @@ func TestEntryErrors(t *testing.T) {
 		v    float64
 		unit string
 		at   time.Time
-	}{{math.NaN(), "kPa", now}, {math.Inf(1), "kPa", now}, {1, "stone", now}, {1, "kPa", time.Time{}}} {
+	}{{math.NaN(), "kPa", now}, {math.Inf(1), "kPa", now}, {1, "stone", now}, {1, "kPa", time.Time{}},
+		{1e305, "MPa", now}, // finite as typed, infinite in pascal
+	} {
 		if err := g.Enter(c.v, c.unit, c.at); err == nil {
 			t.Errorf("Enter(%v, %q, %v) accepted", c.v, c.unit, c.at)
 		}

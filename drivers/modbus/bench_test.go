@@ -26,7 +26,7 @@ func BenchmarkReadTCP(b *testing.B) {
 	f := strings.Fields(string(out))
 	secs, _ := strconv.ParseFloat(f[1], 64)
 
-	g := openGauge(b, inst("ref", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
+	g := mustOpen(b, inst("ref", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
 		config.ValueRead{Register: 10, Type: "float32"}))
 	ctx := context.Background()
 	if _, err := g.Read(ctx); err != nil { // connect outside the timing

@@ -23,22 +23,17 @@ func init() {
 
 // value is where one number lives and how it is decoded.
 type value struct {
-	table regType
+	table mb.RegType
 	addr  uint16
 	spec  regcodec.Spec
 	lin   regcodec.Linear
 }
 
-type regType struct {
-	name string
-	t    mb.RegType
-}
+var tables = map[string]mb.RegType{"holding": mb.HOLDING_REGISTER, "input": mb.INPUT_REGISTER}
 
+// parseValue checks a value spec; key names it in errors ("value",
+// "source.setpoint"). Every field must be set: the driver adds no defaults.
 func parseValue(v config.ValueRead, key string) (value, error) {
-	tables := map[string]regType{
-		"": {"holding", mb.HOLDING_REGISTER}, "holding": {"holding", mb.HOLDING_REGISTER},
-		"input": {"input", mb.INPUT_REGISTER},
-	}
 	t, ok := tables[strings.ToLower(v.Table)]
 	if !ok {
 		return value{}, fmt.Errorf("%s.table %q: want holding or input", key, v.Table)
@@ -50,13 +45,14 @@ func parseValue(v config.ValueRead, key string) (value, error) {
 	if v.Register < 0 || v.Register+spec.Words()-1 > 0xFFFF {
 		return value{}, fmt.Errorf("%s.register %d: want a 0-based wire address 0 … %d", key, v.Register, 0x10000-spec.Words())
 	}
-	return value{table: t, addr: uint16(v.Register), spec: spec, lin: regcodec.Linear{Scale: v.Scale, Offset: v.Offset}}, nil
+	lin, err := regcodec.NewLinear(v.Scale, v.Offset)
+	if err != nil {
+		return value{}, fmt.Errorf("%s: %w", key, err)
+	}
+	return value{table: t, addr: uint16(v.Register), spec: spec, lin: lin}, nil
 }
 
 func unitID(id int) (uint8, error) {
-	if id == 0 {
-		return 1, nil // the library's and most devices' default
-	}
 	if id < 1 || id > 247 {
 		return 0, fmt.Errorf("link.unit_id %d: want 1 … 247", id)
 	}
@@ -68,6 +64,7 @@ type Gauge struct {
 	name    string
 	unit    uint8
 	val     value
+	read    op // the read request, prepared once
 	conv    drivers.Conversion
 	link    *link
 	release func() error
@@ -81,6 +78,10 @@ var _ drivers.Gauge = (*Gauge)(nil)
 // the first Read does, so a missing device degrades the run instead of
 // stopping it.
 func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, error) {
+	return openGauge(inst, inst.Value, "value", env)
+}
+
+func openGauge(inst config.Instrument, v config.ValueRead, key string, env drivers.OpenEnv) (*Gauge, error) {
 	opts, err := linkOptions(inst.Link)
 	if err != nil {
 		return nil, err
@@ -89,7 +90,7 @@ func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, erro
 	if err != nil {
 		return nil, err
 	}
-	val, err := parseValue(inst.Value, "value")
+	val, err := parseValue(v, key)
 	if err != nil {
 		return nil, err
 	}
@@ -102,52 +103,29 @@ func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, erro
 		return nil, err
 	}
 	return &Gauge{name: inst.Name, unit: unit, val: val, conv: conv, link: l, release: release,
-		clk: env.Time(), log: env.Logger("instrument", inst.Name, "link", inst.Link.Kind)}, nil
+		read: op{code: opReadRegisters, unit: unit, table: val.table, addr: val.addr, n: uint16(val.spec.Words())},
+		clk:  env.Time(), log: env.Logger("instrument", inst.Name, "link", inst.Link.Kind)}, nil
 }
 
 // Read fetches the registers, decodes them and converts to pascal. The raw
 // words are kept in Reading.Wire as hex.
 func (g *Gauge) Read(ctx context.Context) (drivers.Reading, error) {
-	words, err := g.readWords(ctx, g.val)
+	res, err := g.link.run(ctx, &g.read)
 	if err != nil {
-		return drivers.Reading{}, err
+		return drivers.Reading{}, drivers.Fail(g.name, kindOf(err), err)
 	}
 	at := g.clk.Now()
-	wire := hexWords(words)
-	g.log.Debug("modbus read", "unit", g.unit, "table", g.val.table.name, "register", g.val.addr,
-		"count", len(words), "words", wire)
-	raw, err := regcodec.Decode(words, g.val.spec)
+	wire := regcodec.Hex(res.words)
+	if g.log.Enabled(ctx, slog.LevelDebug) {
+		g.log.Debug("modbus read", "unit", g.unit, "table", tableName(g.val.table), "register", g.val.addr,
+			"count", len(res.words), "words", wire)
+	}
+	raw, err := regcodec.Decode(res.words, g.val.spec)
 	if err != nil {
-		return drivers.Reading{}, drivers.Fail(g.name, drivers.KindBadReply, err)
+		return drivers.Reading{Time: at, Wire: wire}, drivers.Fail(g.name, drivers.KindBadReply, err)
 	}
 	return g.conv.Finish(g.name, drivers.Reading{Time: at, Raw: g.val.lin.Apply(raw), Wire: wire})
 }
 
-func (g *Gauge) readWords(ctx context.Context, v value) ([]uint16, error) {
-	var words []uint16
-	n := uint16(v.spec.Words())
-	err := g.link.run(ctx, request{unit: g.unit, what: fmt.Sprintf("read %s %d×%d", v.table.name, v.addr, n),
-		do: func(c *mb.ModbusClient) error {
-			var err error
-			words, err = c.ReadRegisters(v.addr, n, v.table.t)
-			return err
-		}})
-	if err != nil {
-		return nil, drivers.Fail(g.name, kindOf(err), err)
-	}
-	return words, nil
-}
-
 // Close releases the shared connection; the last user closes it.
 func (g *Gauge) Close() error { return g.release() }
-
-func hexWords(w []uint16) string {
-	var b strings.Builder
-	for i, x := range w {
-		if i > 0 {
-			b.WriteByte(' ')
-		}
-		fmt.Fprintf(&b, "%04X", x)
-	}
-	return b.String()
-}

@@ -22,26 +22,40 @@ import (
 	"plateau/drivers"
 )
 
-// Backoff limits for reconnecting.
+// maxBackoff caps the doubling wait between connect attempts (a fixed rule,
+// not an option: the configured backoff is where the doubling starts).
+const maxBackoff = 30 * time.Second
+
+// Parity of a serial line.
+type Parity uint
+
+// The parities a UART offers, as the Modbus library numbers them.
 const (
-	defaultBackoff = 500 * time.Millisecond
-	maxBackoff     = 30 * time.Second
+	ParityNone Parity = Parity(mb.PARITY_NONE)
+	ParityEven Parity = Parity(mb.PARITY_EVEN)
+	ParityOdd  Parity = Parity(mb.PARITY_ODD)
 )
 
-// LinkOptions are the settings of one connection, taken from config.Link.
+var parities = map[string]Parity{"none": ParityNone, "even": ParityEven, "odd": ParityOdd}
+
+// LinkOptions are the settings of one connection. The driver supplies no
+// values of its own: every option comes from the configuration, and one the
+// link cannot work without is an error at open that names it.
 type LinkOptions struct {
 	URL      string // tcp://host:port, rtu:///dev/ttyUSB0, rtuovertcp://host:port
+	Serial   bool   // the serial settings below apply (RTU on a local port)
 	Baud     int
 	DataBits int
-	Parity   string // none | even | odd
+	Parity   Parity
 	StopBits int
-	Timeout  time.Duration // per request; 0 = library default (300 ms RTU, 1 s TCP)
+	Timeout  time.Duration // per request; required
 	Retries  int           // extra attempts after a failed request
-	Backoff  time.Duration // first wait before another connect attempt; doubles up to 30 s
-	Pause    time.Duration // quiet time after each request
+	Backoff  time.Duration // first wait before another connect attempt; doubles up to 30 s; 0 = try at every request
+	Pause    time.Duration // quiet time after each request, and the step of the wait before a retry
 }
 
-// linkOptions maps a config link to LinkOptions.
+// linkOptions maps a config link to LinkOptions and says which option is
+// missing or wrong.
 func linkOptions(l config.Link) (LinkOptions, error) {
 	scheme := map[string]string{
 		config.LinkModbusTCP:    "tcp",
@@ -54,17 +68,39 @@ func linkOptions(l config.Link) (LinkOptions, error) {
 	if strings.TrimSpace(l.Address) == "" {
 		return LinkOptions{}, fmt.Errorf("link.address is empty: give host:port or a serial device path")
 	}
-	if l.Retries < 0 {
-		return LinkOptions{}, fmt.Errorf("link.retries %d is negative", l.Retries)
+	o := LinkOptions{URL: scheme + "://" + l.Address, Serial: l.Kind == config.LinkModbusRTU,
+		Timeout: l.Timeout, Retries: l.Retries, Backoff: l.Backoff, Pause: l.Pause}
+	var errs []error
+	if l.Timeout <= 0 {
+		errs = append(errs, fmt.Errorf("link.timeout %s: want a positive time-out per request", l.Timeout))
 	}
-	return LinkOptions{
-		URL: scheme + "://" + l.Address, Baud: l.Baud, DataBits: l.DataBits, Parity: l.Parity,
-		StopBits: l.StopBits, Timeout: l.Timeout, Retries: l.Retries, Backoff: l.Backoff, Pause: l.Pause,
-	}, nil
+	if l.Retries < 0 {
+		errs = append(errs, fmt.Errorf("link.retries %d is negative", l.Retries))
+	}
+	if l.Backoff < 0 || l.Pause < 0 {
+		errs = append(errs, fmt.Errorf("link.backoff %s, link.pause %s: cannot be negative", l.Backoff, l.Pause))
+	}
+	if o.Serial {
+		p, ok := parities[strings.ToLower(l.Parity)]
+		if !ok {
+			errs = append(errs, fmt.Errorf("link.parity %q: want none, even or odd", l.Parity))
+		}
+		if l.Baud <= 0 {
+			errs = append(errs, fmt.Errorf("link.baud %d: want the line's baud rate", l.Baud))
+		}
+		if l.DataBits < 5 || l.DataBits > 8 {
+			errs = append(errs, fmt.Errorf("link.data_bits %d: want 5 … 8", l.DataBits))
+		}
+		if l.StopBits != 1 && l.StopBits != 2 {
+			errs = append(errs, fmt.Errorf("link.stop_bits %d: want 1 or 2", l.StopBits))
+		}
+		o.Baud, o.DataBits, o.Parity, o.StopBits = l.Baud, l.DataBits, p, l.StopBits
+	}
+	return o, errors.Join(errs...)
 }
 
-// link is one Modbus client plus the goroutine that owns it. Fields below
-// bus are touched only from inside bus.Do.
+// link is one Modbus client plus the bus that gives it one owner. Fields
+// below bus are touched only while holding it.
 type link struct {
 	opts LinkOptions
 	bus  *drivers.Bus
@@ -72,6 +108,7 @@ type link struct {
 
 	client  *mb.ModbusClient
 	up      bool
+	unit    uint8 // the client's unit id, to skip setting it again
 	backoff time.Duration
 	nextTry time.Time
 }
@@ -86,23 +123,17 @@ func acquireLink(opts LinkOptions, log *slog.Logger) (*link, func() error, error
 }
 
 func newLink(opts LinkOptions, log *slog.Logger) (*link, error) {
-	parity := map[string]uint{"": mb.PARITY_NONE, "none": mb.PARITY_NONE, "even": mb.PARITY_EVEN, "odd": mb.PARITY_ODD}
-	p, ok := parity[strings.ToLower(opts.Parity)]
-	if !ok {
-		return nil, fmt.Errorf("link.parity %q: want none, even or odd", opts.Parity)
-	}
 	log = log.With("url", opts.URL)
-	c, err := mb.NewClient(&mb.ClientConfiguration{
-		URL: opts.URL, Speed: uint(opts.Baud), DataBits: uint(opts.DataBits), Parity: p,
-		StopBits: uint(opts.StopBits), Timeout: opts.Timeout,
+	cc := &mb.ClientConfiguration{URL: opts.URL, Timeout: opts.Timeout,
 		// The library writes to stdout without a logger; send it to slog at debug.
 		Logger: slog.NewLogLogger(log.Handler(), slog.LevelDebug),
-	})
+	}
+	if opts.Serial {
+		cc.Speed, cc.DataBits, cc.Parity, cc.StopBits = uint(opts.Baud), uint(opts.DataBits), uint(opts.Parity), uint(opts.StopBits)
+	}
+	c, err := mb.NewClient(cc)
 	if err != nil {
 		return nil, fmt.Errorf("modbus client %s: %w", opts.URL, err)
-	}
-	if opts.Backoff <= 0 {
-		opts.Backoff = defaultBackoff
 	}
 	return &link{opts: opts, bus: drivers.NewBus(opts.Pause), log: log, client: c, backoff: opts.Backoff}, nil
 }
@@ -116,42 +147,118 @@ func (l *link) Close() error {
 	return err
 }
 
-// request is one exchange with one unit.
-type request struct {
-	unit uint8
-	what string // for logs: "read holding 10×2"
-	do   func(c *mb.ModbusClient) error
+// opCode names the exchanges plateau makes.
+type opCode uint8
+
+const (
+	opReadRegisters opCode = iota + 1
+	opWriteRegisters
+	opWriteRegister
+	opWriteCoil
+	opReadDiscrete
+)
+
+// op is one exchange with one unit, described by value rather than by a
+// closure so that a read allocates nothing of plateau's own.
+type op struct {
+	code  opCode
+	unit  uint8
+	table mb.RegType
+	addr  uint16
+	n     uint16   // registers to read
+	words []uint16 // registers to write
+	value uint16   // the one register to write
 }
 
-// run executes r on the bus goroutine with connect, retries and reconnect.
-func (l *link) run(ctx context.Context, r request) error {
-	return l.bus.Do(ctx, func() error { return l.exchange(ctx, r) })
+// result is what an exchange returns.
+type result struct {
+	words []uint16
+	on    bool
 }
 
-func (l *link) exchange(ctx context.Context, r request) error {
+func (o *op) String() string {
+	switch o.code {
+	case opReadRegisters:
+		return fmt.Sprintf("read %s %d×%d", tableName(o.table), o.addr, o.n)
+	case opWriteRegisters:
+		return fmt.Sprintf("write holding %d×%d", o.addr, len(o.words))
+	case opWriteRegister:
+		return fmt.Sprintf("write holding %d", o.addr)
+	case opWriteCoil:
+		return fmt.Sprintf("write coil %d", o.addr)
+	default:
+		return fmt.Sprintf("read discrete input %d", o.addr)
+	}
+}
+
+func tableName(t mb.RegType) string {
+	if t == mb.INPUT_REGISTER {
+		return "input"
+	}
+	return "holding"
+}
+
+func (o *op) send(c *mb.ModbusClient) (r result, err error) {
+	switch o.code {
+	case opReadRegisters:
+		r.words, err = c.ReadRegisters(o.addr, o.n, o.table)
+	case opWriteRegisters:
+		err = c.WriteRegisters(o.addr, o.words)
+	case opWriteRegister:
+		err = c.WriteRegister(o.addr, o.value)
+	case opWriteCoil:
+		err = c.WriteCoil(o.addr, true)
+	case opReadDiscrete:
+		r.on, err = c.ReadDiscreteInput(o.addr)
+	default:
+		err = fmt.Errorf("modbus: unknown exchange %d", o.code)
+	}
+	return r, err
+}
+
+// run holds the line (never starting when ctx has ended) and executes o
+// with connect, retries and reconnect.
+func (l *link) run(ctx context.Context, o *op) (result, error) {
+	if err := l.bus.Acquire(ctx); err != nil {
+		return result{}, err
+	}
+	defer l.bus.Release()
+	return l.exchange(ctx, o)
+}
+
+func (l *link) exchange(ctx context.Context, o *op) (result, error) {
+	debug := l.log.Enabled(ctx, slog.LevelDebug)
 	var err error
 	for attempt := 0; attempt <= l.opts.Retries; attempt++ {
 		if attempt > 0 {
 			// Back off a little more on each retry; a busy device needs time.
-			wait := time.Duration(attempt) * max(l.opts.Pause, 20*time.Millisecond)
-			select {
-			case <-time.After(wait):
-			case <-ctx.Done():
-				return errors.Join(err, ctx.Err())
+			if err := sleep(ctx, time.Duration(attempt)*l.opts.Pause); err != nil {
+				return result{}, errors.Join(err, ctx.Err())
 			}
 		}
+		if ctx.Err() != nil { // a retry is a new request: not after a cancel
+			return result{}, errors.Join(err, ctx.Err())
+		}
 		if err = l.connect(); err != nil {
-			return err // the back-off decides when to try again, not the retry count
+			return result{}, err // the back-off decides when to try again, not the retry count
 		}
-		if err = l.client.SetUnitId(r.unit); err != nil {
-			return err
+		if o.unit != l.unit {
+			if err = l.client.SetUnitId(o.unit); err != nil {
+				return result{}, err
+			}
+			l.unit = o.unit
 		}
-		l.log.Debug("modbus request", "unit", r.unit, "request", r.what, "attempt", attempt+1)
-		err = r.do(l.client)
+		if debug {
+			l.log.Debug("modbus request", "unit", o.unit, "request", o.String(), "attempt", attempt+1)
+		}
+		var r result
+		r, err = o.send(l.client)
 		if err == nil {
-			return nil
+			return r, nil
 		}
-		l.log.Debug("modbus request failed", "unit", r.unit, "request", r.what, "attempt", attempt+1, "err", err)
+		if debug {
+			l.log.Debug("modbus request failed", "unit", o.unit, "request", o.String(), "attempt", attempt+1, "err", err)
+		}
 		if !isModbusError(err) {
 			// A transport error (io.EOF after the peer went away, reset, broken
 			// pipe): the library does not reconnect by itself.
@@ -160,10 +267,25 @@ func (l *link) exchange(ctx context.Context, r request) error {
 			continue
 		}
 		if !retryable(err) {
-			return err
+			return result{}, err
 		}
 	}
-	return err
+	return result{}, err
+}
+
+// sleep waits d or until ctx ends.
+func sleep(ctx context.Context, d time.Duration) error {
+	if d <= 0 {
+		return nil
+	}
+	t := time.NewTimer(d)
+	defer t.Stop()
+	select {
+	case <-t.C:
+		return nil
+	case <-ctx.Done():
+		return ctx.Err()
+	}
 }
 
 // connect opens the client when it is down, respecting the back-off.

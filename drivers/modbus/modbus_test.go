@@ -41,7 +41,7 @@ func TestReadEveryTypeFromLibmodbusTCP(t *testing.T) {
 	for _, table := range []string{"holding", "input"} {
 		for _, c := range peerValues {
 			t.Run(table+"/"+c.name, func(t *testing.T) {
-				g := openGauge(t, inst("ref", config.LinkModbusTCP, addr,
+				g := mustOpen(t, inst("ref", config.LinkModbusTCP, addr,
 					config.ValueRead{Table: table, Register: c.reg, Type: c.typ, WordOrder: c.ord, Scale: 1}))
 				r, err := g.Read(ctxT(t))
 				if err != nil {
@@ -85,7 +85,7 @@ func TestScaleAndCurrentLoop(t *testing.T) {
 	// uint16 counts of 0.01 kPa: 54321 → 543.21 kPa.
 	in := inst("dut", config.LinkModbusTCP, addr, config.ValueRead{Register: 1, Type: "uint16", Scale: 0.01})
 	in.Unit = "kPa"
-	r, err := openGauge(t, in).Read(ctxT(t))
+	r, err := mustOpen(t, in).Read(ctxT(t))
 	if err != nil || math.Abs(r.Pa-543210) > 1e-6 {
 		t.Errorf("scaled uint16: %+v %v", r, err)
 	}
@@ -94,14 +94,14 @@ func TestScaleAndCurrentLoop(t *testing.T) {
 	in = inst("tx", config.LinkModbusTCP, addr, config.ValueRead{Register: 24, Type: "float32"})
 	in.Unit = "mA"
 	in.Loop = config.CurrentLoop{Enabled: true, Lower: "0 bar", Upper: "10 bar"}
-	r, err = openGauge(t, in).Read(ctxT(t))
+	r, err = mustOpen(t, in).Read(ctxT(t))
 	if err != nil || math.Abs(r.Pa-5e5) > 1e-6 || r.Raw != 12 || r.RawUnit != "mA" {
 		t.Errorf("loop 12 mA: %+v %v", r, err)
 	}
 
 	// 2 mA is a NAMUR NE 43 failure signal: an error, never a pressure.
 	in.Value.Register = 26
-	_, err = openGauge(t, in).Read(ctxT(t))
+	_, err = mustOpen(t, in).Read(ctxT(t))
 	if !errors.Is(err, drivers.ErrOutOfRange) {
 		t.Errorf("loop 2 mA: err = %v, want out of range", err)
 	}
@@ -110,14 +110,14 @@ func TestScaleAndCurrentLoop(t *testing.T) {
 func TestExceptionReplyIsBadReply(t *testing.T) {
 	port, _ := startTCPPeer(t, 0)
 	// Register 150 is beyond the peer's map: libmodbus answers "illegal data address".
-	g := openGauge(t, inst("ref", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
+	g := mustOpen(t, inst("ref", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
 		config.ValueRead{Register: 150, Type: "uint16"}))
 	_, err := g.Read(ctxT(t))
 	if !errors.Is(err, drivers.ErrBadReply) || !strings.Contains(err.Error(), "illegal data address") {
 		t.Errorf("err = %v, want bad reply: illegal data address", err)
 	}
 	// The link stays usable after an exception.
-	g2 := openGauge(t, inst("ref2", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
+	g2 := mustOpen(t, inst("ref2", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
 		config.ValueRead{Register: 1, Type: "uint16"}))
 	if _, err := g2.Read(ctxT(t)); err != nil {
 		t.Errorf("read after exception: %v", err)
@@ -129,7 +129,7 @@ func TestSlowPeerTimesOut(t *testing.T) {
 	in := inst("ref", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port), config.ValueRead{Register: 1, Type: "uint16"})
 	in.Link.Timeout = 100 * time.Millisecond
 	in.Link.Retries = 0
-	g := openGauge(t, in)
+	g := mustOpen(t, in)
 	start := time.Now()
 	_, err := g.Read(ctxT(t))
 	if !errors.Is(err, drivers.ErrTimeout) {
@@ -142,7 +142,7 @@ func TestSlowPeerTimesOut(t *testing.T) {
 	// another URL) gets the answer from the same slow peer, which serves one
 	// connection at a time.
 	g.Close()
-	r, err := openGauge(t, inst("ref2", config.LinkModbusTCP, "localhost:"+strconv.Itoa(port),
+	r, err := mustOpen(t, inst("ref2", config.LinkModbusTCP, "localhost:"+strconv.Itoa(port),
 		config.ValueRead{Register: 1, Type: "uint16"})).Read(ctxT(t))
 	if err != nil || r.Raw != 54321 {
 		t.Errorf("patient read: %v %v", r.Raw, err)
@@ -152,7 +152,7 @@ func TestSlowPeerTimesOut(t *testing.T) {
 func TestRecoversAfterPeerRestart(t *testing.T) {
 	bin := peerBinary(t)
 	port, p := startTCPPeer(t, 0)
-	g := openGauge(t, inst("ref", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
+	g := mustOpen(t, inst("ref", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port),
 		config.ValueRead{Register: 10, Type: "float32"}))
 	ctx := ctxT(t)
 	if _, err := g.Read(ctx); err != nil {
@@ -194,7 +194,7 @@ func TestSourceWritesAndMbpollReadsBack(t *testing.T) {
 	in := inst("ctl", config.LinkModbusTCP, "127.0.0.1:"+strconv.Itoa(port), config.ValueRead{})
 	in.Role = config.RoleSource
 	coil, reached := 3, 2
-	in.Set = config.SourceControl{Setpoint: config.ValueRead{Register: 30, Type: "float32", WordOrder: "ABCD"},
+	in.Set = config.SourceControl{Setpoint: complete(config.ValueRead{Register: 30, Type: "float32", WordOrder: "ABCD"}),
 		VentCoil: &coil, ReachedInput: &reached}
 	s, err := drivers.OpenSource(in, drivers.OpenEnv{})
 	if err != nil {
@@ -224,7 +224,7 @@ func TestSourceWritesAndMbpollReadsBack(t *testing.T) {
 		t.Errorf("mbpoll vent coil: %v\n%s", err, out)
 	}
 	// A setpoint an int16 register cannot hold is refused before anything is sent.
-	in.Set.Setpoint = config.ValueRead{Register: 32, Type: "int16", Scale: 0.001}
+	in.Set.Setpoint = complete(config.ValueRead{Register: 32, Type: "int16", Scale: 0.001})
 	s2, err := drivers.OpenSource(in, drivers.OpenEnv{})
 	if err != nil {
 		t.Fatal(err)
@@ -252,7 +252,7 @@ func TestRTUOverPtyFromLibmodbus(t *testing.T) {
 	}{{10, "float32", "ABCD", 123.45600128173828}, {14, "float32", "CDAB", 123.45600128173828}, {2, "int32", "", -123456789}} {
 		in := inst("g"+strconv.Itoa(c.reg), config.LinkModbusRTU, b, config.ValueRead{Register: c.reg, Type: c.typ, WordOrder: c.ord})
 		in.Link.Pause = 2 * time.Millisecond
-		g := openGauge(t, in)
+		g := mustOpen(t, in)
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
@@ -289,7 +289,7 @@ func TestRTUOverTCPGateway(t *testing.T) {
 		t.Fatal(err)
 	}
 	in := inst("gw", config.LinkModbusRTUTCP, "127.0.0.1:"+strconv.Itoa(port), config.ValueRead{Register: 16, Type: "float32", WordOrder: "DCBA"})
-	g := openGauge(t, in)
+	g := mustOpen(t, in)
 	var r drivers.Reading
 	var err error
 	waitFor(t, func() bool { r, err = g.Read(ctxT(t)); return err == nil }) // socat may still be binding

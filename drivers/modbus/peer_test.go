@@ -179,16 +179,32 @@ func waitFor(t testing.TB, ok func() bool) {
 	t.Fatal("condition not met in 5 s")
 }
 
-// inst builds a Modbus instrument config.
+// inst builds a Modbus instrument config with every option set, as the
+// configuration supplies them: the driver adds no defaults of its own.
 func inst(name, kind, addr string, v config.ValueRead) config.Instrument {
 	return config.Instrument{
-		Name: name, Role: config.RoleReference, Unit: "bar", Value: v,
+		Name: name, Role: config.RoleReference, Unit: "bar", Value: complete(v),
 		Link: config.Link{Kind: kind, Address: addr, UnitID: 1, Baud: 19200, DataBits: 8, Parity: "none", StopBits: 1,
 			Timeout: 500 * time.Millisecond, Retries: 1, Backoff: 100 * time.Millisecond},
 	}
 }
 
-func openGauge(t testing.TB, in config.Instrument) drivers.Gauge {
+// complete fills what a test's value spec leaves out: holding registers,
+// big-endian order, no scaling.
+func complete(v config.ValueRead) config.ValueRead {
+	if v.Table == "" {
+		v.Table = "holding"
+	}
+	if v.WordOrder == "" {
+		v.WordOrder = "ABCD" // "AB" for 16-bit types
+	}
+	if v.Scale == 0 {
+		v.Scale = 1
+	}
+	return v
+}
+
+func mustOpen(t testing.TB, in config.Instrument) drivers.Gauge {
 	t.Helper()
 	g, err := drivers.OpenGauge(in, drivers.OpenEnv{})
 	if err != nil {

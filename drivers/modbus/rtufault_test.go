@@ -86,7 +86,7 @@ func TestRTUFaults(t *testing.T) {
 			in := inst("dut", config.LinkModbusRTU, dev, config.ValueRead{Register: 0x6B, Type: "uint16"})
 			in.Link.Timeout = 150 * time.Millisecond
 			in.Link.Retries = 0
-			g := openGauge(t, in)
+			g := mustOpen(t, in)
 			ctx := ctxT(t)
 			if r, err := g.Read(ctx); err != nil || r.Raw != 555 || r.Wire != "022B" {
 				t.Fatalf("control read: %+v %v", r, err)
@@ -111,7 +111,7 @@ func TestRTURetryAfterBadCRC(t *testing.T) {
 	dev := fakeRTU(t, badCRC, good)
 	in := inst("dut", config.LinkModbusRTU, dev, config.ValueRead{Register: 1, Type: "uint16"})
 	in.Link.Retries = 1
-	g := openGauge(t, in)
+	g := mustOpen(t, in)
 	if r, err := g.Read(ctxT(t)); err != nil || r.Raw != 555 {
 		t.Fatalf("read with one retry: %+v %v", r, err)
 	}

@@ -4,8 +4,8 @@ import (
 	"context"
 	"errors"
 	"fmt"
-
-	mb "github.com/simonvetter/modbus"
+	"log/slog"
+	"math"
 
 	"plateau/config"
 	"plateau/drivers"
@@ -16,7 +16,7 @@ import (
 // scaled integer) to holding registers, vents through a coil or a register
 // and, when configured, reads a "setpoint reached" discrete input.
 type Source struct {
-	Gauge        // shares link, unit and logging; its value is the setpoint
+	*Gauge       // shares link, unit and logging; its value is the setpoint
 	ventCoil     int
 	ventRegister int
 	ventValue    uint16
@@ -32,7 +32,7 @@ var (
 // (instrument.source). Absent coil and register numbers mean "not used".
 func OpenSource(inst config.Instrument, env drivers.OpenEnv) (drivers.Source, error) {
 	set := inst.Set
-	if set.Setpoint.Table != "" && set.Setpoint.Table != "holding" {
+	if set.Setpoint.Table != "holding" {
 		return nil, fmt.Errorf("source.setpoint.table %q: setpoints are written to holding registers", set.Setpoint.Table)
 	}
 	if set.VentCoil == nil && set.VentRegister == nil {
@@ -42,13 +42,12 @@ func OpenSource(inst config.Instrument, env drivers.OpenEnv) (drivers.Source, er
 		return nil, fmt.Errorf("source.vent_value %d: want 0 … 65535", set.VentValue)
 	}
 	gi := inst
-	gi.Value = set.Setpoint
 	gi.Loop = config.CurrentLoop{} // a setpoint is a pressure in Instrument.Unit
-	g, err := OpenGauge(gi, env)
+	g, err := openGauge(gi, set.Setpoint, "source.setpoint", env)
 	if err != nil {
 		return nil, err
 	}
-	src := &Source{Gauge: *g.(*Gauge), ventCoil: -1, ventRegister: -1, ventValue: uint16(set.VentValue), reachedInput: -1}
+	src := &Source{Gauge: g, ventCoil: -1, ventRegister: -1, ventValue: uint16(set.VentValue), reachedInput: -1}
 	for _, f := range []struct {
 		key string
 		p   *int
@@ -67,29 +66,29 @@ func OpenSource(inst config.Instrument, env drivers.OpenEnv) (drivers.Source, er
 }
 
 // SetPoint writes the setpoint, converted to the instrument's unit and the
-// register's scale.
+// register's scale. A setpoint that is not a finite number, before or after
+// conversion, is refused before anything is sent.
 func (s *Source) SetPoint(ctx context.Context, pa float64) error {
 	v := s.val.lin.Invert(s.conv.FromPa(pa))
+	if math.IsNaN(pa) || math.IsInf(pa, 0) || math.IsNaN(v) || math.IsInf(v, 0) {
+		return fmt.Errorf("setpoint %s: %g Pa (%g in the register) is not a finite number; nothing sent", s.name, pa, v)
+	}
 	words, err := regcodec.Encode(v, s.val.spec)
 	if err != nil {
 		return fmt.Errorf("setpoint %s: %w", s.name, err)
 	}
-	s.log.Debug("modbus write setpoint", "unit", s.unit, "register", s.val.addr, "pa", pa, "words", hexWords(words))
-	return s.write(ctx, fmt.Sprintf("write holding %d×%d", s.val.addr, len(words)), func(c *mb.ModbusClient) error {
-		return c.WriteRegisters(s.val.addr, words)
-	})
+	if s.log.Enabled(ctx, slog.LevelDebug) {
+		s.log.Debug("modbus write setpoint", "unit", s.unit, "register", s.val.addr, "pa", pa, "words", regcodec.Hex(words))
+	}
+	return s.write(ctx, &op{code: opWriteRegisters, unit: s.unit, addr: s.val.addr, words: words})
 }
 
 // Vent opens the controller to atmosphere.
 func (s *Source) Vent(ctx context.Context) error {
 	if s.ventCoil >= 0 {
-		return s.write(ctx, fmt.Sprintf("write coil %d", s.ventCoil), func(c *mb.ModbusClient) error {
-			return c.WriteCoil(uint16(s.ventCoil), true)
-		})
+		return s.write(ctx, &op{code: opWriteCoil, unit: s.unit, addr: uint16(s.ventCoil)})
 	}
-	return s.write(ctx, fmt.Sprintf("write holding %d", s.ventRegister), func(c *mb.ModbusClient) error {
-		return c.WriteRegister(uint16(s.ventRegister), s.ventValue)
-	})
+	return s.write(ctx, &op{code: opWriteRegister, unit: s.unit, addr: uint16(s.ventRegister), value: s.ventValue})
 }
 
 // Reached reads the controller's "setpoint reached" discrete input. Without
@@ -98,22 +97,16 @@ func (s *Source) Reached(ctx context.Context) (bool, error) {
 	if s.reachedInput < 0 {
 		return false, fmt.Errorf("source %s: no reached_input configured", s.name)
 	}
-	var on bool
-	err := s.link.run(ctx, request{unit: s.unit, what: fmt.Sprintf("read discrete input %d", s.reachedInput),
-		do: func(c *mb.ModbusClient) error {
-			var err error
-			on, err = c.ReadDiscreteInput(uint16(s.reachedInput))
-			return err
-		}})
+	res, err := s.link.run(ctx, &op{code: opReadDiscrete, unit: s.unit, addr: uint16(s.reachedInput)})
 	if err != nil {
 		return false, drivers.Fail(s.name, kindOf(err), err)
 	}
-	return on, nil
+	return res.on, nil
 }
 
-func (s *Source) write(ctx context.Context, what string, do func(c *mb.ModbusClient) error) error {
-	if err := s.link.run(ctx, request{unit: s.unit, what: what, do: do}); err != nil {
-		return drivers.Fail(s.name, kindOf(err), fmt.Errorf("%s: %w", what, err))
+func (s *Source) write(ctx context.Context, o *op) error {
+	if _, err := s.link.run(ctx, o); err != nil {
+		return drivers.Fail(s.name, kindOf(err), fmt.Errorf("%s: %w", o, err))
 	}
 	return nil
 }

@@ -23,6 +23,11 @@ import (
 type Spec struct {
 	Type      string // int16 | uint16 | int32 | uint32 | float32 | float64
 	WordOrder string // canonical order name, as returned by ParseSpec
+
+	// Set by ParseSpec so that a decode does not parse the names again; a
+	// Spec built by hand is checked on every use instead.
+	n  int
+	sw swaps
 }
 
 var typeWords = map[string]int{
@@ -47,9 +52,8 @@ var aliases = map[int]map[string]string{
 	4: {"ABCD": "ABCDEFGH", "CDAB": "GHEFCDAB", "BADC": "BADCFEHG", "DCBA": "HGFEDCBA"},
 }
 
-// ParseSpec checks a type and an order and returns the canonical Spec. An
-// empty order means big-endian (ABCD), the order the Modbus specification
-// uses inside a register.
+// ParseSpec checks a type and an order and returns the canonical Spec. Both
+// are required; the configuration says which order a device uses.
 func ParseSpec(typ, order string) (Spec, error) {
 	t := strings.ToLower(strings.TrimSpace(typ))
 	n, ok := typeWords[t]
@@ -58,15 +62,16 @@ func ParseSpec(typ, order string) (Spec, error) {
 	}
 	o := strings.ToUpper(strings.TrimSpace(order))
 	if o == "" {
-		o = "ABCD"
+		return Spec{}, fmt.Errorf("word order for %s is empty: want one of %s", t, orderList(n))
 	}
 	if a, ok := aliases[n][o]; ok {
 		o = a
 	}
-	if _, ok := orders[n][o]; !ok {
+	sw, ok := orders[n][o]
+	if !ok {
 		return Spec{}, fmt.Errorf("word order %q for %s: want one of %s", order, t, orderList(n))
 	}
-	return Spec{Type: t, WordOrder: o}, nil
+	return Spec{Type: t, WordOrder: o, n: n, sw: sw}, nil
 }
 
 func orderList(n int) string {
@@ -90,6 +95,9 @@ func (s Spec) String() string { return s.Type + "/" + s.WordOrder }
 
 // layout validates s (which may have been built by hand) and returns its swaps.
 func (s Spec) layout() (int, swaps, error) {
+	if s.n > 0 {
+		return s.n, s.sw, nil
+	}
 	p, err := ParseSpec(s.Type, s.WordOrder)
 	if err != nil {
 		return 0, swaps{}, err
@@ -144,7 +152,8 @@ func Decode(words []uint16, s Spec) (float64, error) {
 	if len(words) != n {
 		return 0, fmt.Errorf("decode %s: got %d registers, want %d", s, len(words), n)
 	}
-	be := arrange(append([]uint16(nil), words...), sw) // the swaps are their own inverse
+	var buf [4]uint16                            // at most four words; a copy so the caller's words stay as they came
+	be := arrange(buf[:copy(buf[:], words)], sw) // the swaps are their own inverse
 	var bits uint64
 	for _, w := range be {
 		bits = bits<<16 | uint64(w)
@@ -200,22 +209,44 @@ func intLimits(typ string) (lo, hi float64) {
 }
 
 // Linear is the scaling from register value to engineering value:
-// value = raw × Scale + Offset. A zero Scale means "not set" and acts as 1,
-// because a zero gain would map every reading to the same number.
+// value = raw × Scale + Offset.
 type Linear struct {
 	Scale  float64
 	Offset float64
 }
 
-func (l Linear) gain() float64 {
-	if l.Scale == 0 {
-		return 1
+// NewLinear checks a scaling: a zero gain would map every reading to the
+// same number, and a gain or offset that is not finite no number at all.
+func NewLinear(scale, offset float64) (Linear, error) {
+	if scale == 0 || math.IsNaN(scale) || math.IsInf(scale, 0) {
+		return Linear{}, fmt.Errorf("scale %g: want a finite, non-zero number", scale)
 	}
-	return l.Scale
+	if math.IsNaN(offset) || math.IsInf(offset, 0) {
+		return Linear{}, fmt.Errorf("offset %g: want a finite number", offset)
+	}
+	return Linear{Scale: scale, Offset: offset}, nil
 }
 
 // Apply converts a decoded register value into the engineering value.
-func (l Linear) Apply(raw float64) float64 { return raw*l.gain() + l.Offset }
+func (l Linear) Apply(raw float64) float64 { return raw*l.Scale + l.Offset }
 
 // Invert converts an engineering value into the register value to encode.
-func (l Linear) Invert(v float64) float64 { return (v - l.Offset) / l.gain() }
+func (l Linear) Invert(v float64) float64 { return (v - l.Offset) / l.Scale }
+
+const hexDigits = "0123456789ABCDEF"
+
+// Hex writes register words as upper-case hex, four digits each, separated
+// by spaces ("42F6 E979"): the audit form of a reading's raw words.
+func Hex(words []uint16) string {
+	if len(words) == 0 {
+		return ""
+	}
+	b := make([]byte, 0, 5*len(words)-1)
+	for i, w := range words {
+		if i > 0 {
+			b = append(b, ' ')
+		}
+		b = append(b, hexDigits[w>>12], hexDigits[w>>8&0xF], hexDigits[w>>4&0xF], hexDigits[w&0xF])
+	}
+	return string(b)
+}

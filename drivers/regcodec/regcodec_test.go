@@ -118,7 +118,7 @@ func TestIntegerAndFloat64Placement(t *testing.T) {
 		// REFERENCES §9.1: FC03 reply values 555, 0, 100 are 0x022B, 0x0000, 0x0064.
 		{"uint16", "AB", 555, []uint16{0x022B}},
 		{"uint16", "BA", 555, []uint16{0x2B02}},
-		{"int16", "", -2, []uint16{0xFFFE}},
+		{"int16", "AB", -2, []uint16{0xFFFE}},
 		{"int32", "ABCD", 0x12345678, []uint16{0x1234, 0x5678}},
 		{"int32", "CDAB", 0x12345678, []uint16{0x5678, 0x1234}},
 		{"int32", "BADC", 0x12345678, []uint16{0x3412, 0x7856}},
@@ -161,20 +161,21 @@ func TestEncodeRejectsOutOfRange(t *testing.T) {
 		{"int16", math.NaN()}, {"uint32", math.Inf(1)}, {"float32", 1e39},
 	}
 	for _, c := range cases {
-		s, _ := ParseSpec(c.typ, "")
+		s, _ := ParseSpec(c.typ, "ABCD")
 		if _, err := Encode(c.v, s); !errors.Is(err, ErrRange) {
 			t.Errorf("Encode(%g,%s) err = %v, want ErrRange", c.v, c.typ, err)
 		}
 	}
 	// Rounding to the nearest integer keeps in-range fractions.
-	s, _ := ParseSpec("int16", "")
+	s, _ := ParseSpec("int16", "AB")
 	if w, err := Encode(-1.4, s); err != nil || w[0] != 0xFFFF {
 		t.Errorf("Encode(-1.4,int16) = %04X, %v", w, err)
 	}
 }
 
 func TestParseSpecErrors(t *testing.T) {
-	bad := [][2]string{{"float", "ABCD"}, {"int64", ""}, {"float32", "ABDC"}, {"float32", "ABCDEFGH"}, {"int16", "CD"}}
+	bad := [][2]string{{"float", "ABCD"}, {"int64", ""}, {"float32", "ABDC"}, {"float32", "ABCDEFGH"}, {"int16", "CD"},
+		{"float32", ""}, {"int16", " "}} // no order: the configuration must say which
 	for _, b := range bad {
 		if _, err := ParseSpec(b[0], b[1]); err == nil {
 			t.Errorf("ParseSpec(%q,%q) accepted", b[0], b[1])
@@ -207,19 +208,56 @@ func TestDecodeErrors(t *testing.T) {
 
 func TestLinear(t *testing.T) {
 	cases := []struct {
-		l        Linear
-		raw, val float64
+		scale, offset float64
+		raw, val      float64
 	}{
-		{Linear{}, 12.5, 12.5},                      // zero scale means unset
-		{Linear{Scale: 0.01}, 10132, 101.32},        // counts of 0.01 bar
-		{Linear{Scale: 0.1, Offset: -100}, 1000, 0}, // offset for a compound range
+		{1, 0, 12.5, 12.5},
+		{0.01, 0, 10132, 101.32}, // counts of 0.01 bar
+		{0.1, -100, 1000, 0},     // offset for a compound range
+		{-2, 5, 1, 3},            // a falling characteristic is still a scaling
 	}
 	for _, c := range cases {
-		if got := c.l.Apply(c.raw); math.Abs(got-c.val) > 1e-9 {
-			t.Errorf("%+v.Apply(%g) = %g, want %g", c.l, c.raw, got, c.val)
+		l, err := NewLinear(c.scale, c.offset)
+		if err != nil {
+			t.Fatalf("NewLinear(%g, %g): %v", c.scale, c.offset, err)
 		}
-		if got := c.l.Invert(c.val); math.Abs(got-c.raw) > 1e-9 {
-			t.Errorf("%+v.Invert(%g) = %g, want %g", c.l, c.val, got, c.raw)
+		if got := l.Apply(c.raw); math.Abs(got-c.val) > 1e-9 {
+			t.Errorf("%+v.Apply(%g) = %g, want %g", l, c.raw, got, c.val)
+		}
+		if got := l.Invert(c.val); math.Abs(got-c.raw) > 1e-9 {
+			t.Errorf("%+v.Invert(%g) = %g, want %g", l, c.val, got, c.raw)
+		}
+	}
+}
+
+func TestNewLinearRefusesWhatIsNoScaling(t *testing.T) {
+	for _, c := range []struct {
+		name          string
+		scale, offset float64
+	}{
+		{"zero scale", 0, 0},
+		{"NaN scale", math.NaN(), 0},
+		{"infinite scale", math.Inf(1), 0},
+		{"NaN offset", 1, math.NaN()},
+		{"infinite offset", 1, math.Inf(-1)},
+	} {
+		if _, err := NewLinear(c.scale, c.offset); err == nil {
+			t.Errorf("%s: accepted", c.name)
+		}
+	}
+}
+
+func TestHex(t *testing.T) {
+	for _, c := range []struct {
+		words []uint16
+		want  string
+	}{
+		{nil, ""},
+		{[]uint16{0x42F6, 0xE979}, "42F6 E979"},
+		{[]uint16{0, 0xF, 0xABCD, 0xFFFF}, "0000 000F ABCD FFFF"},
+	} {
+		if got := Hex(c.words); got != c.want {
+			t.Errorf("Hex(%04X) = %q, want %q", c.words, got, c.want)
 		}
 	}
 }

@@ -1,0 +1,92 @@
+package modbus
+
+import (
+	"strings"
+	"testing"
+	"time"
+
+	"plateau/config"
+	"plateau/drivers"
+)
+
+// The driver adds no defaults: an option it cannot work without, left unset,
+// is an error at open that names the option.
+func TestUnsetOptionsAreErrorsAtOpen(t *testing.T) {
+	rtu := func() config.Instrument {
+		return inst("dut", config.LinkModbusRTU, "/dev/null", config.ValueRead{Register: 1, Type: "uint16"})
+	}
+	tcp := func() config.Instrument {
+		return inst("ref", config.LinkModbusTCP, "127.0.0.1:1502", config.ValueRead{Register: 1, Type: "uint16"})
+	}
+	cases := []struct {
+		name   string
+		in     func() config.Instrument
+		change func(*config.Instrument)
+		key    string
+	}{
+		{"timeout", tcp, func(in *config.Instrument) { in.Link.Timeout = 0 }, "link.timeout"},
+		{"unit id", tcp, func(in *config.Instrument) { in.Link.UnitID = 0 }, "link.unit_id"},
+		{"table", tcp, func(in *config.Instrument) { in.Value.Table = "" }, "value.table"},
+		{"type", tcp, func(in *config.Instrument) { in.Value.Type = "" }, "value type"},
+		{"word order", tcp, func(in *config.Instrument) { in.Value.WordOrder = "" }, "word order"},
+		{"scale", tcp, func(in *config.Instrument) { in.Value.Scale = 0 }, "scale"},
+		{"unit", tcp, func(in *config.Instrument) { in.Unit = "" }, "unit"},
+		{"baud", rtu, func(in *config.Instrument) { in.Link.Baud = 0 }, "link.baud"},
+		{"data bits", rtu, func(in *config.Instrument) { in.Link.DataBits = 0 }, "link.data_bits"},
+		{"parity", rtu, func(in *config.Instrument) { in.Link.Parity = "" }, "link.parity"},
+		{"stop bits", rtu, func(in *config.Instrument) { in.Link.StopBits = 0 }, "link.stop_bits"},
+		{"negative retries", tcp, func(in *config.Instrument) { in.Link.Retries = -1 }, "link.retries"},
+		{"negative backoff", tcp, func(in *config.Instrument) { in.Link.Backoff = -time.Second }, "link.backoff"},
+		{"NaN offset", tcp, func(in *config.Instrument) { in.Value.Offset = nan() }, "offset"},
+		{"infinite scale", tcp, func(in *config.Instrument) { in.Value.Scale = inf() }, "scale"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			in := c.in()
+			c.change(&in)
+			g, err := drivers.OpenGauge(in, drivers.OpenEnv{})
+			if err == nil {
+				g.Close()
+				t.Fatalf("opened without %s", c.key)
+			}
+			if !strings.Contains(err.Error(), c.key) {
+				t.Errorf("error %q does not name %s", err, c.key)
+			}
+		})
+	}
+	// Serial settings mean nothing to TCP: not needed there.
+	in := tcp()
+	in.Link.Baud, in.Link.DataBits, in.Link.Parity, in.Link.StopBits = 0, 0, "", 0
+	g, err := drivers.OpenGauge(in, drivers.OpenEnv{})
+	if err != nil {
+		t.Fatalf("TCP without serial settings: %v", err)
+	}
+	g.Close()
+}
+
+// Every problem of one link is reported at once, not one per attempt.
+func TestLinkOptionsListEveryProblem(t *testing.T) {
+	_, err := linkOptions(config.Link{Kind: config.LinkModbusRTU, Address: "/dev/ttyUSB0"})
+	if err == nil {
+		t.Fatal("empty RTU link accepted")
+	}
+	for _, key := range []string{"link.timeout", "link.parity", "link.baud", "link.data_bits", "link.stop_bits"} {
+		if !strings.Contains(err.Error(), key) {
+			t.Errorf("%q missing from %q", key, err)
+		}
+	}
+}
+
+// A source's setpoint spec is checked like a value spec, under its own key.
+func TestSourceSetpointNeedsEveryOption(t *testing.T) {
+	in := inst("ctl", config.LinkModbusTCP, "127.0.0.1:1502", config.ValueRead{})
+	coil := 3
+	in.Set = config.SourceControl{Setpoint: config.ValueRead{Table: "holding", Register: 30, Type: "float32", WordOrder: "ABCD"}, VentCoil: &coil}
+	if _, err := drivers.OpenSource(in, drivers.OpenEnv{}); err == nil || !strings.Contains(err.Error(), "source.setpoint") {
+		t.Errorf("setpoint without scale: %v", err)
+	}
+	in.Set.Setpoint.Scale, in.Set.Setpoint.Table = 1, ""
+	if _, err := drivers.OpenSource(in, drivers.OpenEnv{}); err == nil || !strings.Contains(err.Error(), "source.setpoint.table") {
+		t.Errorf("setpoint without table: %v", err)
+	}
+}
