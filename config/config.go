@@ -25,6 +25,11 @@ type Config struct {
 
 	// File is the path the configuration was read from ("" for defaults only).
 	File string `mapstructure:"-"`
+	// Devices are the devices under test in instrument order, resolved; a
+	// file with one device has one, the same as Device.
+	Devices []DeviceUnderTest `mapstructure:"-"`
+	// Warnings are what check reports but a run may go ahead with.
+	Warnings []Problem `mapstructure:"-"`
 }
 
 // Store says where the bbolt file lives.
@@ -69,6 +74,8 @@ type Device struct {
 	LowerPa      float64 `mapstructure:"-"`
 	UpperPa      float64 `mapstructure:"-"`
 	ResolutionPa float64 `mapstructure:"-"`
+
+	okLower, okUpper, okResolution bool // the quantity could be read
 }
 
 // Limit is a custom permissible error; the parts add up.
@@ -102,6 +109,8 @@ type Reference struct {
 	UncertaintyPct float64   `mapstructure:"-"`
 	FloorPa        float64   `mapstructure:"-"`
 	ExpiresAt      time.Time `mapstructure:"-"`
+
+	okLower, okUpper bool // the quantity was given and could be read
 }
 
 // Procedure is the plan of a calibration.
@@ -127,6 +136,8 @@ type Procedure struct {
 	Settle   Settle `mapstructure:"settle"`
 
 	PointsPa []float64 `mapstructure:"-"`
+
+	pointIndex []int // the index in Points of each of PointsPa
 }
 
 // Settle is the rule that says an instrument holds a steady value.
@@ -144,7 +155,10 @@ type Settle struct {
 
 // Safety limits, enforced by the engine on every reference reading.
 type Safety struct {
-	MaxPressure string `mapstructure:"max_pressure"` // never to be exceeded; vent and abort above it
+	MaxPressure string `mapstructure:"max_pressure"` // never to be exceeded; vent and pause above it
+	// Silence is how long the reference may give no good reading while the
+	// source is driven before the guard vents; 0 means five reference polls.
+	Silence time.Duration `mapstructure:"silence"`
 
 	MaxPressurePa float64 `mapstructure:"-"`
 	Set           bool    `mapstructure:"-"` // the limit is in force (the device range is valid)

@@ -18,40 +18,72 @@ func TestExamplesValidate(t *testing.T) {
 			if len(cfg.Instruments) < 2 || cfg.Device.UpperPa <= 0 || len(cfg.Procedure.PointsPa) == 0 {
 				t.Fatalf("incomplete: %+v", cfg)
 			}
+			if len(cfg.Devices) != 1 || cfg.Devices[0].Device != cfg.Device {
+				t.Fatalf("one device expected, the device section: %+v", cfg.Devices)
+			}
 		})
 	}
 }
 
-// Each file in testdata/config/bad starts with "# want: fragment"; loading
-// it must fail with an error that contains the fragment.
+// Each file in testdata/config/bad starts with "# want: fragment", then
+// optionally "# env: NAME=value" lines to set before loading. Loading it
+// must report a problem (an error, or a warning when the fragment says
+// "warning:") whose text contains the fragment, naming the file.
 func TestBrokenConfigs(t *testing.T) {
 	files, err := filepath.Glob("../testdata/config/bad/*.yaml")
-	if err != nil || len(files) < 10 {
+	if err != nil || len(files) < 50 {
 		t.Fatalf("bad configs: %v (%d files)", err, len(files))
 	}
 	for _, f := range files {
 		t.Run(filepath.Base(f), func(t *testing.T) {
-			data, err := os.ReadFile(f)
-			if err != nil {
-				t.Fatal(err)
+			want, env := brokenHeader(t, f)
+			for k, v := range env {
+				t.Setenv(k, v)
 			}
-			first, _, _ := strings.Cut(string(data), "\n")
-			want, ok := strings.CutPrefix(first, "# want: ")
-			if !ok {
-				t.Fatalf("%s: first line must be '# want: fragment'", f)
-			}
-			_, err = Load(f)
-			if err == nil {
+			cfg, err := Load(f)
+			text := ""
+			switch {
+			case err != nil:
+				text = err.Error()
+				if !strings.Contains(text, f) {
+					t.Fatalf("error does not name the file %s:\n%v", f, err)
+				}
+			case strings.Contains(want, "warning:"):
+				for _, w := range cfg.Warnings {
+					text += w.String() + "\n"
+				}
+			default:
 				t.Fatalf("loaded without error; want %q", want)
 			}
-			if !strings.Contains(err.Error(), want) {
-				t.Fatalf("error does not contain %q:\n%v", want, err)
-			}
-			if !strings.Contains(err.Error(), f) {
-				t.Fatalf("error does not name the file %s:\n%v", f, err)
+			if !strings.Contains(text, want) {
+				t.Fatalf("problems do not contain %q:\n%s", want, text)
 			}
 		})
 	}
+}
+
+// brokenHeader reads the "# want:" and "# env:" lines of a broken file.
+func brokenHeader(t *testing.T, path string) (string, map[string]string) {
+	t.Helper()
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(string(data), "\n")
+	want, ok := strings.CutPrefix(lines[0], "# want: ")
+	if !ok {
+		t.Fatalf("%s: first line must be '# want: fragment'", path)
+	}
+	env := map[string]string{}
+	for _, l := range lines[1:] {
+		kv, ok := strings.CutPrefix(l, "# env: ")
+		if !ok {
+			break
+		}
+		k, v, _ := strings.Cut(kv, "=")
+		env[k] = v
+	}
+	return want, env
 }
 
 // Every problem is reported at once, not only the first.

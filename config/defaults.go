@@ -67,6 +67,7 @@ func defaults() map[string]any {
 		"procedure.settle.band":       "2 %",
 
 		"safety.max_pressure": "",
+		"safety.silence":      "0s",
 
 		"head.fluid_density":       1.2,
 		"head.ambient_density":     1.2,

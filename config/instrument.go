@@ -36,6 +36,9 @@ type Instrument struct {
 	// driver uses to reach it: "modbus-tcp", "modbus-rtu" or "serial".
 	SimPart string `mapstructure:"sim_part"`
 	SimVia  string `mapstructure:"sim_via"`
+	// Device describes this device under test when a run holds several;
+	// nil for other roles and for the one device of the top-level section.
+	Device *DeviceEntry `mapstructure:"device"`
 }
 
 // Link says where an instrument is and how to talk to it.
@@ -78,6 +81,9 @@ type CurrentLoop struct {
 	Enabled bool   `mapstructure:"enabled"`
 	Lower   string `mapstructure:"lower"`
 	Upper   string `mapstructure:"upper"`
+
+	LowerPa float64 `mapstructure:"-"` // resolved when Enabled
+	UpperPa float64 `mapstructure:"-"`
 }
 
 // SourceControl describes how a pressure controller is driven over Modbus.

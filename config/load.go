@@ -1,15 +1,13 @@
 package config
 
 import (
-	"bytes"
-	"errors"
 	"fmt"
+	"io"
 	"os"
 	"reflect"
-	"regexp"
 	"sort"
 	"strings"
-	"time"
+	"unicode/utf8"
 
 	"github.com/go-viper/mapstructure/v2"
 	"github.com/spf13/viper"
@@ -21,29 +19,58 @@ import (
 // file only.
 const EnvPrefix = "PLATEAU"
 
-// Load reads, decodes, defaults and validates the file at path.
+// MaxFileSize is the largest configuration file plateau reads. A bench's
+// file is a few kilobytes; anything near this is a mistake, refused before
+// any of it is parsed.
+const MaxFileSize = 1 << 20
+
+// Load reads, decodes, defaults, resolves and validates the file at path.
 func Load(path string) (*Config, error) {
-	data, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("read config: %w", err)
+	}
+	defer f.Close()
+	if fi, err := f.Stat(); err == nil && fi.Mode().IsRegular() && fi.Size() > MaxFileSize {
+		return nil, tooBig(path, fi.Size())
+	}
+	data, err := io.ReadAll(io.LimitReader(f, MaxFileSize+1))
+	if err != nil {
+		return nil, fmt.Errorf("read config %s: %w", path, err)
 	}
 	return Parse(data, path)
 }
 
+func tooBig(name string, size int64) error {
+	return fmt.Errorf("%s: %d bytes is more than a configuration file may hold (%d bytes); is this the right file?", name, size, MaxFileSize)
+}
+
 // Parse does what Load does on bytes already read; name is used in messages.
+// The returned error is a *Problems when the file was read but is wrong.
+// Warnings alone do not fail: they are in Config.Warnings.
 func Parse(data []byte, name string) (*Config, error) {
+	if len(data) > MaxFileSize {
+		return nil, tooBig(name, int64(len(data)))
+	}
+	p := newProblems(name)
+	if line, col, ok := invalidUTF8(data); ok {
+		p.add(Problem{Line: line, Msg: fmt.Sprintf("column %d: the file is not UTF-8 text; save it as UTF-8", col)})
+		return nil, p
+	}
 	var root yaml.Node
 	if err := yaml.Unmarshal(data, &root); err != nil {
 		return nil, fmt.Errorf("%s: %s", name, strings.TrimPrefix(err.Error(), "yaml: "))
 	}
-	p := &Problems{File: name, lines: map[string]int{}}
+	tree := map[string]any{}
 	if len(root.Content) > 0 {
 		doc := root.Content[0]
 		if doc.Kind != yaml.MappingNode && !(doc.Kind == yaml.ScalarNode && doc.Tag == "!!null") {
-			p.add(doc.Line, "", "", "the file must be a mapping of keys such as store:, instruments:, device:")
+			p.add(Problem{Line: doc.Line, Msg: "the file must be a mapping of keys such as store:, instruments:, device:"})
 			return nil, p
 		}
-		walkKeys(doc, reflect.TypeOf(Config{}), "", p)
+		if m, ok := walk(doc, reflect.TypeOf(Config{}), "", p).(map[string]any); ok {
+			tree = m
+		}
 	}
 
 	v := viper.New()
@@ -53,181 +80,221 @@ func Parse(data []byte, name string) (*Config, error) {
 	v.SetEnvPrefix(EnvPrefix)
 	v.SetEnvKeyReplacer(strings.NewReplacer(".", "_"))
 	v.AutomaticEnv()
-	v.SetConfigType("yaml")
-	if err := v.ReadConfig(bytes.NewReader(data)); err != nil {
+	envProblems(p)
+	// The tree holds only known keys, each once: decoding it costs time in
+	// proportion to the file, whatever the file holds.
+	if err := v.MergeConfigMap(tree); err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	var cfg Config
 	err := v.UnmarshalExact(&cfg, func(dc *mapstructure.DecoderConfig) {
 		dc.WeaklyTypedInput = false // "abc" for a number is an error, not a zero
-		dc.DecodeHook = mapstructure.ComposeDecodeHookFunc(
-			mapstructure.StringToTimeDurationHookFunc(),
-			weakNumbers,
-		)
+		dc.DecodeHook = decodeHook
 	})
 	if err != nil {
 		decodeProblems(err, p)
-	}
-	if p.Len() > 0 {
-		p.sort()
-		return nil, p
 	}
 	cfg.File = name
 	for i := range cfg.Instruments {
 		instrumentDefaults(&cfg.Instruments[i])
 	}
+	cfg.resolve(p)
 	cfg.validate(p)
-	if p.Len() > 0 {
-		p.sort()
+	p.sort()
+	if p.Errors() > 0 {
 		return nil, p
 	}
+	cfg.Warnings = p.Warnings()
 	return &cfg, nil
 }
 
-// weakNumbers lets environment overrides (always strings) and YAML ints
-// reach numeric and boolean fields, without accepting nonsense.
-func weakNumbers(from, to reflect.Type, data any) (any, error) {
-	if t, ok := data.(time.Time); ok && to.Kind() == reflect.String {
-		return t.Format("2006-01-02"), nil // YAML reads an unquoted date as a timestamp
+// invalidUTF8 finds the first byte sequence that is not UTF-8 and says
+// where it is (1-based line and column, in characters).
+func invalidUTF8(data []byte) (line, col int, found bool) {
+	if utf8.Valid(data) {
+		return 0, 0, false
 	}
-	s, ok := data.(string)
-	if from.Kind() == reflect.Int && to.Kind() == reflect.Float64 {
-		return float64(reflect.ValueOf(data).Int()), nil
+	line, col = 1, 1
+	for len(data) > 0 {
+		r, n := utf8.DecodeRune(data)
+		if r == utf8.RuneError && n <= 1 {
+			return line, col, true
+		}
+		if r == '\n' {
+			line, col = line+1, 0
+		}
+		col++
+		data = data[n:]
 	}
-	if !ok {
-		return data, nil
-	}
-	switch to.Kind() {
-	case reflect.Int, reflect.Int64:
-		if to == reflect.TypeOf(int64(0)) || to.Kind() == reflect.Int {
-			var n int64
-			if _, err := fmt.Sscan(strings.TrimSpace(s), &n); err != nil {
-				return nil, fmt.Errorf("%q is not a whole number", s)
-			}
-			return n, nil
-		}
-	case reflect.Float64:
-		var f float64
-		if _, err := fmt.Sscan(strings.TrimSpace(s), &f); err != nil {
-			return nil, fmt.Errorf("%q is not a number", s)
-		}
-		return f, nil
-	case reflect.Bool:
-		switch strings.ToLower(strings.TrimSpace(s)) {
-		case "true", "yes", "on", "1":
-			return true, nil
-		case "false", "no", "off", "0":
-			return false, nil
-		}
-		return nil, fmt.Errorf("%q is not true or false", s)
-	case reflect.Slice:
-		if to.Elem().Kind() == reflect.String {
-			parts := strings.Split(s, ",")
-			for i := range parts {
-				parts[i] = strings.TrimSpace(parts[i])
-			}
-			return parts, nil
-		}
-	}
-	return data, nil
+	return line, col, true
 }
 
-var decodeKey = regexp.MustCompile(`'([^']*)'`)
-
-// decodeProblems turns mapstructure's joined error text into one problem per
-// failing key, each with the line the key is on.
-func decodeProblems(err error, p *Problems) {
-	for _, line := range strings.Split(err.Error(), "\n") {
-		line = strings.TrimSpace(strings.TrimPrefix(strings.TrimSpace(line), "*"))
-		// Unknown keys were already reported, with a suggestion, by walkKeys.
-		if line == "" || strings.HasPrefix(line, "decoding failed") || strings.Contains(line, "has invalid keys") {
-			continue
+// walk checks every key in the YAML tree against the struct it decodes
+// into, records its line, reports unknown and repeated keys (with a
+// suggestion) and values of the wrong shape, and returns the tree of what
+// is left as plain values for the decoder. Each node is visited once.
+func walk(n *yaml.Node, t reflect.Type, path string, p *Problems) any {
+	if p.walked++; p.walked > maxWalked {
+		if p.walked == maxWalked+1 {
+			p.add(Problem{Line: n.Line, Msg: "the file expands to too many values through anchors and aliases (*name)"})
 		}
-		key := ""
-		if m := decodeKey.FindStringSubmatch(line); m != nil {
-			key = m[1]
-		}
-		msg := line
-		if i := strings.Index(line, "' "); i >= 0 && key != "" {
-			msg = strings.TrimSpace(line[i+2:])
-		}
-		msg = strings.ReplaceAll(msg, "expected type", "wrong type: expected")
-		p.add(p.line(key), key, "", msg)
+		return nil
 	}
-}
-
-// walkKeys checks every key in the YAML tree against the struct it decodes
-// into, records its line, and reports unknown keys with a suggestion.
-func walkKeys(n *yaml.Node, t reflect.Type, path string, p *Problems) {
 	for t.Kind() == reflect.Pointer {
 		t = t.Elem()
 	}
+	if n.Kind == yaml.AliasNode && n.Alias != nil {
+		n = n.Alias
+	}
+	wrong := func(found string) any {
+		want := plainType(t)
+		if t.Kind() == reflect.Slice {
+			want = "a list such as [a, b, c] or one entry a line, each after a dash"
+		}
+		p.add(Problem{Line: n.Line, Key: path, Msg: fmt.Sprintf("expected %s, found %s", want, found)})
+		p.failed[strings.ToLower(path)] = true
+		return nil
+	}
 	switch {
-	case n.Kind == yaml.MappingNode && t.Kind() == reflect.Struct:
-		fields := map[string]reflect.Type{}
-		for i := 0; i < t.NumField(); i++ {
-			tag := t.Field(i).Tag.Get("mapstructure")
-			if tag == "" || tag == "-" {
-				continue
-			}
-			fields[tag] = t.Field(i).Type
+	case n.Kind == yaml.ScalarNode && n.Tag == "!!null":
+		return nil
+	case t.Kind() == reflect.Struct:
+		if n.Kind != yaml.MappingNode {
+			return wrong(nodeName(n))
 		}
-		for i := 0; i+1 < len(n.Content); i += 2 {
-			k, val := n.Content[i], n.Content[i+1]
-			key := join(path, k.Value)
-			p.lines[strings.ToLower(key)] = k.Line
-			ft, ok := fields[strings.ToLower(k.Value)]
-			if !ok {
-				names := make([]string, 0, len(fields))
-				for f := range fields {
-					names = append(names, f)
-				}
-				msg := "unknown key"
-				if s := closest(strings.ToLower(k.Value), names); s != "" {
-					msg += fmt.Sprintf("; did you mean %q?", s)
-				} else {
-					sort.Strings(names)
-					msg += "; allowed here: " + strings.Join(names, ", ")
-				}
-				p.add(k.Line, key, "", msg)
-				continue
-			}
-			walkKeys(val, ft, key, p)
+		out := map[string]any{}
+		walkMapping(n, t, path, p, out, map[string]int{})
+		return out
+	case t.Kind() == reflect.Slice:
+		if n.Kind != yaml.SequenceNode {
+			return wrong(nodeName(n))
 		}
-	case n.Kind == yaml.SequenceNode && t.Kind() == reflect.Slice:
+		out := make([]any, 0, len(n.Content))
 		for i, item := range n.Content {
 			key := fmt.Sprintf("%s[%d]", path, i)
 			p.lines[strings.ToLower(key)] = item.Line
-			walkKeys(item, t.Elem(), key, p)
+			out = append(out, walk(item, t.Elem(), key, p))
 		}
-	case n.Kind == yaml.MappingNode && t.Kind() != reflect.Map:
-		p.add(n.Line, path, "", fmt.Sprintf("wrong type: expected %s, found a mapping", kindName(t)))
-	case n.Kind == yaml.SequenceNode:
-		p.add(n.Line, path, "", fmt.Sprintf("wrong type: expected %s, found a list", kindName(t)))
-	case n.Kind == yaml.ScalarNode && t.Kind() == reflect.Struct && n.Tag != "!!null":
-		p.add(n.Line, path, n.Value, "wrong type: expected a mapping of keys")
-	case n.Kind == yaml.ScalarNode && t.Kind() == reflect.Slice && n.Tag != "!!null":
-		p.add(n.Line, path, n.Value, "wrong type: expected a list")
+		return out
+	case n.Kind != yaml.ScalarNode:
+		return wrong(nodeName(n))
+	}
+	return scalar(n)
+}
+
+// maxWalked bounds the values walked, aliases expanded: far more than a
+// file of MaxFileSize holds, far fewer than an alias bomb makes.
+const maxWalked = 2_000_000
+
+// walkMapping adds the keys of one mapping to out. seen holds the keys
+// already given at this level (and their lines) to catch repeats; a merge
+// key (<<: *anchor) brings in keys that the mapping itself may override.
+func walkMapping(n *yaml.Node, t reflect.Type, path string, p *Problems, out map[string]any, seen map[string]int) {
+	fields := fieldsOf(t)
+	var merges []*yaml.Node
+	for i := 0; i+1 < len(n.Content); i += 2 {
+		k, val := n.Content[i], n.Content[i+1]
+		if k.Tag == "!!merge" || k.Value == "<<" {
+			merges = append(merges, val)
+			continue
+		}
+		name := strings.ToLower(k.Value)
+		key := join(path, k.Value)
+		if first, dup := seen[name]; dup {
+			p.add(Problem{Line: k.Line, Key: key, Msg: fmt.Sprintf("is given twice (also on line %d); keep one", first)})
+			continue
+		}
+		seen[name] = k.Line
+		p.lines[strings.ToLower(key)] = k.Line
+		ft, ok := fields[name]
+		if !ok {
+			p.add(Problem{Line: k.Line, Key: key, Msg: unknownKey(name, fields)})
+			continue
+		}
+		if v := walk(val, ft, key, p); v != nil {
+			out[name] = v
+		}
+	}
+	// Keys of the mapping itself win over merged ones.
+	for _, m := range merges {
+		if m.Kind == yaml.AliasNode && m.Alias != nil {
+			m = m.Alias
+		}
+		list := []*yaml.Node{m}
+		if m.Kind == yaml.SequenceNode {
+			list = m.Content
+		}
+		for _, src := range list {
+			if src.Kind == yaml.AliasNode && src.Alias != nil {
+				src = src.Alias
+			}
+			if src.Kind != yaml.MappingNode {
+				p.add(Problem{Line: src.Line, Key: path, Msg: "<< merges a mapping (an &anchor of keys), not " + nodeName(src)})
+				continue
+			}
+			merged := map[string]any{}
+			walkMapping(src, t, path, p, merged, map[string]int{})
+			for k, v := range merged {
+				if _, own := seen[k]; !own {
+					out[k] = v
+					seen[k] = src.Line
+				}
+			}
+		}
 	}
 }
 
-func kindName(t reflect.Type) string {
-	switch t.Kind() {
-	case reflect.Struct:
-		return "a mapping of keys"
-	case reflect.Slice:
-		return "a list"
-	case reflect.Int, reflect.Int64:
-		if t.String() == "time.Duration" {
-			return "a duration such as 30s"
-		}
-		return "a whole number"
-	case reflect.Float64:
-		return "a number"
-	case reflect.Bool:
-		return "true or false"
+func unknownKey(name string, fields map[string]reflect.Type) string {
+	names := make([]string, 0, len(fields))
+	for f := range fields {
+		names = append(names, f)
 	}
-	return "a single value"
+	sort.Strings(names)
+	if s := closest(name, names); s != "" {
+		return fmt.Sprintf("unknown key; did you mean %q?", s)
+	}
+	return "unknown key; allowed here: " + strings.Join(names, ", ")
+}
+
+// fieldsOf maps the keys of a struct (its mapstructure tags, squashed
+// embeddings included) to their types.
+func fieldsOf(t reflect.Type) map[string]reflect.Type {
+	fields := map[string]reflect.Type{}
+	for i := 0; i < t.NumField(); i++ {
+		f := t.Field(i)
+		tag := f.Tag.Get("mapstructure")
+		if strings.HasSuffix(tag, ",squash") && f.Type.Kind() == reflect.Struct {
+			for k, v := range fieldsOf(f.Type) {
+				fields[k] = v
+			}
+			continue
+		}
+		if tag == "" || tag == "-" {
+			continue
+		}
+		fields[tag] = f.Type
+	}
+	return fields
+}
+
+// scalar gives a scalar node's value as YAML reads it (a number, a
+// boolean, a date or text).
+func scalar(n *yaml.Node) any {
+	var v any
+	if err := n.Decode(&v); err != nil {
+		return n.Value
+	}
+	return v
+}
+
+func nodeName(n *yaml.Node) string {
+	switch n.Kind {
+	case yaml.MappingNode:
+		return "a mapping of keys"
+	case yaml.SequenceNode:
+		return "a list"
+	}
+	return fmt.Sprintf("%q", n.Value)
 }
 
 func join(path, key string) string {
@@ -271,93 +338,4 @@ func editDistance(a, b string) int {
 		prev, cur = cur, prev
 	}
 	return prev[len(b)]
-}
-
-// Problem is one thing wrong with the configuration.
-type Problem struct {
-	File  string
-	Line  int // 0 when the key is not in the file (a default or an environment override)
-	Key   string
-	Value string
-	Msg   string
-}
-
-func (q Problem) String() string {
-	var b strings.Builder
-	b.WriteString(q.File)
-	if q.Line > 0 {
-		fmt.Fprintf(&b, ":%d", q.Line)
-	}
-	b.WriteString(": ")
-	if q.Key != "" {
-		b.WriteString(q.Key)
-		if q.Value != "" {
-			fmt.Fprintf(&b, " = %q", q.Value)
-		}
-		b.WriteString(": ")
-	}
-	b.WriteString(q.Msg)
-	return b.String()
-}
-
-// Problems collects every problem of one file; it is the error Load returns.
-type Problems struct {
-	File  string
-	List  []Problem
-	lines map[string]int
-}
-
-func (p *Problems) Len() int { return len(p.List) }
-
-// sort orders problems by line, so the report reads top to bottom; problems
-// about defaults or environment overrides (line 0) come last.
-func (p *Problems) sort() {
-	sort.SliceStable(p.List, func(i, j int) bool {
-		a, b := p.List[i].Line, p.List[j].Line
-		if a == 0 || b == 0 {
-			return a != 0 && b == 0
-		}
-		return a < b
-	})
-}
-
-func (p *Problems) Error() string {
-	out := make([]string, len(p.List))
-	for i, q := range p.List {
-		out[i] = q.String()
-	}
-	head := fmt.Sprintf("%d problem(s) in %s:\n  ", len(p.List), p.File)
-	return head + strings.Join(out, "\n  ")
-}
-
-func (p *Problems) add(line int, key, value, msg string) {
-	p.List = append(p.List, Problem{File: p.File, Line: line, Key: key, Value: value, Msg: msg})
-}
-
-// line finds the line of a key path, or of its nearest parent in the file.
-func (p *Problems) line(key string) int {
-	k := strings.ToLower(key)
-	for k != "" {
-		if l, ok := p.lines[k]; ok {
-			return l
-		}
-		i := strings.LastIndexAny(k, ".[")
-		if i < 0 {
-			break
-		}
-		k = k[:i]
-	}
-	return 0
-}
-
-// bad records a problem about a key, finding its line.
-func (p *Problems) bad(key, value, msg string, args ...any) {
-	p.add(p.line(key), key, value, fmt.Sprintf(msg, args...))
-}
-
-// AsProblems extracts the list of problems from an error returned by Load.
-func AsProblems(err error) (*Problems, bool) {
-	var p *Problems
-	ok := errors.As(err, &p)
-	return p, ok
 }

@@ -56,44 +56,6 @@ func oneOf(p *Problems, key, val string, allowed []string) bool {
 	return false
 }
 
-// pressure parses a quantity that must be a pressure; "" is reported as missing when required.
-func pressure(p *Problems, key, val string, required bool) (float64, bool) {
-	if strings.TrimSpace(val) == "" {
-		if required {
-			p.bad(key, "", "is required: give a pressure with its unit, e.g. \"16 bar\"")
-		}
-		return 0, false
-	}
-	q, err := units.ParseQuantity(val)
-	if err != nil {
-		p.bad(key, val, "%v", err)
-		return 0, false
-	}
-	if q.Percent {
-		p.bad(key, val, "must be a pressure with a unit, not a percentage")
-		return 0, false
-	}
-	pa, _ := q.Pa()
-	return pa, true
-}
-
-// percent parses a quantity that must be a percentage.
-func percent(p *Problems, key, val string) (float64, bool) {
-	if strings.TrimSpace(val) == "" {
-		return 0, false
-	}
-	q, err := units.ParseQuantity(val)
-	if err != nil {
-		p.bad(key, val, "%v", err)
-		return 0, false
-	}
-	if !q.Percent {
-		p.bad(key, val, "must be a percentage such as \"0.25 %%\"")
-		return 0, false
-	}
-	return q.Value, true
-}
-
 func (c *Config) validate(p *Problems) {
 	if strings.TrimSpace(c.Store.Path) == "" {
 		p.bad("store.path", "", "is required: the bbolt file that holds every sample")
@@ -101,19 +63,23 @@ func (c *Config) validate(p *Problems) {
 	c.validateListen(p)
 	oneOf(p, "log.level", c.Log.Level, levels)
 	oneOf(p, "log.format", c.Log.Format, formats)
-	c.validateDevice(p)
+	c.validateDevices(p)
 	c.validateReference(p)
 	c.validateInstruments(p)
 	c.validateSafety(p)
 	c.validateProcedure(p)
 	c.validateHead(p)
 	c.validateSimulator(p)
+	c.validateLines(p)
 }
 
 func (c *Config) validateListen(p *Problems) {
 	l := c.Listen
 	if l.Socket == "" && l.TCP == "" {
 		p.bad("listen", "", "give a unix socket path (listen.socket) or a TCP address (listen.tcp)")
+	}
+	if len(l.Socket) > maxSocketPath {
+		p.bad("listen.socket", l.Socket, "is %d bytes long, but a unix socket path may be at most %d: choose a shorter path", len(l.Socket), maxSocketPath)
 	}
 	if l.TCP == "" {
 		return
@@ -136,6 +102,10 @@ func (c *Config) validateListen(p *Problems) {
 	}
 }
 
+// maxSocketPath: sun_path holds 108 bytes on Linux, the last one the
+// terminating zero (unix(7), from memory).
+const maxSocketPath = 107
+
 func isLoopback(host string) bool {
 	if host == "localhost" {
 		return true
@@ -144,60 +114,52 @@ func isLoopback(host string) bool {
 	return ip != nil && ip.IsLoopback()
 }
 
-func (c *Config) validateDevice(p *Problems) {
-	d := &c.Device
-	oneOf(p, "device.kind", d.Kind, devKinds)
-	lo, okLo := pressure(p, "device.lower", d.Lower, true)
-	hi, okHi := pressure(p, "device.upper", d.Upper, true)
-	if okLo && okHi && hi <= lo {
-		p.bad("device.upper", d.Upper, "must be above device.lower (%s)", d.Lower)
+func (d *Device) validate(p *Problems, keyOf func(string) string) {
+	oneOf(p, keyOf("kind"), d.Kind, devKinds)
+	if d.okLower && d.okUpper && d.UpperPa <= d.LowerPa {
+		p.bad(keyOf("upper"), d.Upper, "must be above %s (%s)", keyOf("lower"), d.Lower)
 	}
-	d.LowerPa, d.UpperPa = lo, hi
-	if d.Unit == "" {
-		if q, err := units.ParseQuantity(d.Upper); err == nil && !q.Percent {
-			d.Unit = q.Unit.Symbol
+	if d.Unit != "" {
+		if _, err := units.Lookup(d.Unit); err != nil {
+			p.bad(keyOf("unit"), d.Unit, "%v", err)
 		}
-	} else if _, err := units.Lookup(d.Unit); err != nil {
-		p.bad("device.unit", d.Unit, "%v", err)
 	}
-	if r, ok := pressure(p, "device.resolution", d.Resolution, true); ok {
-		if r <= 0 {
-			p.bad("device.resolution", d.Resolution, "must be above zero: the smallest step the device shows or that can be read off its dial")
+	if d.okResolution {
+		if d.ResolutionPa <= 0 {
+			p.bad(keyOf("resolution"), d.Resolution, "must be above zero: the smallest step the device shows or that can be read off its dial")
 		}
-		if okLo && okHi && r >= hi-lo {
-			p.bad("device.resolution", d.Resolution, "is not smaller than the span %s … %s: check the unit", d.Lower, d.Upper)
+		if d.okLower && d.okUpper && d.ResolutionPa >= d.UpperPa-d.LowerPa {
+			p.bad(keyOf("resolution"), d.Resolution, "is not smaller than the span %s … %s: check the unit", d.Lower, d.Upper)
 		}
-		d.ResolutionPa = r
 	}
 	n := 0
 	if d.Class != "" {
 		n++
-		oneOf(p, "device.class", d.Class, classes)
+		oneOf(p, keyOf("class"), d.Class, classes)
 	}
 	if d.Grade != "" {
 		n++
-		oneOf(p, "device.grade", strings.ToUpper(d.Grade), grades)
-		d.Grade = strings.ToUpper(d.Grade)
+		oneOf(p, keyOf("grade"), d.Grade, grades)
 	}
-	lim := &d.Limit
+	lim := d.Limit
 	if lim.Span != "" || lim.Reading != "" || lim.Floor != "" {
 		n++
-		lim.SpanPct, _ = percent(p, "device.limit.span", lim.Span)
-		lim.ReadingPct, _ = percent(p, "device.limit.reading", lim.Reading)
-		lim.FloorPa, _ = pressure(p, "device.limit.floor", lim.Floor, false)
-		if lim.SpanPct < 0 || lim.ReadingPct < 0 || lim.FloorPa < 0 {
-			p.bad("device.limit", "", "parts of a permissible error cannot be negative")
+		if lim.FloorPa < 0 {
+			p.bad(keyOf("limit.floor"), lim.Floor, "parts of a permissible error cannot be negative")
+		}
+		if lim.SpanPct == 0 && lim.ReadingPct == 0 && lim.FloorPa == 0 && lim.Floor != "" {
+			p.bad(keyOf("limit"), "", "a permissible error of zero can never be met")
 		}
 	}
 	switch {
 	case n == 0:
-		p.bad("device", "", "give the accuracy: device.class (EN 837-1: %s), device.grade (ASME B40.100: %s) or device.limit (span/reading/floor)",
+		p.bad(strings.TrimSuffix(keyOf("class"), ".class"), "", "give the accuracy: device.class (EN 837-1: %s), device.grade (ASME B40.100: %s) or device.limit (span/reading/floor)",
 			strings.Join(classes, ", "), strings.Join(grades, ", "))
 	case n > 1:
-		p.bad("device", "", "give only one of device.class, device.grade and device.limit")
+		p.bad(strings.TrimSuffix(keyOf("class"), ".class"), "", "give only one of device.class, device.grade and device.limit")
 	}
 	if d.Oxygen && !slices.Contains(oxygenSafeMedia, strings.ToLower(strings.TrimSpace(d.Medium))) {
-		p.bad("device.medium", d.Medium, "an oxygen-service gauge is calibrated only with clean, oil-free, non-flammable gas (one of %s), never with oil or on an oil-filled comparator",
+		p.bad(keyOf("medium"), d.Medium, "an oxygen-service gauge is calibrated only with clean, oil-free, non-flammable gas (one of %s), never with oil or on an oil-filled comparator",
 			strings.Join(oxygenSafeMedia, ", "))
 	}
 }
@@ -217,44 +179,111 @@ func (d *Device) tolerancePa() float64 {
 	return d.Limit.SpanPct/100*span + d.Limit.ReadingPct/100*math.Abs(d.UpperPa) + d.Limit.FloorPa
 }
 
+// permissiblePa is the device's permissible error at pressure pa: a class
+// is % of span (EN 837-1 Table 11); an ASME B40.100 grade has its outer
+// limit in the first and last quarter of the scale and its middle limit in
+// between (REFERENCES.md §2.2); a limit adds its parts.
+func (d *Device) permissiblePa(pa float64) float64 {
+	span := d.UpperPa - d.LowerPa
+	switch {
+	case d.Class != "":
+		f, _ := strconv.ParseFloat(d.Class, 64)
+		return f / 100 * span
+	case d.Grade != "":
+		g, _ := limits.Grade(d.Grade)
+		if at := (pa - d.LowerPa) / span; at >= 0.25 && at <= 0.75 {
+			return g.Middle / 100 * span
+		}
+		return g.Outer / 100 * span
+	}
+	return d.Limit.SpanPct/100*span + d.Limit.ReadingPct/100*math.Abs(pa) + d.Limit.FloorPa
+}
+
+// smallestPermissiblePa is the tightest full-scale tolerance of all
+// devices, for the settle defaults that every device must meet.
+func (c *Config) smallestPermissiblePa() float64 {
+	tol := math.Inf(1)
+	for _, dut := range c.Devices {
+		tol = math.Min(tol, dut.Device.tolerancePa())
+	}
+	if math.IsInf(tol, 1) {
+		return 0
+	}
+	return tol
+}
+
+// minPoints is the fewest calibration points a device's accuracy asks for:
+// EN 837-1 testing asks at least 10 points for classes 0.1 to 0.6 and at
+// least 5 for classes 1 to 4 (REFERENCES.md §2.1, [C-sec]); IEC 61298-2 tests
+// at least 5 points (REFERENCES.md §3, from memory), which we apply to ASME
+// grades too. A custom limit states no count.
+func (d *Device) minPoints() (int, string) {
+	switch {
+	case d.Class != "":
+		if f, _ := strconv.ParseFloat(d.Class, 64); f <= 0.6 {
+			return 10, "EN 837-1 class " + d.Class
+		}
+		return 5, "EN 837-1 class " + d.Class
+	case d.Grade != "":
+		return 5, "ASME B40.100 grade " + d.Grade
+	}
+	return 0, ""
+}
+
 func (c *Config) validateReference(p *Problems) {
 	r := &c.Reference
-	if pct, ok := percent(p, "reference.uncertainty", r.Uncertainty); ok {
-		r.UncertaintyPct = pct
-		if pct < 0 {
-			p.bad("reference.uncertainty", r.Uncertainty, "cannot be negative")
-		}
-	} else if r.Uncertainty == "" {
+	if r.Uncertainty == "" {
 		p.bad("reference.uncertainty", "", "is required: the expanded uncertainty from the reference's certificate, as %% of reading, e.g. \"0.01 %%\"")
 	}
-	if f, ok := pressure(p, "reference.floor", r.Floor, false); ok {
-		if f < 0 {
-			p.bad("reference.floor", r.Floor, "cannot be negative")
-		}
-		r.FloorPa = f
+	if r.FloorPa < 0 {
+		p.bad("reference.floor", r.Floor, "cannot be negative")
 	}
 	if r.Coverage <= 0 || r.Coverage > 4 {
 		p.bad("reference.coverage", fmt.Sprint(r.Coverage), "the coverage factor k of the certificate must be above 0 and at most 4 (usually 2)")
 	}
-	if r.Expires != "" {
-		t, err := time.Parse("2006-01-02", r.Expires)
-		if err != nil {
-			p.bad("reference.expires", r.Expires, "must be a date YYYY-MM-DD")
+	if r.okLower && r.okUpper && r.UpperPa <= r.LowerPa {
+		p.bad("reference.upper", r.Upper, "must be above reference.lower (%s)", r.Lower)
+	}
+	for _, dut := range c.Devices {
+		d := dut.Device
+		who := "the device range"
+		if len(c.Devices) > 1 {
+			who = "the range of " + dut.name()
 		}
-		r.ExpiresAt = t
+		if r.okUpper && d.okUpper && r.UpperPa < d.UpperPa {
+			p.bad("reference.upper", r.Upper, "the reference cannot cover %s up to %s", who, d.Upper)
+		}
+		if r.okLower && d.okLower && r.LowerPa > d.LowerPa {
+			p.bad("reference.lower", r.Lower, "the reference cannot cover %s down to %s", who, d.Lower)
+		}
+		if d.Oxygen && r.OilFilled {
+			p.bad("reference.oil_filled", "true", "an oxygen-service device must not be connected to an oil-filled reference or comparator")
+		}
 	}
-	lo, okLo := pressure(p, "reference.lower", r.Lower, false)
-	hi, okHi := pressure(p, "reference.upper", r.Upper, false)
-	r.LowerPa, r.UpperPa = lo, hi
-	if okHi && c.Device.UpperPa > 0 && hi < c.Device.UpperPa {
-		p.bad("reference.upper", r.Upper, "the reference cannot cover the device range up to %s", c.Device.Upper)
+	if !r.ExpiresAt.IsZero() && expiredOn(r.ExpiresAt, time.Now()) {
+		p.warn("reference.expires", r.Expires, "the reference's calibration has expired: a run with it is refused until it is recalibrated and the date updated")
 	}
-	if okLo && lo > c.Device.LowerPa {
-		p.bad("reference.lower", r.Lower, "the reference cannot cover the device range down to %s", c.Device.Lower)
+}
+
+// expiredOn says whether a calibration valid through the date expires has
+// run out by now, judged by the calendar date where the bench is.
+func expiredOn(expires, now time.Time) bool {
+	return now.Format("2006-01-02") > expires.Format("2006-01-02")
+}
+
+// ReferenceExpired returns an error when the reference's calibration has
+// expired at now: a run must not start with it (check only warns).
+func (c *Config) ReferenceExpired(now time.Time) error {
+	r := c.Reference
+	if r.ExpiresAt.IsZero() || !expiredOn(r.ExpiresAt, now) {
+		return nil
 	}
-	if c.Device.Oxygen && r.OilFilled {
-		p.bad("reference.oil_filled", "true", "an oxygen-service device must not be connected to an oil-filled reference or comparator")
+	id := r.ID
+	if id == "" {
+		id = "the reference"
 	}
+	return fmt.Errorf("%s: %s: calibration expired on %s (reference.expires): recalibrate it, or correct the date if it is wrong",
+		c.File, id, r.ExpiresAt.Format("2006-01-02"))
 }
 
 func (c *Config) validateInstruments(p *Problems) {
@@ -273,9 +302,12 @@ func (c *Config) validateInstruments(p *Problems) {
 		if oneOf(p, key+".role", in.Role, roles) {
 			count[in.Role]++
 		}
+		if in.Device != nil && in.Role != RoleDevice {
+			p.bad(key+".device", "", "only an instrument with role: device describes a device under test")
+		}
 		c.validateLink(p, key, in)
-		if in.Poll < 0 {
-			p.bad(key+".poll", in.Poll.String(), "must be positive")
+		if in.Link.Kind != LinkManual {
+			inRange(p, key+".poll", in.Poll, minPoll, time.Hour)
 		}
 	}
 	c.validateSharedLinks(p)
@@ -288,12 +320,43 @@ func (c *Config) validateInstruments(p *Problems) {
 	if count[RoleDevice] == 0 {
 		p.bad("instruments", "", "no instrument has role: device (the device under test)")
 	}
-	if count[RoleDevice] > 1 {
-		p.bad("instruments", "", "only one instrument may be the device under test")
-	}
 	if count[RoleSource] > 1 {
 		p.bad("instruments", "", "only one instrument may be the pressure source")
 	}
+}
+
+// Limits of the link and poll timings: below minPoll no instrument answers
+// in time; the upper bounds catch a wrong unit (100000h for 100ms).
+const (
+	minPoll    = 10 * time.Millisecond
+	minTimeout = 10 * time.Millisecond
+)
+
+// inRange refuses a duration outside [lo, hi].
+func inRange(p *Problems, key string, d, lo, hi time.Duration) bool {
+	if d < lo || d > hi {
+		p.bad(key, d.String(), "must be from %s to %s", fmtDuration(lo), fmtDuration(hi))
+		return false
+	}
+	return true
+}
+
+// fmtDuration writes 1h rather than 1h0m0s.
+func fmtDuration(d time.Duration) string {
+	s := d.String()
+	for _, z := range []string{"m0s", "h0m"} {
+		s = strings.Replace(s, z, z[:1], 1)
+	}
+	return s
+}
+
+// wholeInRange refuses a count or number outside [lo, hi].
+func wholeInRange(p *Problems, key string, n, lo, hi int, what string) bool {
+	if n < lo || n > hi {
+		p.bad(key, strconv.Itoa(n), "%s is from %d to %d", what, lo, hi)
+		return false
+	}
+	return true
 }
 
 // validateSharedLinks: instruments on one port or gateway share one
@@ -329,16 +392,16 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 		if oneOf(p, key+".sim_part", in.SimPart, simParts) && in.SimPart != in.Role && !(in.SimPart == "device" && in.Role == RoleDevice) {
 			p.bad(key+".sim_part", in.SimPart, "does not match the instrument's role %q", in.Role)
 		}
-		if in.SimVia == "" {
-			in.SimVia = LinkModbusTCP
-		}
 		oneOf(p, key+".sim_via", in.SimVia, simVias)
+		c.validateLinkTimes(p, key, l)
 		return
 	case LinkManual:
 		if in.Role != RoleDevice {
 			p.bad(key+".link.kind", l.Kind, "operator entry is for reading a device under test (an analog dial), not a %s", in.Role)
 		}
-		if _, err := units.Lookup(in.Unit); in.Unit != "" && err != nil {
+		if in.Unit == "" {
+			p.bad(key+".unit", "", "is required: the unit the operator reads off the dial and types in, e.g. bar")
+		} else if _, err := units.Lookup(in.Unit); err != nil {
 			p.bad(key+".unit", in.Unit, "%v", err)
 		}
 		return
@@ -367,15 +430,7 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 			p.bad(key+".link.stop_bits", strconv.Itoa(l.StopBits), "must be 1 or 2")
 		}
 	}
-	if l.Timeout <= 0 {
-		p.bad(key+".link.timeout", l.Timeout.String(), "must be positive")
-	}
-	if l.Retries < 0 || l.Retries > 10 {
-		p.bad(key+".link.retries", strconv.Itoa(l.Retries), "must be from 0 to 10")
-	}
-	if l.Pause < 0 || l.Backoff < 0 {
-		p.bad(key+".link", "", "pause and backoff cannot be negative")
-	}
+	c.validateLinkTimes(p, key, l)
 	if in.Unit == "" {
 		p.bad(key+".unit", "", "is required: the unit of the value the instrument gives (after scale and offset), e.g. bar, kPa or mA")
 	} else if in.Unit != "mA" {
@@ -387,9 +442,7 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 		if in.Unit != "mA" {
 			p.bad(key+".unit", in.Unit, "must be mA when current_loop is enabled")
 		}
-		lo, ok1 := pressure(p, key+".current_loop.lower", in.Loop.Lower, true)
-		hi, ok2 := pressure(p, key+".current_loop.upper", in.Loop.Upper, true)
-		if ok1 && ok2 && hi <= lo {
+		if in.Loop.Lower != "" && in.Loop.Upper != "" && in.Loop.UpperPa <= in.Loop.LowerPa {
 			p.bad(key+".current_loop.upper", in.Loop.Upper, "must be above current_loop.lower")
 		}
 	} else if in.Unit == "mA" {
@@ -402,80 +455,121 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 			}
 		}
 		oneOf(p, key+".line.terminator", in.Line.Terminator, []string{"\r\n", "\n", "\r"})
+		for j, w := range in.Line.Overload {
+			if strings.TrimSpace(w) == "" {
+				p.bad(fmt.Sprintf("%s.line.overload[%d]", key, j), w, "an empty word would match every line")
+			}
+		}
 		return
 	}
 	// Modbus kinds
-	if l.UnitID < 1 || l.UnitID > 247 {
-		p.bad(key+".link.unit_id", strconv.Itoa(l.UnitID), "a Modbus unit id is from 1 to 247")
-	}
+	wholeInRange(p, key+".link.unit_id", l.UnitID, 1, 247, "a Modbus unit id")
 	validateValue(p, key+".value", in.Value)
 	if in.Role == RoleSource {
 		validateValue(p, key+".source.setpoint", in.Set.Setpoint)
-		if in.Set.VentCoil == nil && in.Set.VentRegister == nil {
+		s := in.Set
+		if s.VentCoil == nil && s.VentRegister == nil {
 			p.bad(key+".source", "", "give source.vent_coil or source.vent_register: plateau must be able to vent the source on an over-pressure")
 		}
+		if s.VentCoil != nil {
+			wholeInRange(p, key+".source.vent_coil", *s.VentCoil, 0, 65535, "a coil address (0-based, as on the wire)")
+		}
+		if s.VentRegister != nil {
+			if wholeInRange(p, key+".source.vent_register", *s.VentRegister, 0, 65535, "a register address (0-based, as on the wire)") {
+				docNumber(p, key+".source.vent_register", *s.VentRegister, "holding")
+			}
+			wholeInRange(p, key+".source.vent_value", s.VentValue, 0, 65535, "a value one register holds")
+		}
+		if s.ReachedInput != nil {
+			if wholeInRange(p, key+".source.reached_input", *s.ReachedInput, 0, 65535, "a discrete input address (0-based, as on the wire)") {
+				docNumber(p, key+".source.reached_input", *s.ReachedInput, "discrete")
+			}
+		}
+	}
+}
+
+// validateLinkTimes: the drivers take these as given, so each must make sense.
+func (c *Config) validateLinkTimes(p *Problems, key string, l Link) {
+	inRange(p, key+".link.timeout", l.Timeout, minTimeout, time.Minute)
+	wholeInRange(p, key+".link.retries", l.Retries, 0, 10, "the number of extra attempts")
+	inRange(p, key+".link.backoff", l.Backoff, minTimeout, 10*time.Minute)
+	inRange(p, key+".link.pause", l.Pause, 0, 10*time.Second)
+}
+
+// docNumber warns about an address that looks like the numbering many
+// manuals use, where the first digit names the table and counting starts
+// at 1: 40001 is holding register 0, 30001 input register 0, 10001
+// discrete input 0 (common practice; the wire address is 0-based,
+// REFERENCES.md §9.2).
+func docNumber(p *Problems, key string, addr int, table string) {
+	first := map[string]int{"holding": 40001, "input": 30001, "discrete": 10001}[table]
+	for _, f := range []int{40001, 30001, 10001} {
+		if addr < f || addr > f+9998 {
+			continue
+		}
+		hint := ""
+		if f == first {
+			hint = fmt.Sprintf("; if so, the wire address is %d", addr-f)
+		}
+		p.warn(key, strconv.Itoa(addr), "looks like a manual's register number (%d counts from 1 in the %dxxxx block) rather than the 0-based wire address%s",
+			addr, f/10000, hint)
+		return
 	}
 }
 
 func validateValue(p *Problems, key string, v ValueRead) {
 	oneOf(p, key+".table", v.Table, tables)
-	if v.Register < 0 || v.Register > 65535 {
-		p.bad(key+".register", strconv.Itoa(v.Register), "a register address is from 0 to 65535 (0-based, as on the wire)")
-	}
+	words := 1
 	if oneOf(p, key+".type", v.Type, types) {
 		switch v.Type {
 		case "int32", "uint32", "float32":
+			words = 2
 			oneOf(p, key+".word_order", v.WordOrder, orders32)
 		case "float64":
+			words = 4
 			oneOf(p, key+".word_order", v.WordOrder, orders64)
 		}
 	}
-	if v.Scale == 0 || math.IsNaN(v.Scale) || math.IsInf(v.Scale, 0) {
-		p.bad(key+".scale", fmt.Sprint(v.Scale), "must be a finite number other than zero")
+	if wholeInRange(p, key+".register", v.Register, 0, 65536-words, "a register address (0-based, as on the wire)") {
+		docNumber(p, key+".register", v.Register, v.Table)
+	}
+	if v.Scale == 0 || math.Abs(v.Scale) > 1e9 {
+		p.bad(key+".scale", fmt.Sprint(v.Scale), "must be a number other than zero, at most 1e9 in size")
+	}
+	if math.Abs(v.Offset) > maxPressurePa {
+		p.bad(key+".offset", fmt.Sprint(v.Offset), "is larger than any reading could be")
 	}
 }
 
-// The safety limit sits a little above full scale, as a fraction of span:
-// room for noise and a small overshoot at the top point, not a real
-// over-range (common practice; gauges take full scale only briefly). The
-// default is defaultOverRange; an explicit limit may go up to maxOverRange.
-const (
-	defaultOverRange = 0.02
-	maxOverRange     = 0.05
-)
-
 func (c *Config) validateSafety(p *Problems) {
 	s := &c.Safety
-	d, r := c.Device, c.Reference
-	if d.UpperPa <= d.LowerPa {
-		return // the device range is wrong and already reported
+	if s.Silence < 0 || s.Silence > time.Hour {
+		p.bad("safety.silence", s.Silence.String(), "must be between 0 (five reference polls) and 1h")
 	}
-	// The highest limit: the lower of the two full scales, each with an
-	// over-range allowance.
-	limit := func(allow float64) float64 {
-		l := d.UpperPa + allow*(d.UpperPa-d.LowerPa)
-		if r.UpperPa > r.LowerPa {
-			l = math.Min(l, r.UpperPa+allow*(r.UpperPa-r.LowerPa))
+	if !s.Set || s.MaxPressure == "" {
+		return // no range to judge it by (reported), or the default under the ceiling
+	}
+	low := c.Devices[0]
+	for _, dut := range c.Devices[1:] {
+		if dut.Device.UpperPa < low.Device.UpperPa {
+			low = dut
 		}
-		return l
 	}
-	ceiling := limit(maxOverRange)
-	s.Set = true
-	if s.MaxPressure == "" {
-		s.MaxPressurePa = limit(defaultOverRange)
-		return
+	d := low.Device
+	if s.MaxPressurePa < d.UpperPa {
+		who := "the device's"
+		if len(c.Devices) > 1 {
+			who = "the smallest full scale, that of " + low.name() + ","
+		}
+		p.bad("safety.max_pressure", s.MaxPressure, "is below %s full scale (%s): the top point could never be reached", who, d.Upper)
 	}
-	mp, ok := pressure(p, "safety.max_pressure", s.MaxPressure, true)
-	if !ok {
-		return
-	}
-	s.MaxPressurePa = mp
-	if mp < d.UpperPa {
-		p.bad("safety.max_pressure", s.MaxPressure, "is below the device's full scale (%s): the top point could never be reached", d.Upper)
-	}
-	if mp > ceiling*(1+1e-12) {
-		p.bad("safety.max_pressure", s.MaxPressure, "is above the lower of the device's and the reference's full scale plus %g %% of span (%s): never exceed a gauge's range",
-			maxOverRange*100, formatPa(ceiling, d.Unit))
+	if ceiling := c.safetyCeiling(maxOverRange); s.MaxPressurePa > ceiling*(1+1e-12) {
+		what := "the lower of the device's and the reference's full scale"
+		if len(c.Devices) > 1 {
+			what = "the lowest full scale of the devices and the reference"
+		}
+		p.bad("safety.max_pressure", s.MaxPressure, "is above %s plus %g %% of span (%s): never exceed a gauge's range",
+			what, maxOverRange*100, formatPa(ceiling, d.Unit))
 	}
 }
 
@@ -488,100 +582,128 @@ func formatPa(pa float64, unit string) string {
 	return strconv.FormatFloat(u.FromPa(pa), 'g', 6, 64) + " " + u.Symbol
 }
 
+// maxPoints bounds a plan: the longest published sequences have about a
+// dozen points (REFERENCES.md §1), so more than this is a mistake.
+const maxPoints = 100
+
 func (c *Config) validateProcedure(p *Problems) {
 	pr := &c.Procedure
-	d := c.Device
 	oneOf(p, "procedure.mode", pr.Mode, modes)
 	oneOf(p, "procedure.on_timeout", pr.OnTimeout, onTimeouts)
 	oneOf(p, "procedure.compare", pr.Compare, compares)
 	oneOf(p, "procedure.decision", pr.Decision, decisions)
-	span := d.UpperPa - d.LowerPa
-	if pr.Mode == "free" && d.Kind == "dial" {
-		p.bad("procedure.mode", pr.Mode, "free runs capture the plateaus both instruments hold; a dial read by a person has no readings between entries: use mode plan")
+	for _, dut := range c.Devices {
+		if pr.Mode == "free" && dut.Device.Kind == "dial" {
+			p.bad("procedure.mode", pr.Mode, "free runs capture the plateaus both instruments hold; a dial read by a person has no readings between entries: use mode plan")
+			break
+		}
 	}
-	if span <= 0 {
-		return // the device range is wrong and already reported; points cannot be judged
+	wholeInRange(p, "procedure.cycles", pr.Cycles, 1, 1000, "the number of cycles")
+	wholeInRange(p, "procedure.exercise", pr.Exercise, 0, 10, "the number of exercise cycles")
+	inRange(p, "procedure.exercise_hold", pr.ExerciseHold, 0, 24*time.Hour)
+	inRange(p, "procedure.top_hold", pr.TopHold, 0, 24*time.Hour)
+	inRange(p, "procedure.hold", pr.Hold, 0, 24*time.Hour)
+	inRange(p, "procedure.timeout", pr.Timeout, time.Second, 24*time.Hour)
+	st := &pr.Settle
+	inRange(p, "procedure.settle.window", st.Window, 100*time.Millisecond, time.Hour)
+	if pr.Timeout > 0 && st.Window > 0 && pr.Timeout < st.Window {
+		p.bad("procedure.timeout", pr.Timeout.String(), "is shorter than the settle window (%s): no point could ever be captured", st.Window)
+	}
+	if wholeInRange(p, "procedure.settle.min_count", st.MinCount, 3, 100000, "the least number of readings in a window (a line is fitted through them and the scatter judged about it)") && st.Window > 0 {
+		for i, in := range c.Instruments {
+			if (in.Role != RoleReference && in.Role != RoleDevice) || in.Link.Kind == LinkManual || in.Poll <= 0 {
+				continue
+			}
+			if most := int(st.Window/in.Poll) + 1; st.MinCount > most {
+				p.bad("procedure.settle.min_count", strconv.Itoa(st.MinCount), "instruments[%d] (%s) gives at most %d readings in a %s window at poll %s: no point could ever settle",
+					i, in.Name, most, st.Window, in.Poll)
+			}
+		}
+	}
+	if !c.rangesKnown() {
+		return // a device range is wrong and reported; points and bands cannot be judged
+	}
+	d := c.Device
+	span := d.UpperPa - d.LowerPa
+	if st.MaxDrift != "" && st.MaxDriftPaPerS <= 0 {
+		p.bad("procedure.settle.max_drift", st.MaxDrift, "must be above zero: no reading is ever perfectly still")
+	}
+	if st.MaxSpread != "" && st.MaxSpreadPa <= 0 {
+		p.bad("procedure.settle.max_spread", st.MaxSpread, "must be above zero: no reading is ever free of noise")
+	}
+	if st.Band != "" && st.BandPa <= 0 {
+		p.bad("procedure.settle.band", st.Band, "must be above zero: the mean is never exactly on the target")
+	} else if st.BandPa > span/2 {
+		p.bad("procedure.settle.band", st.Band, "is wider than half the span: any pressure would count as on target")
+	}
+	if len(pr.Points) > maxPoints {
+		p.bad("procedure.points", fmt.Sprintf("%d points", len(pr.Points)), "a plan has at most %d points", maxPoints)
+		return
 	}
 	if pr.Mode == "plan" && len(pr.Points) == 0 {
 		p.bad("procedure.points", "", "a plan needs at least one point")
 	}
-	pr.PointsPa = pr.PointsPa[:0]
-	for i, s := range pr.Points {
-		key := fmt.Sprintf("procedure.points[%d]", i)
-		q, err := units.ParseQuantity(s)
-		if err != nil {
-			p.bad(key, s, "%v", err)
-			continue
+	last := math.Inf(-1)
+	for j, pa := range pr.PointsPa {
+		i := pr.pointIndex[j]
+		key, s := fmt.Sprintf("procedure.points[%d]", i), pr.Points[i]
+		ok := true
+		for _, dut := range c.Devices {
+			dd := dut.Device
+			if span := dd.UpperPa - dd.LowerPa; pa < dd.LowerPa-1e-9*span || pa > dd.UpperPa+1e-9*span {
+				if len(c.Devices) == 1 {
+					p.bad(key, s, "is outside the device range %s … %s", dd.Lower, dd.Upper)
+				} else {
+					p.bad(key, s, "is outside the range of %s, %s … %s", dut.name(), dd.Lower, dd.Upper)
+				}
+				ok = false
+			}
 		}
-		var pa float64
-		if q.Percent {
-			pa = d.LowerPa + q.Value/100*span
-		} else {
-			pa, _ = q.Pa()
-		}
-		if span > 0 && (pa < d.LowerPa-1e-9*span || pa > d.UpperPa+1e-9*span) {
-			p.bad(key, s, "is outside the device range %s … %s", d.Lower, d.Upper)
-			continue
-		}
-		if c.Safety.MaxPressurePa > 0 && pa > c.Safety.MaxPressurePa {
+		if ok && c.Safety.Set && pa > c.Safety.MaxPressurePa {
 			p.bad(key, s, "is above safety.max_pressure")
-			continue
+			ok = false
 		}
-		if n := len(pr.PointsPa); n > 0 && pa <= pr.PointsPa[n-1] {
+		if ok && pa <= last {
 			p.bad(key, s, "points must rise strictly; the descending series runs them in reverse")
-			continue
+			ok = false
 		}
-		pr.PointsPa = append(pr.PointsPa, pa)
-	}
-	if pr.Cycles < 1 || pr.Cycles > 1000 {
-		p.bad("procedure.cycles", strconv.Itoa(pr.Cycles), "must be from 1 to 1000")
-	}
-	if pr.Exercise < 0 || pr.Exercise > 10 {
-		p.bad("procedure.exercise", strconv.Itoa(pr.Exercise), "must be from 0 to 10")
-	}
-	for key, dur := range map[string]time.Duration{"procedure.exercise_hold": pr.ExerciseHold, "procedure.top_hold": pr.TopHold, "procedure.hold": pr.Hold} {
-		if dur < 0 {
-			p.bad(key, dur.String(), "cannot be negative")
+		if ok {
+			last = pa
 		}
 	}
-	if pr.Timeout <= 0 {
-		p.bad("procedure.timeout", pr.Timeout.String(), "must be positive")
+	for _, dut := range c.Devices {
+		c.validateAgainstAccuracy(p, dut)
 	}
-	st := &pr.Settle
-	if st.Window <= 0 {
-		p.bad("procedure.settle.window", st.Window.String(), "must be positive, e.g. 30s")
+}
+
+// validateAgainstAccuracy: a device whose resolution is coarser than its
+// permissible error cannot show whether it is within it; and a plan with
+// fewer points than its class asks for does not test it to that class.
+func (c *Config) validateAgainstAccuracy(p *Problems, dut DeviceUnderTest) {
+	d := dut.Device
+	if d.Class == "" && d.Grade == "" && d.Limit.SpanPct == 0 && d.Limit.ReadingPct == 0 && d.Limit.FloorPa == 0 {
+		return // no accuracy (reported)
 	}
-	if pr.Timeout > 0 && st.Window > 0 && pr.Timeout < st.Window {
-		p.bad("procedure.timeout", pr.Timeout.String(), "is shorter than the settle window (%s): no point could ever be captured", st.Window)
+	who := ""
+	if len(c.Devices) > 1 {
+		who = " of " + dut.name()
 	}
-	if st.MinCount < 3 {
-		p.bad("procedure.settle.min_count", strconv.Itoa(st.MinCount), "must be at least 3: a line is fitted through the window and the scatter judged about it")
-	}
-	tol := d.tolerancePa()
-	if drift, ok := pressure(p, "procedure.settle.max_drift", st.MaxDrift, false); ok {
-		st.MaxDriftPaPerS = drift / 60
-	} else if st.MaxDrift == "" {
-		// Our own default: a tenth of the permissible error per minute.
-		st.MaxDriftPaPerS = 0.1 * tol / 60
-	}
-	if spread, ok := pressure(p, "procedure.settle.max_spread", st.MaxSpread, false); ok {
-		st.MaxSpreadPa = spread
-	} else if st.MaxSpread == "" {
-		st.MaxSpreadPa = math.Max(0.1*tol, d.ResolutionPa)
-	}
-	if st.Band != "" {
-		q, err := units.ParseQuantity(st.Band)
-		switch {
-		case err != nil:
-			p.bad("procedure.settle.band", st.Band, "%v", err)
-		case q.Percent:
-			st.BandPa = q.Value / 100 * span
-		default:
-			st.BandPa, _ = q.Pa()
+	at := append([]float64{d.LowerPa, d.UpperPa}, c.Procedure.PointsPa...)
+	tightest, where := math.Inf(1), 0.0
+	for _, pa := range at {
+		if e := d.permissiblePa(pa); e < tightest {
+			tightest, where = e, pa
 		}
 	}
-	if st.MaxDriftPaPerS < 0 || st.MaxSpreadPa < 0 || st.BandPa < 0 {
-		p.bad("procedure.settle", "", "limits cannot be negative")
+	if d.okResolution && d.ResolutionPa > tightest*(1+1e-9) {
+		p.bad(dut.keyOf("resolution"), d.Resolution, "is coarser than the permissible error%s (%s at %s): the device cannot show whether it is within it",
+			who, formatPa(tightest, d.Unit), formatPa(where, d.Unit))
+	}
+	if c.Procedure.Mode != "plan" {
+		return
+	}
+	if need, why := d.minPoints(); need > 0 && len(c.Procedure.PointsPa) < need && len(c.Procedure.PointsPa) == len(c.Procedure.Points) {
+		p.warn("procedure.points", fmt.Sprintf("%d points", len(c.Procedure.PointsPa)), "%s asks for at least %d calibration points%s", why, need, who)
 	}
 }
 
@@ -596,14 +718,26 @@ func (c *Config) validateHead(p *Problems) {
 	if h.Gravity < 9.7 || h.Gravity > 9.9 {
 		p.bad("head.gravity", fmt.Sprint(h.Gravity), "local gravity on Earth is between 9.78 and 9.84 m/s² (9.80665 if unknown)")
 	}
-	if math.Abs(h.ReferenceHeight-h.DeviceHeight) > 10 {
-		p.bad("head.device_height", fmt.Sprint(h.DeviceHeight), "more than 10 m from the reference's height: heights are in metres")
+	if math.Abs(h.ReferenceHeight) > 100 {
+		p.bad("head.reference_height", fmt.Sprint(h.ReferenceHeight), "more than 100 m: heights are in metres")
 	}
-	if c.Device.Oxygen && h.FluidDensity > 50 {
-		p.bad("head.fluid_density", fmt.Sprint(h.FluidDensity), "is the density of a liquid, but the device is for oxygen service: it must see only clean, oil-free gas")
+	for _, dut := range c.Devices {
+		key := "head.device_height"
+		if dut.given["height"] {
+			key = dut.Key + ".height"
+		}
+		if math.Abs(h.ReferenceHeight-dut.HeightM) > 10 {
+			p.bad(key, fmt.Sprint(dut.HeightM), "more than 10 m from the reference's height: heights are in metres")
+		}
+		if dut.Device.Oxygen && h.FluidDensity > 50 {
+			p.bad("head.fluid_density", fmt.Sprint(h.FluidDensity), "is the density of a liquid, but the device is for oxygen service: it must see only clean, oil-free gas")
+		}
 	}
 	if h.HeightUncertainty < 0 || h.DensityUncertainty < 0 {
 		p.bad("head", "", "uncertainties cannot be negative")
+	}
+	if h.HeightUncertainty > 10 || h.DensityUncertainty > 20000 {
+		p.bad("head", "", "uncertainties are half-widths in m and kg/m³: at most 10 m and 20000 kg/m³")
 	}
 }
 
@@ -639,14 +773,22 @@ func (c *Config) validateSimulator(p *Problems) {
 	if s.Source.Max != "" {
 		pressure(p, "simulator.source.max", s.Source.Max, false)
 	}
-	percent(p, "simulator.reference.error", s.Reference.Error)
-	percent(p, "simulator.device.span", s.Device.Span)
+	percent(p, "simulator.reference.error", s.Reference.Error, 100)
+	percent(p, "simulator.device.span", s.Device.Span, 100)
 	oneOf(p, "simulator.device.kind", s.Device.Kind, devKinds)
+	inRange(p, "simulator.source.time_constant", s.Source.TimeConstant, 0, time.Hour)
+	if s.Source.Overshoot < 0 || s.Source.Overshoot > 1 {
+		p.bad("simulator.source.overshoot", fmt.Sprint(s.Source.Overshoot), "is a fraction of the step, from 0 to 1")
+	}
+	inRange(p, "simulator.device.operator_delay", s.Device.OperatorDelay, 0, time.Hour)
 	f := s.Faults
 	for key, r := range map[string]float64{"drop": f.Drop, "slow": f.Slow, "bad_crc": f.BadCRC, "garbage": f.Garbage, "stuck": f.Stuck, "spike": f.Spike} {
 		if r < 0 || r > 1 {
 			p.bad("simulator.faults."+key, fmt.Sprint(r), "is a probability per request, from 0 to 1")
 		}
+	}
+	for key, d := range map[string]time.Duration{"slow_by": f.SlowBy, "stuck_for": f.StuckFor, "link_down": f.LinkDown, "link_every": f.LinkEvery} {
+		inRange(p, "simulator.faults."+key, d, 0, 24*time.Hour)
 	}
 }
 

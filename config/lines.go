@@ -1,0 +1,93 @@
+package config
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"time"
+)
+
+// WireTime is the time one Modbus RTU read of words registers holds a
+// line at baud: the request (8 characters) and the reply (5 + 2·words) at
+// 11 bits a character (start, 8 data, parity or a second stop bit, stop),
+// and the 3.5-character silence that ends each of the two frames; above
+// 19200 Bd that silence is fixed at 1.75 ms (REFERENCES.md §0 row 9, the
+// Modbus serial line guide).
+func WireTime(baud, words int) time.Duration {
+	if baud <= 0 {
+		return 0
+	}
+	char := 11.0 / float64(baud) // seconds
+	silence := 3.5 * char
+	if baud > 19200 {
+		silence = 1.75e-3
+	}
+	chars := float64(8 + 5 + 2*words)
+	return time.Duration((chars*char + 2*silence) * float64(time.Second))
+}
+
+// LineLoad is what the instruments on one Modbus RTU line ask of it.
+type LineLoad struct {
+	Address     string  // the serial device
+	Baud        int     //
+	Instruments []int   // indices in Instruments, in order
+	Asked       float64 // reads per second the poll intervals ask for
+	Carried     float64 // reads per second the line can carry, pauses included
+}
+
+// RTULines works out, for each Modbus RTU line, the reads per second its
+// instruments' poll intervals ask for and what the line can carry at its
+// baud rate with the configured pause after each request.
+func (c *Config) RTULines() []LineLoad {
+	byAddr := map[string]*LineLoad{}
+	busy := map[string]float64{} // seconds the line is held per second, at the asked rates
+	for i, in := range c.Instruments {
+		if in.Link.Kind != LinkModbusRTU || in.Link.Address == "" || in.Poll <= 0 {
+			continue
+		}
+		l := byAddr[in.Link.Address]
+		if l == nil {
+			l = &LineLoad{Address: in.Link.Address, Baud: in.Link.Baud}
+			byAddr[in.Link.Address] = l
+		}
+		l.Instruments = append(l.Instruments, i)
+		l.Asked += float64(time.Second) / float64(in.Poll)
+		busy[in.Link.Address] += (WireTime(in.Link.Baud, valueWords(in.Value.Type)) + in.Link.Pause).Seconds() / in.Poll.Seconds()
+	}
+	out := make([]LineLoad, 0, len(byAddr))
+	for addr, l := range byAddr {
+		// The line carries the asked mix of reads scaled to one busy second.
+		l.Carried = math.Inf(1)
+		if b := busy[addr]; b > 0 {
+			l.Carried = l.Asked / b
+		}
+		out = append(out, *l)
+	}
+	sort.Slice(out, func(i, j int) bool { return out[i].Address < out[j].Address })
+	return out
+}
+
+func valueWords(typ string) int {
+	switch typ {
+	case "int32", "uint32", "float32":
+		return 2
+	case "float64":
+		return 4
+	}
+	return 1
+}
+
+// validateLines warns when the poll intervals on one RTU line ask for more
+// reads than its baud rate carries: the instruments would then be read
+// less often than configured, and settle windows would hold fewer readings.
+func (c *Config) validateLines(p *Problems) {
+	for _, l := range c.RTULines() {
+		if l.Asked <= l.Carried*(1+1e-9) {
+			continue
+		}
+		first := l.Instruments[0]
+		p.warn(fmt.Sprintf("instruments[%d].poll", first), c.Instruments[first].Poll.String(),
+			"the %d instrument(s) on %s ask for %.1f reads/s, but at %d Bd (with the pause after each request) the line carries about %.1f: poll less often, raise the baud rate or shorten the pause",
+			len(l.Instruments), l.Address, l.Asked, l.Baud, l.Carried)
+	}
+}

@@ -1,0 +1,195 @@
+package config
+
+import (
+	"errors"
+	"fmt"
+	"sort"
+	"strings"
+)
+
+// Problem is one thing wrong with the configuration, or one thing worth a
+// second look (a warning).
+type Problem struct {
+	File    string
+	Line    int    // 0 when the key is not in the file (a default or an environment override)
+	Env     string // the PLATEAU_* variable the value came from, when it did
+	Key     string
+	Value   string
+	Msg     string
+	Warning bool // the run can go ahead, but the result may not be what was meant
+}
+
+func (q Problem) String() string {
+	var b strings.Builder
+	switch {
+	case q.Env != "":
+		// The value is not in the file: name the variable, not a line.
+		fmt.Fprintf(&b, "environment %s", q.Env)
+		if q.Value != "" {
+			fmt.Fprintf(&b, "=%q", q.Value)
+		}
+		if q.Key != "" {
+			fmt.Fprintf(&b, " (%s)", q.Key)
+		}
+		b.WriteString(": ")
+	default:
+		b.WriteString(q.File)
+		if q.Line > 0 {
+			fmt.Fprintf(&b, ":%d", q.Line)
+		}
+		b.WriteString(": ")
+		if q.Key != "" {
+			b.WriteString(q.Key)
+			if q.Value != "" {
+				fmt.Fprintf(&b, " = %q", q.Value)
+			}
+			b.WriteString(": ")
+		}
+	}
+	if q.Warning {
+		b.WriteString("warning: ")
+	}
+	b.WriteString(q.Msg)
+	return b.String()
+}
+
+// maxListed bounds the problems Error prints: a file of ten thousand
+// unknown keys is refused with the first of them and a count.
+const maxListed = 100
+
+// Problems collects every problem of one file; it is the error Load returns
+// when at least one of them is not a warning.
+type Problems struct {
+	File string
+	List []Problem
+
+	lines  map[string]int    // lower-case key path → line in the file
+	env    map[string]string // lower-case key path → PLATEAU_* variable that set it
+	envVal map[string]string // lower-case key path → the variable's value
+	failed map[string]bool   // keys whose value could not be decoded
+	walked int               // YAML values walked, for the alias bound
+	seen   map[Problem]bool
+}
+
+func newProblems(file string) *Problems {
+	return &Problems{File: file, lines: map[string]int{}, env: map[string]string{}, envVal: map[string]string{}, failed: map[string]bool{}, seen: map[Problem]bool{}}
+}
+
+func (p *Problems) Len() int { return len(p.List) }
+
+// Errors counts the problems that are not warnings.
+func (p *Problems) Errors() int {
+	n := 0
+	for _, q := range p.List {
+		if !q.Warning {
+			n++
+		}
+	}
+	return n
+}
+
+// Warnings returns the warnings only.
+func (p *Problems) Warnings() []Problem {
+	var out []Problem
+	for _, q := range p.List {
+		if q.Warning {
+			out = append(out, q)
+		}
+	}
+	return out
+}
+
+// sort orders problems by line, so the report reads top to bottom; problems
+// about defaults or environment overrides (line 0) come last. Ties go by
+// key and message, so the same file always gives the same list.
+func (p *Problems) sort() {
+	sort.SliceStable(p.List, func(i, j int) bool {
+		a, b := p.List[i], p.List[j]
+		if (a.Line == 0) != (b.Line == 0) {
+			return a.Line != 0
+		}
+		if a.Line != b.Line {
+			return a.Line < b.Line
+		}
+		if a.Env != b.Env {
+			return a.Env < b.Env
+		}
+		if a.Key != b.Key {
+			return a.Key < b.Key
+		}
+		if a.Warning != b.Warning {
+			return !a.Warning
+		}
+		return a.Msg < b.Msg
+	})
+}
+
+func (p *Problems) Error() string {
+	n := min(len(p.List), maxListed)
+	out := make([]string, n)
+	for i, q := range p.List[:n] {
+		out[i] = q.String()
+	}
+	if len(p.List) > n {
+		out = append(out, fmt.Sprintf("… and %d more", len(p.List)-n))
+	}
+	head := fmt.Sprintf("%d problem(s) in %s:\n  ", len(p.List), p.File)
+	if w := len(p.List) - p.Errors(); w > 0 {
+		head = fmt.Sprintf("%d problem(s) and %d warning(s) in %s:\n  ", p.Errors(), w, p.File)
+	}
+	return head + strings.Join(out, "\n  ")
+}
+
+func (p *Problems) add(q Problem) {
+	k := strings.ToLower(q.Key)
+	for a := k; a != ""; a = parentKey(a) {
+		if p.failed[a] {
+			return // a follow-on of a value that could not be read at all
+		}
+	}
+	q.File = p.File
+	if env, ok := p.env[k]; ok && q.Env == "" {
+		q.Env, q.Line, q.Value = env, 0, p.envVal[k]
+	}
+	if p.seen[q] {
+		return // a shared value judged once for each device that uses it
+	}
+	p.seen[q] = true
+	p.List = append(p.List, q)
+}
+
+// parentKey strips the last part of a key path: "a.b[2].c" → "a.b[2]" → "a.b" → "a" → "".
+func parentKey(k string) string {
+	i := strings.LastIndexAny(k, ".[")
+	if i < 0 {
+		return ""
+	}
+	return k[:i]
+}
+
+// line finds the line of a key path, or of its nearest parent in the file.
+func (p *Problems) line(key string) int {
+	for k := strings.ToLower(key); k != ""; k = parentKey(k) {
+		if l, ok := p.lines[k]; ok {
+			return l
+		}
+	}
+	return 0
+}
+
+// bad records a problem about a key, finding its line.
+func (p *Problems) bad(key, value, msg string, args ...any) {
+	p.add(Problem{Line: p.line(key), Key: key, Value: value, Msg: fmt.Sprintf(msg, args...)})
+}
+
+// warn records a warning about a key.
+func (p *Problems) warn(key, value, msg string, args ...any) {
+	p.add(Problem{Line: p.line(key), Key: key, Value: value, Msg: fmt.Sprintf(msg, args...), Warning: true})
+}
+
+// AsProblems extracts the list of problems from an error returned by Load.
+func AsProblems(err error) (*Problems, bool) {
+	var p *Problems
+	ok := errors.As(err, &p)
+	return p, ok
+}
