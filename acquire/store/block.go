@@ -22,88 +22,25 @@ type Sample struct {
 	Message string       // the failure's text
 }
 
-// A block holds consecutive samples of one instrument under one key (the
-// Unix ns of its first sample, or one more than the previous key when that
-// would collide). Packing samples keeps bbolt's per-key overhead (16 bytes
-// of element header plus the 8-byte key) off each sample.
+// Version-1 blocks (files of format 1) are still read:
 //
 //	block  = version(1) uvarint(len unit) unit record*
 //	record = flags(1) varint(ns since previous record; the first: since the key)
 //	         good:   uvarint(bits(Pa) XOR bits(previous Pa)) uvarint(bits(Raw) XOR bits(previous Raw))
 //	         failed: uvarint(kind) uvarint(len msg) msg
 //	         [flagWire: uvarint(len wire) wire]
-//
-// XOR with the previous value in the block leaves small numbers when the
-// sign, exponent and leading mantissa bits repeat, as they do on a plateau,
-// so a varint stores them in a few bytes; the values round-trip bit-exactly.
 const (
-	blockVersion = 1
-	flagFailed   = 1 << 0
-	flagWire     = 1 << 1
-	// blockBytes is the size a block is filled to: two blocks with their
-	// element headers (16 bytes) and keys (8) fill a 4 KiB page after its
-	// 16-byte header, and rewriting the last block each commit stays cheap.
-	blockBytes = (4096-16)/2 - 16 - 8
+	blockV1    = 1
+	flagFailed = 1 << 0
+	flagWire   = 1 << 1
 	maxText    = 4096 // longer failure messages and wire texts are cut, with a marker
 )
 
-// blockWriter appends records to one block.
-type blockWriter struct {
-	key     int64 // ns
-	buf     []byte
-	unit    string
-	lastNs  int64
-	prevPa  uint64
-	prevRaw uint64
-}
-
-func newBlock(key int64, unit string) blockWriter {
-	b := blockWriter{key: key, unit: unit, lastNs: key}
-	b.buf = append(b.buf, blockVersion)
-	b.buf = appendString(b.buf, unit)
-	return b
-}
-
-// record encodes one sample relative to the block's previous one without
-// changing the block; add appends it.
-func (b *blockWriter) record(dst []byte, ns int64, smp Sample, keepWire bool) []byte {
-	var flags byte
-	if smp.Failed {
-		flags |= flagFailed
-	}
-	if keepWire && smp.Wire != "" {
-		flags |= flagWire
-	}
-	dst = append(dst, flags)
-	dst = binary.AppendVarint(dst, ns-b.lastNs)
-	if smp.Failed {
-		dst = binary.AppendUvarint(dst, uint64(smp.Kind))
-		dst = appendString(dst, smp.Message)
-	} else {
-		dst = binary.AppendUvarint(dst, math.Float64bits(smp.Pa)^b.prevPa)
-		dst = binary.AppendUvarint(dst, math.Float64bits(smp.Raw)^b.prevRaw)
-	}
-	if flags&flagWire != 0 {
-		dst = appendString(dst, smp.Wire)
-	}
-	return dst
-}
-
-// add appends a record made by record for the same sample.
-func (b *blockWriter) add(rec []byte, ns int64, smp Sample) {
-	b.buf = append(b.buf, rec...)
-	b.lastNs = ns
-	if !smp.Failed {
-		b.prevPa, b.prevRaw = math.Float64bits(smp.Pa), math.Float64bits(smp.Raw)
-	}
-}
-
-func appendString(buf []byte, s string) []byte {
+func cutText(s string) string {
 	if len(s) > maxText {
 		s = s[:maxText-len("…[cut]")] + "…[cut]"
 	}
-	buf = binary.AppendUvarint(buf, uint64(len(s)))
-	return append(buf, s...)
+	return s
 }
 
 // blockReader decodes bytes from the file; damage gives an error, never a panic.
@@ -167,9 +104,16 @@ func (r *blockReader) string() string {
 
 // decodeBlock calls fn for each sample in the block stored under key ns.
 func decodeBlock(key int64, b []byte, fn func(Sample) error) error {
+	if len(b) > 0 && b[0] == blockV2 {
+		return decodeBlockV2(key, b, fn)
+	}
+	return decodeBlockV1(key, b, fn)
+}
+
+func decodeBlockV1(key int64, b []byte, fn func(Sample) error) error {
 	r := &blockReader{b: b}
-	if v := r.byte(); r.err == nil && v != blockVersion {
-		return fmt.Errorf("block %d: version %d, this build reads %d: %w", key, v, blockVersion, ErrBadRecord)
+	if v := r.byte(); r.err == nil && v != blockV1 {
+		return fmt.Errorf("block %d: version %d, this build reads %d and %d: %w", key, v, blockV1, blockV2, ErrBadRecord)
 	}
 	unit := r.string()
 	ns := key

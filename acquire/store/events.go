@@ -52,7 +52,7 @@ func putEvent(tx *bolt.Tx, e *Event) error {
 		return fmt.Errorf("event %s: %w", e.Type, err)
 	}
 	b.FillPercent = 1.0 // append-only
-	return b.Put(u64(id), v)
+	return b.Put(u64(id), seal(v))
 }
 
 // AddEvent commits one event before it returns and gives its id. A zero
@@ -67,7 +67,7 @@ func (s *Store) AddEvent(e Event) (uint64, error) {
 		return 0, err
 	}
 	defer end()
-	if err := s.db.Update(func(tx *bolt.Tx) error { return putEvent(tx, &e) }); err != nil {
+	if err := s.update("add event", func(tx *bolt.Tx) error { return putEvent(tx, &e) }); err != nil {
 		return 0, fmt.Errorf("add event %s: %w", e.Type, err)
 	}
 	return e.ID, nil
@@ -96,12 +96,12 @@ func (s *Store) Events(since uint64, limit int) ([]Event, error) {
 		return nil, nil
 	}
 	var out []Event
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view("read events", func(tx *bolt.Tx) error {
 		c := tx.Bucket(bucketEvents).Cursor()
 		for k, v := c.Seek(u64(since + 1)); k != nil && len(out) < limit; k, v = c.Next() {
-			var e Event
-			if err := json.Unmarshal(v, &e); err != nil {
-				return fmt.Errorf("event %d: %w: %v", binary.BigEndian.Uint64(k), ErrBadRecord, err)
+			e, err := s.decodeEvent(k, v)
+			if err != nil {
+				return err
 			}
 			out = append(out, e)
 		}
@@ -116,9 +116,21 @@ func (s *Store) Events(since uint64, limit int) ([]Event, error) {
 // LastEventID returns the id of the newest stored event (0 if none).
 func (s *Store) LastEventID() (uint64, error) {
 	var id uint64
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view("last event", func(tx *bolt.Tx) error {
 		id = tx.Bucket(bucketEvents).Sequence()
 		return nil
 	})
 	return id, err
+}
+
+func (s *Store) decodeEvent(k, v []byte) (Event, error) {
+	var e Event
+	js, err := unseal(v, s.legacy)
+	if err != nil {
+		return e, fmt.Errorf("event %d: %w", binary.BigEndian.Uint64(k), err)
+	}
+	if err := json.Unmarshal(js, &e); err != nil {
+		return e, fmt.Errorf("event %d: %w: %v", binary.BigEndian.Uint64(k), ErrBadRecord, err)
+	}
+	return e, nil
 }

@@ -55,13 +55,21 @@ func (s *Store) AddPoint(run RunID, p analysis.Point) (seq uint64, existed bool,
 	if err := checkFinite(p); err != nil {
 		return 0, false, fmt.Errorf("add point to run %s: %w", run, err)
 	}
+	// Nothing captured without its samples: the samples queued so far
+	// (those of the point's windows among them) must be committed first.
+	if !s.opt.ReadOnly {
+		if err := s.Flush(); err != nil {
+			return 0, false, fmt.Errorf("add point cycle %d %s %s index %d to run %s: its samples are not committed: %w",
+				p.Cycle, p.Direction, p.Kind, p.Index, run, err)
+		}
+	}
 	end, err := s.begin()
 	if err != nil {
 		return 0, false, err
 	}
 	defer end()
-	err = s.db.Update(func(tx *bolt.Tx) error {
-		r, err := readRun(tx, run)
+	err = s.update("add point", func(tx *bolt.Tx) error {
+		r, err := s.readRun(tx, run)
 		if err != nil {
 			return err
 		}
@@ -70,9 +78,9 @@ func (s *Store) AddPoint(run RunID, p analysis.Point) (seq uint64, existed bool,
 		}
 		pts := tx.Bucket(bucketRuns).Bucket(u64(uint64(run))).Bucket(bucketPoints)
 		if old := pts.Get(key); old != nil {
-			var rec pointRecord
-			if err := json.Unmarshal(old, &rec); err != nil {
-				return fmt.Errorf("%w: %v", ErrBadRecord, err)
+			rec, err := s.decodePoint(key, old)
+			if err != nil {
+				return err
 			}
 			seq, existed = rec.Seq, true
 			return nil
@@ -84,7 +92,7 @@ func (s *Store) AddPoint(run RunID, p analysis.Point) (seq uint64, existed bool,
 		if err != nil {
 			return err
 		}
-		return pts.Put(key, v)
+		return pts.Put(key, seal(v))
 	})
 	if err != nil {
 		return 0, false, fmt.Errorf("add point cycle %d %s %s index %d to run %s: %w", p.Cycle, p.Direction, p.Kind, p.Index, run, err)
@@ -111,14 +119,14 @@ func checkFinite(p analysis.Point) error {
 // Points returns the run's points in capture order.
 func (s *Store) Points(run RunID) ([]analysis.Point, error) {
 	var recs []pointRecord
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view("read points", func(tx *bolt.Tx) error {
 		if _, err := runBucket(tx, run); err != nil {
 			return err
 		}
 		return tx.Bucket(bucketRuns).Bucket(u64(uint64(run))).Bucket(bucketPoints).ForEach(func(k, v []byte) error {
-			var rec pointRecord
-			if err := json.Unmarshal(v, &rec); err != nil {
-				return fmt.Errorf("point key %x: %w: %v", k, ErrBadRecord, err)
+			rec, err := s.decodePoint(k, v)
+			if err != nil {
+				return err
 			}
 			recs = append(recs, rec)
 			return nil
@@ -133,4 +141,16 @@ func (s *Store) Points(run RunID) ([]analysis.Point, error) {
 		out[i] = r.Point
 	}
 	return out, nil
+}
+
+func (s *Store) decodePoint(key, v []byte) (pointRecord, error) {
+	var rec pointRecord
+	js, err := unseal(v, s.legacy)
+	if err != nil {
+		return rec, fmt.Errorf("point key %x: %w", key, err)
+	}
+	if err := json.Unmarshal(js, &rec); err != nil {
+		return rec, fmt.Errorf("point key %x: %w: %v", key, ErrBadRecord, err)
+	}
+	return rec, nil
 }

@@ -3,6 +3,7 @@ package store
 import (
 	"encoding/binary"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"slices"
 	"time"
@@ -63,14 +64,21 @@ type runRecord struct {
 	Cursor  []byte    `json:"cursor,omitempty"`
 }
 
-func readRun(tx *bolt.Tx, id RunID) (Run, error) {
+func (s *Store) readRun(tx *bolt.Tx, id RunID) (Run, error) {
 	b, err := runBucket(tx, id)
 	if err != nil {
 		return Run{}, err
 	}
+	js, err := unseal(b.Get(keyRun), s.legacy)
+	if err != nil {
+		return Run{}, fmt.Errorf("run %s: %w", id, err)
+	}
 	var rec runRecord
-	if err := json.Unmarshal(b.Get(keyRun), &rec); err != nil {
+	if err := json.Unmarshal(js, &rec); err != nil {
 		return Run{}, fmt.Errorf("run %s: %w: %v", id, ErrBadRecord, err)
+	}
+	if !rec.State.valid() {
+		return Run{}, fmt.Errorf("run %s: state %q: %w", id, rec.State, ErrBadRecord)
 	}
 	return Run{ID: id, Label: rec.Label, Config: rec.Config, Record: rec.Record, State: rec.State, Reason: rec.Reason,
 		Created: rec.Created, Updated: rec.Updated, Cursor: rec.Cursor}, nil
@@ -86,7 +94,7 @@ func writeRun(tx *bolt.Tx, r Run) error {
 	if err != nil {
 		return fmt.Errorf("run %s: %w", r.ID, err)
 	}
-	return b.Put(keyRun, v)
+	return b.Put(keyRun, seal(v))
 }
 
 // CreateRun stores a new pending run and returns it once committed.
@@ -97,6 +105,30 @@ func (s *Store) CreateRun(label string, config []byte) (Run, error) {
 // CreateFrozenRun stores a new pending run with the record it is frozen
 // with, and returns it once committed.
 func (s *Store) CreateFrozenRun(label string, config, record []byte) (Run, error) {
+	return s.createRun(label, config, record, false)
+}
+
+// UnfinishedError is the refusal of CreateSoleRun: the store already holds
+// a run that has not ended.
+type UnfinishedError struct {
+	Run   RunID
+	State State
+}
+
+func (e *UnfinishedError) Error() string {
+	return fmt.Sprintf("run %s is still %s: resume it, or end it with stop, before starting another", e.Run, e.State)
+}
+
+func (e *UnfinishedError) Unwrap() error { return ErrUnfinished }
+
+// CreateSoleRun is CreateFrozenRun that refuses, in the same transaction,
+// while any run is unfinished (an *UnfinishedError naming the oldest), so
+// the store never holds two runs in progress.
+func (s *Store) CreateSoleRun(label string, config, record []byte) (Run, error) {
+	return s.createRun(label, config, record, true)
+}
+
+func (s *Store) createRun(label string, config, record []byte, sole bool) (Run, error) {
 	end, err := s.begin()
 	if err != nil {
 		return Run{}, err
@@ -104,8 +136,24 @@ func (s *Store) CreateFrozenRun(label string, config, record []byte) (Run, error
 	defer end()
 	now := s.opt.Clock.Now()
 	r := Run{Label: label, Config: slices.Clone(config), Record: slices.Clone(record), State: StatePending, Created: now, Updated: now}
-	err = s.db.Update(func(tx *bolt.Tx) error {
+	err = s.update("create run", func(tx *bolt.Tx) error {
 		runs := tx.Bucket(bucketRuns)
+		if sole {
+			var open *UnfinishedError
+			err := runs.ForEachBucket(func(k []byte) error {
+				r, err := s.readRun(tx, RunID(binary.BigEndian.Uint64(k)))
+				if err == nil && !r.State.Terminal() && open == nil {
+					open = &UnfinishedError{Run: r.ID, State: r.State}
+				}
+				return err
+			})
+			if err != nil {
+				return err
+			}
+			if open != nil {
+				return open
+			}
+		}
 		seq, err := runs.NextSequence()
 		if err != nil {
 			return err
@@ -152,9 +200,9 @@ func (s *Store) updateRun(id RunID, what string, change func(*Run)) (Run, error)
 	}
 	defer end()
 	var r Run
-	err = s.db.Update(func(tx *bolt.Tx) error {
+	err = s.update("set run", func(tx *bolt.Tx) error {
 		var err error
-		if r, err = readRun(tx, id); err != nil {
+		if r, err = s.readRun(tx, id); err != nil {
 			return err
 		}
 		if r.State.Terminal() {
@@ -174,9 +222,9 @@ func (s *Store) updateRun(id RunID, what string, change func(*Run)) (Run, error)
 // Run returns one run.
 func (s *Store) Run(id RunID) (Run, error) {
 	var r Run
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view("read run", func(tx *bolt.Tx) error {
 		var err error
-		r, err = readRun(tx, id)
+		r, err = s.readRun(tx, id)
 		return err
 	})
 	return r, err
@@ -193,9 +241,9 @@ func (s *Store) Unfinished() ([]Run, error) {
 
 func (s *Store) listRuns(keep func(Run) bool) ([]Run, error) {
 	var out []Run
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view("list runs", func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketRuns).ForEachBucket(func(k []byte) error {
-			r, err := readRun(tx, RunID(binary.BigEndian.Uint64(k)))
+			r, err := s.readRun(tx, RunID(binary.BigEndian.Uint64(k)))
 			if err != nil {
 				return err
 			}
@@ -230,4 +278,52 @@ func (s *Store) checkRunOpen(id RunID) error {
 		return fmt.Errorf("run %s is %s: %w", id, st, ErrRunEnded)
 	}
 	return nil
+}
+
+// Retries of FailRun: a state write that fails (a full disk freeing up, a
+// slow device) is tried again before the error is returned.
+var failRetries = []time.Duration{0, 50 * time.Millisecond, 250 * time.Millisecond, time.Second}
+
+// FailRun ends a run as failed with the reason, retrying a failing write a
+// few times over about 1.3 s. A run that has already ended is left as it
+// is (ended true, no error). When every attempt fails the error says so:
+// the run is still stored unfinished, AddSample and Put refuse it from now
+// on, and CloseUnfinished closes it at the next start.
+func (s *Store) FailRun(id RunID, reason string) (r Run, err error) {
+	for _, wait := range failRetries {
+		time.Sleep(wait)
+		r, err = s.SetState(id, StateFailed, reason)
+		switch {
+		case err == nil:
+			return r, nil
+		case errors.Is(err, ErrRunEnded):
+			return s.Run(id)
+		case errors.Is(err, ErrNoRun), errors.Is(err, ErrClosed), errors.Is(err, ErrBadRecord), errors.Is(err, ErrDamaged):
+			return Run{}, err
+		}
+	}
+	s.setRunState(id, StateFailed) // refuse further data for it in this process
+	return Run{}, fmt.Errorf("fail run %s (%s): %d attempts: %w", id, reason, len(failRetries), err)
+}
+
+// CloseUnfinished ends every unfinished run except keep (0 keeps none) as
+// failed with the reason, oldest first, and returns the runs it closed. At
+// start-up: the newest unfinished run may be resumed, the others are closed.
+func (s *Store) CloseUnfinished(keep RunID, reason string) ([]Run, error) {
+	open, err := s.Unfinished()
+	if err != nil {
+		return nil, err
+	}
+	var closed []Run
+	for _, r := range open {
+		if r.ID == keep {
+			continue
+		}
+		c, err := s.FailRun(r.ID, reason)
+		if err != nil {
+			return closed, err
+		}
+		closed = append(closed, c)
+	}
+	return closed, nil
 }

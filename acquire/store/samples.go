@@ -12,7 +12,7 @@ import (
 	"plateau/drivers"
 )
 
-// job is one item for the writer goroutine: a sample, an event or a flush.
+// job is one item for the writer goroutine: a sample or an event.
 type job struct {
 	run        RunID
 	instrument string
@@ -20,28 +20,37 @@ type job struct {
 
 	event     *Event
 	committed func(Event, error)
-
-	flushed chan error
 }
 
 // AddSample queues one reading of one instrument — good (err nil) or failed
-// (err from the driver; its kind and text are kept) — for the next batched
-// commit. It returns at once unless the queue is full, in which case it
-// waits: samples are never dropped. It refuses an unknown or ended run, an
-// empty instrument name and a reading without a time.
+// (err from the driver; its kind and text are kept) — as Put does.
+//
+// Deprecated: use Put with the store's own Sample.
 func (s *Store) AddSample(run RunID, instrument string, r drivers.Reading, err error) error {
-	if instrument == "" || len(instrument) > 255 {
-		return fmt.Errorf("add sample to run %s: instrument name %q must have 1 to 255 bytes (%w)", run, instrument, ErrBadInput)
-	}
-	if r.Time.IsZero() || r.Time.Before(time.Unix(0, 0)) {
-		return fmt.Errorf("add sample of %s to run %s: reading time %v is unset or before 1970 (%w)", instrument, run, r.Time, ErrBadInput)
-	}
-	if cerr := s.checkRunOpen(run); cerr != nil {
-		return fmt.Errorf("add sample of %s: %w", instrument, cerr)
-	}
 	smp := Sample{Time: r.Time, Pa: r.Pa, Raw: r.Raw, RawUnit: r.RawUnit, Wire: r.Wire}
 	if err != nil {
 		smp = Sample{Time: r.Time, Wire: r.Wire, Failed: true, Kind: drivers.KindOf(err), Message: err.Error()}
+	}
+	return s.Put(run, instrument, smp)
+}
+
+// Put queues one sample of one instrument for the next batched commit. It
+// returns at once unless the queue is full, in which case it waits: samples
+// are never dropped. It refuses an unknown or ended run, an empty
+// instrument name, a sample without a time and a failed read that carries
+// values (a failed read keeps its kind, message and wire text only).
+func (s *Store) Put(run RunID, instrument string, smp Sample) error {
+	if instrument == "" || len(instrument) > 255 {
+		return fmt.Errorf("add sample to run %s: instrument name %q must have 1 to 255 bytes (%w)", run, instrument, ErrBadInput)
+	}
+	if smp.Time.IsZero() || smp.Time.Before(time.Unix(0, 0)) {
+		return fmt.Errorf("add sample of %s to run %s: reading time %v is unset or before 1970 (%w)", instrument, run, smp.Time, ErrBadInput)
+	}
+	if smp.Failed && (smp.Pa != 0 || smp.Raw != 0 || smp.RawUnit != "") {
+		return fmt.Errorf("add sample of %s to run %s: a failed read carries a value (%w)", instrument, run, ErrBadInput)
+	}
+	if cerr := s.checkRunOpen(run); cerr != nil {
+		return fmt.Errorf("add sample of %s: %w", instrument, cerr)
 	}
 	return s.enqueue(job{run: run, instrument: instrument, sample: smp})
 }
@@ -52,17 +61,28 @@ func (s *Store) enqueue(j job) error {
 		return err
 	}
 	defer end()
+	if s.opt.ReadOnly {
+		return fmt.Errorf("store %s is open read-only (%w)", s.path, ErrBadInput)
+	}
 	s.queue <- j
 	return nil
 }
 
-// Flush waits until everything queued before it is committed and returns
-// the commit error, if any.
+// Flush commits everything queued before it and returns the commit error,
+// if any. It does not wait for a failing disk: while the writer cannot
+// commit, Flush returns the error at once and the samples stay pending.
 func (s *Store) Flush() error {
-	ch := make(chan error, 1)
-	if err := s.enqueue(job{flushed: ch}); err != nil {
+	end, err := s.begin()
+	if err != nil {
 		return err
 	}
+	if s.opt.ReadOnly {
+		end()
+		return nil
+	}
+	ch := make(chan error, 1)
+	s.flushes <- ch
+	end()
 	return <-ch
 }
 
@@ -71,7 +91,8 @@ func (s *Store) Flush() error {
 type WriterStatus struct {
 	LastCommit time.Time // store clock time of the last successful batch commit
 	Committed  uint64    // samples and queued events committed since Open
-	Pending    int       // items of the batch that failed to commit (0 after a success)
+	Pending    int       // items taken from the queue and not yet committed (retried until they are)
+	Failures   uint64    // failed commits since Open
 	Err        error     // the last commit error; nil once a commit succeeds again
 }
 
@@ -92,8 +113,12 @@ func (w *writerState) set(f func(*WriterStatus)) {
 	w.mu.Unlock()
 }
 
-// WriterStatus returns the writer's progress.
+// WriterStatus returns the writer's progress. Queued is how many items wait
+// in the queue in front of the writer.
 func (s *Store) WriterStatus() WriterStatus { return s.status.get() }
+
+// Queued is the number of items waiting in front of the writer.
+func (s *Store) Queued() int { return len(s.queue) }
 
 type streamKey struct {
 	run        RunID
@@ -110,7 +135,10 @@ type stream struct {
 
 // writer is the one goroutine that writes samples: it commits a batch when
 // FlushInterval has passed since the first queued item, when BatchSamples
-// items wait, on Flush and on Close.
+// items wait, on Flush and on Close. A failed commit keeps its items
+// pending and is retried every FlushInterval; once 4 × BatchSamples items
+// are pending it stops taking new ones, so producers wait instead of
+// memory growing, while Flush still answers at once with the error.
 func (s *Store) writer() {
 	defer close(s.done)
 	streams := map[streamKey]*stream{}
@@ -118,57 +146,75 @@ func (s *Store) writer() {
 	timer := time.NewTimer(time.Hour)
 	timer.Stop()
 	armed := false
+	arm := func() {
+		if !armed {
+			timer.Reset(s.opt.FlushInterval)
+			armed = true
+		}
+	}
 	commit := func() error {
 		err := s.commit(streams, pending)
 		if err == nil {
 			pending = pending[:0]
-		} else if len(pending) >= 4*s.opt.BatchSamples {
-			// Back-pressure: stop draining the queue so producers block
-			// rather than grow memory without bound, and keep retrying.
-			for err != nil && !s.isClosing() {
-				time.Sleep(s.opt.FlushInterval)
-				if err = s.commit(streams, pending); err == nil {
-					pending = pending[:0]
-				}
-			}
+		} else {
+			arm()
 		}
 		return err
 	}
+	take := func(j job) {
+		pending = append(pending, j)
+		if len(pending) >= s.opt.BatchSamples && len(pending)%s.opt.BatchSamples == 0 {
+			commit()
+		}
+		arm()
+	}
+	limit := 4 * s.opt.BatchSamples
 	for {
+		in := s.queue
+		if len(pending) >= limit {
+			in = nil // back-pressure
+		}
 		select {
-		case j, ok := <-s.queue:
-			switch {
-			case !ok:
-				if err := commit(); err != nil {
-					for _, j := range pending {
-						if j.committed != nil {
-							j.committed(*j.event, err)
-						}
-					}
-				}
+		case j, ok := <-in:
+			if !ok {
+				s.drainAtClose(streams, pending)
 				return
-			case j.flushed != nil:
-				j.flushed <- commit()
-			default:
-				pending = append(pending, j)
-				if len(pending) >= s.opt.BatchSamples {
-					commit()
-				} else if !armed {
-					timer.Reset(s.opt.FlushInterval)
-					armed = true
-				}
 			}
+			take(j)
+		case ch := <-s.flushes:
+			// Everything queued before the Flush call is in the queue now.
+			err := commit()
+			for err == nil && len(s.queue) > 0 {
+				for n := len(s.queue); n > 0 && len(pending) < limit; n-- {
+					pending = append(pending, <-s.queue)
+				}
+				err = commit()
+			}
+			ch <- err
 		case <-timer.C:
 			armed = false
-			if commit() != nil {
-				timer.Reset(s.opt.FlushInterval)
-				armed = true
-			}
+			commit()
 		}
 	}
 }
 
-func (s *Store) isClosing() bool { return s.closing.Load() }
+// drainAtClose commits what is left when the queue closes, retrying a
+// failing commit a few times; what still fails is counted in the status
+// (Close reports it) and failed to the events' callbacks.
+func (s *Store) drainAtClose(streams map[streamKey]*stream, pending []job) {
+	var err error
+	for try := range 3 {
+		if err = s.commit(streams, pending); err == nil {
+			return
+		}
+		time.Sleep(time.Duration(try+1) * s.opt.FlushInterval)
+	}
+	for _, j := range pending {
+		if j.committed != nil {
+			j.committed(*j.event, err)
+		}
+	}
+}
 
 // commit writes the pending jobs in one Update. The streams map changes only
 // when the transaction commits, so a failed commit can be retried as is.
@@ -177,7 +223,7 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 		return nil
 	}
 	staged := map[streamKey]*stream{}
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update("commit samples", func(tx *bolt.Tx) error {
 		clear(staged)
 		for _, j := range pending {
 			if j.event != nil {
@@ -191,7 +237,8 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 			if !ok {
 				st = &stream{}
 				if old := streams[k]; old != nil {
-					*st = *old // the block's bytes are shared but only appended past the committed length
+					*st = *old
+					st.block = old.block.clone()
 				}
 				staged[k] = st
 			}
@@ -204,7 +251,7 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 			if err != nil {
 				return err
 			}
-			if err := b.Put(u64(uint64(st.block.key)), st.block.buf); err != nil {
+			if err := b.Put(u64(uint64(st.block.key)), st.block.bytes()); err != nil {
 				return fmt.Errorf("samples of %s in run %s: %w", k.instrument, k.run, err)
 			}
 		}
@@ -212,7 +259,7 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 	})
 	if err != nil {
 		err = fmt.Errorf("%w: commit of %d queued items: %w", ErrStoreWrite, len(pending), err)
-		s.status.set(func(w *WriterStatus) { w.Err, w.Pending = err, len(pending) })
+		s.status.set(func(w *WriterStatus) { w.Err, w.Pending = err, len(pending); w.Failures++ })
 		return err
 	}
 	for k, st := range staged {
@@ -247,18 +294,13 @@ func sampleBucket(tx *bolt.Tx, k streamKey) (*bolt.Bucket, error) {
 }
 
 func (s *Store) appendSample(tx *bolt.Tx, k streamKey, st *stream, smp Sample) error {
-	ns := smp.Time.UnixNano()
 	keepWire := smp.Failed
 	if !smp.Failed {
 		keepWire = s.opt.WireEvery > 0 && st.good%uint64(s.opt.WireEvery) == 0
 		st.good++
 	}
-	var scratch [64]byte
-	if st.open && (smp.Failed || smp.RawUnit == st.block.unit) {
-		if rec := st.block.record(scratch[:0], ns, smp, keepWire); len(st.block.buf)+len(rec) <= blockBytes {
-			st.block.add(rec, ns, smp)
-			return nil
-		}
+	if st.open && (smp.Failed || smp.RawUnit == st.block.unit) && st.block.add(smp, keepWire) {
+		return nil
 	}
 	// Start a new block: the current one is full or the unit changed.
 	b, err := sampleBucket(tx, k)
@@ -266,12 +308,12 @@ func (s *Store) appendSample(tx *bolt.Tx, k streamKey, st *stream, smp Sample) e
 		return err
 	}
 	if st.open {
-		if err := b.Put(u64(uint64(st.block.key)), st.block.buf); err != nil {
+		if err := b.Put(u64(uint64(st.block.key)), st.block.bytes()); err != nil {
 			return fmt.Errorf("samples of %s in run %s: %w", k.instrument, k.run, err)
 		}
 	}
 	// A new block's key must sort after every existing key of the bucket.
-	key := ns
+	key := smp.Time.UnixNano()
 	if last, _ := b.Cursor().Last(); last != nil {
 		if lk := int64(binary.BigEndian.Uint64(last)); lk >= key {
 			key = lk + 1
@@ -283,7 +325,7 @@ func (s *Store) appendSample(tx *bolt.Tx, k streamKey, st *stream, smp Sample) e
 	}
 	st.block = newBlock(key, unit)
 	st.open = true
-	st.block.add(st.block.record(scratch[:0], ns, smp, keepWire), ns, smp)
+	st.block.add(smp, keepWire)
 	return nil
 }
 
@@ -307,7 +349,7 @@ func (s *Store) Samples(run RunID, instrument string, from, to time.Time, fn fun
 	for {
 		chunk = chunk[:0]
 		done := true
-		err := s.db.View(func(tx *bolt.Tx) error {
+		err := s.view("read samples", func(tx *bolt.Tx) error {
 			rb, err := runBucket(tx, run)
 			if err != nil {
 				return err
@@ -368,7 +410,7 @@ func (s *Store) Samples(run RunID, instrument string, from, to time.Time, fn fun
 // Instruments lists the instruments that have samples in the run.
 func (s *Store) Instruments(run RunID) ([]string, error) {
 	var out []string
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view("list instruments", func(tx *bolt.Tx) error {
 		rb, err := runBucket(tx, run)
 		if err != nil {
 			return err

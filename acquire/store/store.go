@@ -5,13 +5,18 @@
 // Layout (all integer keys are 8-byte big-endian, so byte order is numeric
 // order):
 //
-//	meta                     "format" → "1"
+//	meta                     "format" → "2" (files of format "1" are still read and written)
 //	runs                     <run id>  → bucket, one per run (ids from NextSequence)
-//	  "run"                  → JSON runRecord (label, config, state, times, cursor)
-//	  points                 <cycle u32><len><kind><len><direction><index u32> → JSON {seq, stored, point}
+//	  "run"                  → sealed JSON runRecord (label, config, state, times, cursor)
+//	  points                 <cycle u32><len><kind><len><direction><index u32> → sealed JSON {seq, stored, point}
 //	  samples                <instrument name> → bucket
 //	    <unix ns of first sample in the block> → block of samples (see block.go)
-//	events                   <event id> → JSON Event (ids from NextSequence)
+//	events                   <event id> → sealed JSON Event (ids from NextSequence)
+//
+// Sealed records and sample blocks carry a CRC-32C (seal.go, block.go), so
+// damage inside a record is found when it is read. Before bbolt maps a
+// file, Open checks its pages with plain reads (pages.go), and every bbolt
+// call runs under a guard that turns a panic into an error (guard.go).
 //
 // Synchronous, committed before return: CreateRun, SetState, SetCursor,
 // AddPoint, AddEvent. Asynchronous, through one writer goroutine that commits
@@ -37,7 +42,13 @@ import (
 	"plateau/drivers/clock"
 )
 
-const formatVersion = "1"
+// formatVersion is written into new files; format "1" files (unsealed
+// records, version-1 sample blocks) are still read, and new records written
+// to them are sealed.
+const (
+	formatVersion = "2"
+	formatLegacy  = "1"
+)
 
 var (
 	bucketMeta    = []byte("meta")
@@ -58,6 +69,8 @@ var (
 	ErrBadRecord  = errors.New("stored record cannot be decoded")
 	ErrWrongFile  = errors.New("not a plateau store")
 	ErrStoreWrite = errors.New("store writer failed")
+	ErrDamaged    = errors.New("store file is damaged")
+	ErrUnfinished = errors.New("the store holds an unfinished run")
 )
 
 // Options tune a store; the zero value gives the defaults.
@@ -83,7 +96,29 @@ type Options struct {
 	MaxSize int
 	// Clock stamps runs and events that come without a time (default wall).
 	Clock clock.Clock
+	// ReadOnly opens an existing file without writing to it (no writer,
+	// no lock held against other readers); writes return an error.
+	ReadOnly bool
+	// StartCheck is how much Open checks before it returns: CheckBounded
+	// (the default), CheckFull or CheckPagesOnly.
+	StartCheck CheckDepth
 }
+
+// CheckDepth says how much of a store a check reads.
+type CheckDepth int
+
+const (
+	// CheckBounded reads every page of the file's tree except the leaf
+	// pages of sample buckets, every run and point record, the newest 1000
+	// events and the newest block of every sample stream.
+	CheckBounded CheckDepth = iota
+	// CheckFull reads everything: bbolt's consistency check, every record,
+	// every event and every sample block.
+	CheckFull
+	// CheckPagesOnly checks the meta pages, the file size and the page tree
+	// but decodes no records (the least that keeps bbolt from panicking).
+	CheckPagesOnly
+)
 
 func (o Options) withDefaults() (Options, error) {
 	if o.Timeout <= 0 {
@@ -130,9 +165,10 @@ func ParseRunID(s string) (RunID, error) {
 
 // Store is an open plateau store.
 type Store struct {
-	db   *bolt.DB
-	opt  Options
-	path string
+	db     *bolt.DB
+	opt    Options
+	path   string
+	legacy bool // format-1 file: unsealed records accepted
 
 	// mu guards closed; every operation holds it for reading so that Close
 	// (which takes it for writing) waits for operations in flight.
@@ -143,61 +179,155 @@ type Store struct {
 	runsMu sync.Mutex
 	runs   map[RunID]State // every run's state, for cheap checks in AddSample
 
-	queue  chan job
-	done   chan struct{}
+	queue   chan job
+	flushes chan chan error
+	done    chan struct{}
 	status writerState
 }
 
-// Open opens or creates the store at path.
+// Open opens the store at path, creating it when the file does not exist.
+// An existing file is checked first (Options.StartCheck); a damaged file,
+// an empty one or one that is not a plateau store is refused with an error
+// naming the file and what is wrong.
 func Open(path string, opt Options) (*Store, error) {
 	opt, err := opt.withDefaults()
 	if err != nil {
 		return nil, err
 	}
-	db, err := bolt.Open(path, opt.Mode, &bolt.Options{Timeout: opt.Timeout, MaxSize: opt.MaxSize})
+	_, statErr := os.Stat(path)
+	fresh := errors.Is(statErr, os.ErrNotExist)
+	switch {
+	case fresh && opt.ReadOnly:
+		return nil, fmt.Errorf("open store %s: %w", path, statErr)
+	case !fresh && statErr != nil:
+		return nil, fmt.Errorf("open store %s: %w", path, statErr)
+	case !fresh:
+		if _, err := inspectFile(path, opt.StartCheck != CheckFull); err != nil {
+			return nil, refusal(path, err)
+		}
+	}
+	db, err := openBolt(path, opt)
 	if err != nil {
 		if errors.Is(err, bolt.ErrTimeout) {
 			return nil, fmt.Errorf("open store %s: another process holds it (waited %v): %w", path, opt.Timeout, err)
 		}
-		return nil, fmt.Errorf("open store %s: %w", path, err)
+		return nil, refusal(path, err)
 	}
 	s := &Store{db: db, opt: opt, path: path, runs: map[RunID]State{},
-		queue: make(chan job, opt.QueueSize), done: make(chan struct{})}
-	if err := s.init(); err != nil {
+		queue: make(chan job, opt.QueueSize), flushes: make(chan chan error), done: make(chan struct{})}
+	if err := s.guard("open", func() error { return s.init(fresh) }); err != nil {
 		db.Close()
-		return nil, fmt.Errorf("open store %s: %w", path, err)
+		return nil, refusal(path, err)
 	}
-	go s.writer()
+	if !fresh && opt.StartCheck != CheckPagesOnly {
+		if err := s.checkContent(opt.StartCheck); err != nil {
+			db.Close()
+			return nil, refusal(path, err)
+		}
+	}
+	if opt.ReadOnly {
+		close(s.done)
+	} else {
+		go s.writer()
+	}
 	return s, nil
 }
 
-func (s *Store) init() error {
+// SalvageHint is the command that copies what can be read out of a damaged
+// store into a new file.
+func SalvageHint(path string) string {
+	return fmt.Sprintf("plateau salvage --store %s NEW-FILE", path)
+}
+
+func refusal(path string, err error) error {
+	if errors.Is(err, ErrDamaged) {
+		return fmt.Errorf("open store %s: %w; copy out what can be read with: %s", path, err, SalvageHint(path))
+	}
+	return fmt.Errorf("open store %s: %w", path, err)
+}
+
+// openBolt opens the file with bbolt under the guard; if bbolt panics while
+// opening, the file it opened is closed so its lock is released.
+func openBolt(path string, opt Options) (db *bolt.DB, err error) {
+	var file *os.File
+	bo := &bolt.Options{Timeout: opt.Timeout, MaxSize: opt.MaxSize, ReadOnly: opt.ReadOnly,
+		OpenFile: func(name string, flag int, mode os.FileMode) (*os.File, error) {
+			f, err := os.OpenFile(name, flag, mode)
+			file = f
+			return f, err
+		}}
+	err = guarded(path, "open", func() error {
+		var err error
+		db, err = bolt.Open(path, opt.Mode, bo)
+		return err
+	})
+	if err != nil && db == nil && file != nil && errors.Is(err, ErrDamaged) {
+		file.Close()
+	}
+	return db, err
+}
+
+func (s *Store) init(fresh bool) error {
+	if s.opt.ReadOnly {
+		return s.db.View(func(tx *bolt.Tx) error {
+			meta := tx.Bucket(bucketMeta)
+			if meta == nil || tx.Bucket(bucketRuns) == nil || tx.Bucket(bucketEvents) == nil {
+				return fmt.Errorf("no meta, runs or events bucket: %w", ErrWrongFile)
+			}
+			if err := s.setFormat(meta.Get(keyFormat)); err != nil {
+				return err
+			}
+			return s.loadRuns(tx)
+		})
+	}
 	return s.db.Update(func(tx *bolt.Tx) error {
-		meta, err := tx.CreateBucketIfNotExists(bucketMeta)
-		if err != nil {
-			return err
-		}
-		switch v := meta.Get(keyFormat); {
-		case v == nil && tx.Bucket(bucketRuns) == nil:
+		meta := tx.Bucket(bucketMeta)
+		if meta == nil {
+			if !fresh {
+				return fmt.Errorf("a bbolt file without plateau's meta bucket: %w", ErrWrongFile)
+			}
+			var err error
+			if meta, err = tx.CreateBucket(bucketMeta); err != nil {
+				return err
+			}
 			if err := meta.Put(keyFormat, []byte(formatVersion)); err != nil {
 				return err
 			}
-		case string(v) != formatVersion:
-			return fmt.Errorf("format %q, this build reads %q: %w", v, formatVersion, ErrWrongFile)
+		}
+		if err := s.setFormat(meta.Get(keyFormat)); err != nil {
+			return err
 		}
 		for _, name := range [][]byte{bucketRuns, bucketEvents} {
 			if _, err := tx.CreateBucketIfNotExists(name); err != nil {
 				return err
 			}
 		}
-		return tx.Bucket(bucketRuns).ForEachBucket(func(k []byte) error {
-			r, err := readRun(tx, RunID(binary.BigEndian.Uint64(k)))
-			if err != nil {
-				return err
-			}
-			s.runs[r.ID] = r.State
-			return nil
-		})
+		return s.loadRuns(tx)
+	})
+}
+
+func (s *Store) setFormat(v []byte) error {
+	switch string(v) {
+	case formatVersion:
+	case formatLegacy:
+		s.legacy = true
+	default:
+		return fmt.Errorf("format %q, this build reads %q and %q: %w", v, formatLegacy, formatVersion, ErrWrongFile)
+	}
+	return nil
+}
+
+func (s *Store) loadRuns(tx *bolt.Tx) error {
+	return tx.Bucket(bucketRuns).ForEachBucket(func(k []byte) error {
+		if len(k) != 8 {
+			return fmt.Errorf("run key %x is not 8 bytes: %w", k, ErrDamaged)
+		}
+		r, err := s.readRun(tx, RunID(binary.BigEndian.Uint64(k)))
+		if err != nil {
+			return err
+		}
+		s.runs[r.ID] = r.State
+		return nil
 	})
 }
 
@@ -223,7 +353,9 @@ func (s *Store) Close() error {
 		return ErrClosed
 	}
 	s.closed = true
-	close(s.queue)
+	if !s.opt.ReadOnly {
+		close(s.queue)
+	}
 	s.mu.Unlock()
 	<-s.done
 	werr := s.status.get().Err
@@ -236,21 +368,32 @@ func (s *Store) Close() error {
 	return nil
 }
 
-// Check runs bbolt's consistency check in a read-only transaction and
-// returns every problem it finds, joined.
+// Check reads the whole store: bbolt's consistency check, then every run,
+// point, event and sample block with its checksum. It returns every
+// problem found, joined; damage is marked ErrDamaged.
 func (s *Store) Check() error {
-	var errs []error
-	err := s.db.View(func(tx *bolt.Tx) error {
-		for e := range tx.Check() {
-			errs = append(errs, e)
-		}
-		return nil
-	})
+	end, err := s.begin()
 	if err != nil {
-		return fmt.Errorf("check store %s: %w", s.path, err)
+		return err
+	}
+	defer end()
+	var errs []error
+	err = s.guard("check", func() error {
+		return s.db.View(func(tx *bolt.Tx) error {
+			for e := range tx.Check() {
+				errs = append(errs, e)
+			}
+			return nil
+		})
+	})
+	if err == nil && len(errs) == 0 {
+		err = s.checkContent(CheckFull)
+	}
+	if err != nil {
+		errs = append(errs, err)
 	}
 	if len(errs) > 0 {
-		return fmt.Errorf("check store %s: %d problems: %w", s.path, len(errs), errors.Join(errs...))
+		return fmt.Errorf("check store %s: %d problems: %w: %w", s.path, len(errs), ErrDamaged, errors.Join(errs...))
 	}
 	return nil
 }
@@ -259,10 +402,12 @@ func (s *Store) Check() error {
 // stays in use, and returns the bytes written.
 func (s *Store) Backup(w io.Writer) (int64, error) {
 	var n int64
-	err := s.db.View(func(tx *bolt.Tx) error {
-		var err error
-		n, err = tx.WriteTo(w)
-		return err
+	err := s.guard("backup", func() error {
+		return s.db.View(func(tx *bolt.Tx) error {
+			var err error
+			n, err = tx.WriteTo(w)
+			return err
+		})
 	})
 	if err != nil {
 		return n, fmt.Errorf("backup store %s: %w", s.path, err)

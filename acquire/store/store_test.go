@@ -471,8 +471,6 @@ func collect(t testing.TB, s *Store, run RunID, inst string, from, to time.Time)
 	return out
 }
 
-func same(a, b float64) bool { return math.Float64bits(a) == math.Float64bits(b) }
-
 func TestSamplesRoundTrip(t *testing.T) {
 	s, path := openTest(t, Options{WireEvery: 1, BatchSamples: 97})
 	run := newRun(t, s)
