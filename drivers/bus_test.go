@@ -3,6 +3,7 @@ package drivers
 import (
 	"context"
 	"errors"
+	"math"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -175,5 +176,43 @@ func TestBusNeverStartsEndedWork(t *testing.T) {
 				t.Errorf("live work after: %v, ran %d", err, ran.Load())
 			}
 		})
+	}
+}
+
+func TestRateMeter(t *testing.T) {
+	t0 := time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC)
+	cases := []struct {
+		name  string
+		marks []time.Duration
+		want  float64
+	}{
+		{"none", nil, 0},
+		{"one", []time.Duration{0}, 0},
+		{"4 Hz", []time.Duration{0, 250 * time.Millisecond, 500 * time.Millisecond, 750 * time.Millisecond}, 4},
+		{"same instant", []time.Duration{time.Second, time.Second}, 0},
+	}
+	for _, c := range cases {
+		var m RateMeter
+		for _, d := range c.marks {
+			m.Mark(t0.Add(d))
+		}
+		r := m.Rate()
+		if math.Abs(r.PerSecond-c.want) > 1e-9 || r.Reads != uint64(len(c.marks)) {
+			t.Errorf("%s: %+v, want %g/s", c.name, r, c.want)
+		}
+	}
+	// The rate follows the recent reads: 100 reads at 10 Hz, then 40 at 2 Hz.
+	var m RateMeter
+	at := t0
+	for range 100 {
+		m.Mark(at)
+		at = at.Add(100 * time.Millisecond)
+	}
+	for range 40 {
+		at = at.Add(500 * time.Millisecond)
+		m.Mark(at)
+	}
+	if r := m.Rate(); math.Abs(r.PerSecond-2) > 1e-9 || !r.Last.Equal(at) || r.Reads != 140 {
+		t.Errorf("after a slow-down: %+v, want 2/s", r)
 	}
 }

@@ -59,6 +59,7 @@ type Gauge struct {
 	clk  clock.Clock
 	log  *slog.Logger
 	bus  *drivers.Bus
+	rate drivers.RateMeter
 
 	// Below: touched only while holding bus.
 	port    port
@@ -68,7 +69,10 @@ type Gauge struct {
 	query   []byte
 }
 
-var _ drivers.Gauge = (*Gauge)(nil)
+var (
+	_ drivers.Gauge        = (*Gauge)(nil)
+	_ drivers.RateReporter = (*Gauge)(nil)
+)
 
 // OpenGauge opens a line instrument from its configuration. The port is
 // opened on the first Read, and reopened after it vanished.
@@ -183,8 +187,15 @@ func (g *Gauge) Read(ctx context.Context) (drivers.Reading, error) {
 		return r, drivers.Fail(g.name, drivers.KindBadReply, err)
 	}
 	r.Raw = v
-	return g.conv.Finish(g.name, r)
+	r, err = g.conv.Finish(g.name, r)
+	if err == nil {
+		g.rate.Mark(r.Time)
+	}
+	return r, err
 }
+
+// ReadRate is the rate of good reads this gauge achieves.
+func (g *Gauge) ReadRate() drivers.Rate { return g.rate.Rate() }
 
 // readKind classifies a failed exchange.
 func readKind(err error) drivers.Kind {

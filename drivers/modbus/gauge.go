@@ -70,9 +70,13 @@ type Gauge struct {
 	release func() error
 	clk     clock.Clock
 	log     *slog.Logger
+	rate    drivers.RateMeter
 }
 
-var _ drivers.Gauge = (*Gauge)(nil)
+var (
+	_ drivers.Gauge        = (*Gauge)(nil)
+	_ drivers.RateReporter = (*Gauge)(nil)
+)
 
 // OpenGauge opens a Modbus gauge from its configuration. It does not connect:
 // the first Read does, so a missing device degrades the run instead of
@@ -124,8 +128,16 @@ func (g *Gauge) Read(ctx context.Context) (drivers.Reading, error) {
 	if err != nil {
 		return drivers.Reading{Time: at, Wire: wire}, drivers.Fail(g.name, drivers.KindBadReply, err)
 	}
-	return g.conv.Finish(g.name, drivers.Reading{Time: at, Raw: g.val.lin.Apply(raw), Wire: wire})
+	r, err := g.conv.Finish(g.name, drivers.Reading{Time: at, Raw: g.val.lin.Apply(raw), Wire: wire})
+	if err == nil {
+		g.rate.Mark(at)
+	}
+	return r, err
 }
+
+// ReadRate is the rate of good reads this gauge achieves; on a line shared
+// with other units it can be below what its poll interval asks for.
+func (g *Gauge) ReadRate() drivers.Rate { return g.rate.Rate() }
 
 // Close releases the shared connection; the last user closes it.
 func (g *Gauge) Close() error { return g.release() }

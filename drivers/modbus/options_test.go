@@ -1,6 +1,7 @@
 package modbus
 
 import (
+	"math"
 	"strings"
 	"testing"
 	"time"
@@ -88,5 +89,27 @@ func TestSourceSetpointNeedsEveryOption(t *testing.T) {
 	in.Set.Setpoint.Scale, in.Set.Setpoint.Table = 1, ""
 	if _, err := drivers.OpenSource(in, drivers.OpenEnv{}); err == nil || !strings.Contains(err.Error(), "source.setpoint.table") {
 		t.Errorf("setpoint without table: %v", err)
+	}
+}
+
+// Worked by hand from Modbus over Serial Line V1.02 §2.5.1 (11-bit
+// characters): a read of 2 registers is 8 + 9 characters plus 2 × 3.5 of
+// silence = 24 characters = 264 bits.
+func TestLineReadsPerSecond(t *testing.T) {
+	cases := []struct {
+		baud, n int
+		pause   time.Duration
+		want    float64
+	}{
+		{19200, 2, 0, 19200.0 / 264},                                // 72.7 reads/s
+		{9600, 2, 0, 9600.0 / 264},                                  // half the baud, half the reads
+		{19200, 2, 20 * time.Millisecond, 1 / (225.5/19200 + 0.02)}, // 31.5 reads/s: the pause covers the second silence
+		{19200, 1, 0, 19200.0 / 242},                                // one register: 2 characters fewer
+		{0, 2, 0, 0},
+	}
+	for _, c := range cases {
+		if got := LineReadsPerSecond(c.baud, c.n, c.pause); math.Abs(got-c.want) > 1e-9 {
+			t.Errorf("LineReadsPerSecond(%d, %d, %s) = %g, want %g", c.baud, c.n, c.pause, got, c.want)
+		}
 	}
 }
