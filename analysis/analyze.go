@@ -5,7 +5,10 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strconv"
 	"time"
+
+	"plateau/analysis/units"
 )
 
 // LinearityKind names a form of linearity (ISA-51.1 terms where it has them).
@@ -25,19 +28,43 @@ type Options struct {
 	// Rule is required: ISO/IEC 17025 wants it agreed before measuring, so
 	// there is no silent default.
 	Rule DecisionRule `json:"decision_rule"`
-	// CoverageFactor k for the expanded uncertainty; 0 means 2.
+	// Coverage chooses how k is found; empty means CoverageConventional.
+	Coverage CoverageMethod `json:"coverage_method,omitempty"`
+	// CoverageFactor k of the conventional method; 0 means 2.
 	CoverageFactor float64 `json:"coverage_factor"`
 	// Linearity lists the forms to compute; empty means all four.
 	Linearity []LinearityKind `json:"linearity"`
 	// CorrectionDegree is the degree (1–3) of the correction curve; 0 means 1.
 	CorrectionDegree int `json:"correction_degree"`
-	// TURThreshold below which a warning is raised; 0 means 4 (4:1).
-	TURThreshold float64 `json:"tur_threshold"`
+	// ReferenceRatioThreshold: below this MPE / U_reference a warning is
+	// raised; 0 means 4 (the 4 : 1 practice).
+	ReferenceRatioThreshold float64 `json:"reference_ratio_threshold"`
+	// InterpolationInBudget adds the correction curve's interpolation term
+	// to every point's budget, for a certificate whose users correct
+	// readings between the points with the curve.
+	InterpolationInBudget bool `json:"interpolation_in_budget,omitempty"`
+	// AmbientC is the ambient temperature recorded during the run, °C; nil
+	// when none was recorded (the temperature term is then not evaluated).
+	AmbientC *float64 `json:"ambient_c,omitempty"`
+	// Unit is the display unit of the messages; the zero Unit means the
+	// device's own unit (Device.Unit), else pascal.
+	Unit units.Unit `json:"-"`
 }
 
 func (o Options) withDefaults() (Options, error) {
 	if err := o.Rule.validate(); err != nil {
 		return o, err
+	}
+	switch o.Coverage {
+	case "":
+		o.Coverage = CoverageConventional
+	case CoverageConventional:
+	case CoverageStudentT:
+		if o.CoverageFactor != 0 {
+			return o, fmt.Errorf("coverage factor %g and %q both given: Student's t chooses k itself", o.CoverageFactor, CoverageStudentT)
+		}
+	default:
+		return o, fmt.Errorf("unknown coverage method %q (one of %q, %q)", o.Coverage, CoverageConventional, CoverageStudentT)
 	}
 	if o.CoverageFactor == 0 {
 		o.CoverageFactor = 2
@@ -63,11 +90,17 @@ func (o Options) withDefaults() (Options, error) {
 	if o.CorrectionDegree < 1 || o.CorrectionDegree > 3 {
 		return o, fmt.Errorf("correction curve degree %d: must be 1, 2 or 3", o.CorrectionDegree)
 	}
-	if o.TURThreshold == 0 {
-		o.TURThreshold = 4
+	if o.ReferenceRatioThreshold == 0 {
+		o.ReferenceRatioThreshold = 4
 	}
-	if !finite(o.TURThreshold) || o.TURThreshold < 0 {
-		return o, fmt.Errorf("TUR threshold %g: must be ≥ 0", o.TURThreshold)
+	if !finite(o.ReferenceRatioThreshold) || o.ReferenceRatioThreshold < 0 {
+		return o, fmt.Errorf("reference ratio threshold %g: must be ≥ 0", o.ReferenceRatioThreshold)
+	}
+	if o.AmbientC != nil && (!finite(*o.AmbientC) || *o.AmbientC < -273.15) {
+		return o, fmt.Errorf("ambient temperature %g °C: must be a finite temperature", *o.AmbientC)
+	}
+	if o.Unit.Pa == 0 {
+		o.Unit = units.Pascal
 	}
 	return o, nil
 }
@@ -78,6 +111,9 @@ type reading struct {
 	dir   Direction
 	ref   float64
 	dut   float64
+	head  float64 // the head correction included in ref
+	refSD float64 // sample SD of the reference's settled window
+	refN  int     // samples in that window
 	t     time.Time
 }
 
@@ -93,11 +129,16 @@ type seriesKey struct {
 type group struct {
 	nominal  float64
 	readings []reading
-	seen     map[seriesKey]int // → point number
+	seen     map[seriesKey]int // → reading number
 }
 
+// describe names an input reading by its place in the input and the
+// table's point numbering (Index + 1).
 func describe(i int, p Point) string {
-	return fmt.Sprintf("point %d (cycle %d, %s %s, index %d)", i+1, p.Cycle, p.Kind, p.Direction, p.Index)
+	if p.Kind != Measurement {
+		return fmt.Sprintf("reading %d (cycle %d, %s)", i+1, p.Cycle, p.Kind)
+	}
+	return fmt.Sprintf("reading %d (cycle %d, %s, point %d)", i+1, p.Cycle, p.Direction, p.Index+1)
 }
 
 // readingTime is the middle of the reference window, else of the DUT
@@ -154,6 +195,9 @@ func checkPoint(p Point) error {
 		if c.w.Count < 1 {
 			return fmt.Errorf("%s window holds %d samples; a captured reading needs at least one", c.name, c.w.Count)
 		}
+		if !finite(c.w.StdDev) || c.w.StdDev < 0 || c.w.StdDev > maxPressurePa {
+			return fmt.Errorf("%s window standard deviation %g Pa: must be a finite number ≥ 0", c.name, c.w.StdDev)
+		}
 	}
 	if !finite(p.Nominal) || math.Abs(p.Nominal) > maxPressurePa {
 		return fmt.Errorf("nominal %g Pa is not a finite pressure within ±%g Pa", p.Nominal, maxPressurePa)
@@ -161,23 +205,40 @@ func checkPoint(p Point) error {
 	return nil
 }
 
+// basicMinimumPercent is the smallest expanded uncertainty the basic
+// calibration procedure may report, % of full scale (EURAMET cg-17 v2.0 and
+// v4.1 §5.2.1, REFERENCES.md §1.2 [C]). We take full scale as the span,
+// which is the same for ranges that start at zero.
+const basicMinimumPercent = 0.2
+
 // Analyze evaluates a calibration run. It never panics on bad input: every
-// problem comes back as an error naming the offending point or setting.
+// problem comes back as an error naming the offending reading or setting.
 //
 // Definitions (pressures in Pa; e = DUT − head-corrected reference of the
 // same reading, never against the nominal):
-//   - mean error Δ = mean of e over all readings at the point; correction −Δ;
+//   - direction mean: the mean of e over that direction's series; mean
+//     error Δ = the midpoint of the ascending and descending means (one
+//     direction's mean when only one was measured), so a missed reading or
+//     an extra ascending series does not tilt Δ; correction −Δ;
 //   - hysteresis h = mean over the cycles that have both an up and a down
 //     reading of |e_down − e_up| (errors, not indications, so that small
 //     differences of the applied pressure between the two do not count);
+//     each cycle's value is kept and judged against the hysteresis limit;
 //   - repeatability b = the larger over the two directions of the range
-//     (max − min) of e over that direction's series;
+//     (max − min) of e over that direction's series; a point without a
+//     repeated series takes the largest b found at the points that have one
+//     (the basic procedure), and U is then never below 0.2 % of span;
 //   - zero deviation f₀ = the largest |e_after − e_before| of a cycle,
 //     applied at every point;
 //   - budget: reference U_ref/k_ref (normal), resolution r, f₀, b and h each
 //     rectangular with divisor 2√3, head correction half-widths with divisor
-//     √3; u_c = √Σu², U = k·u_c, error span |Δ| + U;
-//   - decision on |Δ| against the MPE at the reference mean (ILAC-G8).
+//     √3, and the optional terms of the reference (stability, resolution,
+//     settled-window noise), the temperature effect and the interpolation
+//     term; u_c = √Σu², U = k·u_c, error span |Δ| + U;
+//   - decision (ILAC-G8): every reading of each direction against the MPE
+//     with that direction's U (the budget without the hysteresis term), the
+//     mean against the MPE with U, and each cycle's hysteresis against the
+//     hysteresis limit; the point takes the worst.
 func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, error) {
 	if err := dev.Validate(); err != nil {
 		return Result{}, err
@@ -188,6 +249,9 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 	if err := ref.Head.Validate(); err != nil {
 		return Result{}, err
 	}
+	if opt.Unit.Pa == 0 {
+		opt.Unit, _ = units.Lookup(dev.Unit) // an unknown symbol leaves the zero Unit: pascal
+	}
 	opt, err := opt.withDefaults()
 	if err != nil {
 		return Result{}, fmt.Errorf("options: %w", err)
@@ -195,9 +259,12 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 	if len(points) == 0 {
 		return Result{}, errors.New("no points to analyse")
 	}
-	head := 0.0
-	if ref.Head.enabled() {
-		head = ref.Head.Pa()
+	say := messages{opt.Unit}
+	headAt := func(p float64) float64 {
+		if !ref.Head.enabled() {
+			return 0
+		}
+		return ref.Head.At(p)
 	}
 
 	groups := map[int]*group{}
@@ -212,11 +279,12 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 		if p.Note != "" {
 			warnings = append(warnings, fmt.Sprintf("%s: %s", describe(i, p), p.Note))
 		}
+		head := headAt(p.Reference.Mean)
 		e := p.DUT.Mean - (p.Reference.Mean + head)
 		if p.Kind != Measurement {
 			key := seriesKey{p.Cycle, string(p.Kind)}
 			if j, dup := zeroSeen[key]; dup {
-				return Result{}, fmt.Errorf("%s: a second %s reading in cycle %d (first was point %d)", describe(i, p), p.Kind, p.Cycle, j+1)
+				return Result{}, fmt.Errorf("%s: a second %s reading in cycle %d (first was reading %d)", describe(i, p), p.Kind, p.Cycle, j+1)
 			}
 			zeroSeen[key] = i
 			zeros = append(zeros, zeroReading{cycle: p.Cycle, before: p.Kind == ZeroBefore, err: e, t: readingTime(p)})
@@ -229,14 +297,15 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 			groups[p.Index] = g
 		}
 		if p.Nominal != g.nominal {
-			return Result{}, fmt.Errorf("%s: nominal %g Pa differs from %g Pa given earlier for index %d", describe(i, p), p.Nominal, g.nominal, p.Index)
+			return Result{}, fmt.Errorf("%s: nominal %s differs from %s given earlier for point %d", describe(i, p), say.p(p.Nominal), say.p(g.nominal), p.Index+1)
 		}
 		key := seriesKey{p.Cycle, string(p.Direction)}
 		if j, dup := g.seen[key]; dup {
-			return Result{}, fmt.Errorf("%s: a second %s reading at index %d in cycle %d (first was point %d)", describe(i, p), p.Direction, p.Index, p.Cycle, j+1)
+			return Result{}, fmt.Errorf("%s: a second %s reading at point %d in cycle %d (first was reading %d)", describe(i, p), p.Direction, p.Index+1, p.Cycle, j+1)
 		}
 		g.seen[key] = i
-		g.readings = append(g.readings, reading{cycle: p.Cycle, dir: p.Direction, ref: p.Reference.Mean + head, dut: p.DUT.Mean, t: readingTime(p)})
+		g.readings = append(g.readings, reading{cycle: p.Cycle, dir: p.Direction, ref: p.Reference.Mean + head, dut: p.DUT.Mean,
+			head: head, refSD: p.Reference.StdDev, refN: p.Reference.Count, t: readingTime(p)})
 	}
 	if len(groups) == 0 {
 		return Result{}, errors.New("no measurement points: only zero readings were given")
@@ -245,10 +314,12 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 	res := Result{
 		SchemaVersion:    SchemaVersion,
 		DecisionRule:     opt.Rule,
-		CoverageFactor:   opt.CoverageFactor,
+		TieRule:          TieRule,
+		Coverage:         coverageStatement(opt),
 		Device:           dev,
 		Reference:        ref,
-		HeadCorrectionPa: head,
+		HeadCorrectionPa: headAt(0),
+		HeadVaries:       ref.Head.Gas != nil,
 		Cycles:           len(cycleSet),
 		Decision:         Pass,
 	}
@@ -273,40 +344,67 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 		zeros = zerosFromNominalZero(indices, groups, readingsByPoint)
 	}
 	res.Zero = zeroDeviation(zeros)
-	if res.Zero.Source == "none" {
-		warnings = append(warnings, "zero deviation not evaluated: no cycle has a zero reading both before and after; its budget term is 0")
+	if !res.Zero.Evaluated {
+		warnings = append(warnings, "zero deviation not evaluated: no cycle has a zero reading both before and after; its budget term is left out")
 	}
 
 	span := dev.Span()
-	var minTUR float64 = math.Inf(1)
-	anyHyst, anyRepeat := false, false
+	// First the figures that need no uncertainty: means, hysteresis, repeatability.
+	res.Points = make([]PointResult, len(indices))
 	for n, idx := range indices {
-		pr, hasHyst, hasRepeat := evaluatePoint(idx, groups[idx].nominal, readingsByPoint[n], dev, ref, opt, res.Zero.DeviationPa)
-		anyHyst = anyHyst || hasHyst
-		anyRepeat = anyRepeat || hasRepeat
-		res.Points = append(res.Points, pr)
+		res.Points[n] = describePoint(idx, groups[idx].nominal, readingsByPoint[n], dev)
+	}
+	warnings = append(warnings, shortProcedure(&res, say)...)
+
+	xs, ys := make([]float64, len(res.Points)), make([]float64, len(res.Points))
+	for i, p := range res.Points {
+		xs[i], ys[i] = p.ReferenceMeanPa, p.DUTMeanPa
+	}
+	if len(xs) < 3 {
+		warnings = append(warnings, fmt.Sprintf("linearity not evaluated: %s, at least three are needed", plural(len(xs), "point")))
+	} else if lin, err := linearities(xs, ys, span, opt.Linearity); err != nil {
+		warnings = append(warnings, "linearity not evaluated: "+err.Error())
+	} else {
+		res.Linearity = lin
+	}
+	if cc, err := correctionCurve(ys, xs, opt.CorrectionDegree); err != nil {
+		warnings = append(warnings, "correction curve not fitted: "+err.Error())
+	} else {
+		res.Correction = cc
+	}
+
+	minRef, minExp := math.Inf(1), math.Inf(1)
+	anyHyst := false
+	for n := range res.Points {
+		pr := &res.Points[n]
+		judgePoint(pr, readingsByPoint[n], dev, ref, opt, res)
+		anyHyst = anyHyst || pr.HysteresisEvaluated
 		res.Decision = Worse(res.Decision, pr.Decision)
+		res.CoverageFactor = math.Max(res.CoverageFactor, pr.CoverageFactor)
 		res.MaxAbsErrorPa = math.Max(res.MaxAbsErrorPa, math.Abs(pr.MeanErrorPa))
 		res.MaxErrorSpanPa = math.Max(res.MaxErrorSpanPa, pr.ErrorSpanPa)
 		res.MaxHysteresisPa = math.Max(res.MaxHysteresisPa, pr.HysteresisPa)
 		res.MaxRepeatabilityPa = math.Max(res.MaxRepeatabilityPa, pr.RepeatabilityPa)
-		if pr.TUR != nil {
-			minTUR = math.Min(minTUR, *pr.TUR)
+		if pr.ReferenceRatio != nil {
+			minRef = math.Min(minRef, *pr.ReferenceRatio)
 		}
-		warnings = append(warnings, pointWarnings(pr, readingsByPoint[n], dev, opt)...)
+		if pr.ExpandedRatio != nil {
+			minExp = math.Min(minExp, *pr.ExpandedRatio)
+		}
+		warnings = append(warnings, pointWarnings(*pr, readingsByPoint[n], dev, opt, say)...)
 	}
 	res.MaxErrorSpanPercentSpan = res.MaxErrorSpanPa / span * 100
-	if !math.IsInf(minTUR, 1) {
-		res.MinTUR = &minTUR
-		if minTUR < opt.TURThreshold {
-			warnings = append(warnings, fmt.Sprintf("test uncertainty ratio %.2f:1 is below %g:1 (TUR = MPE / U of the reference standard)", minTUR, opt.TURThreshold))
+	if !math.IsInf(minRef, 1) {
+		res.MinReferenceRatio = &minRef
+		if minRef < opt.ReferenceRatioThreshold {
+			warnings = append(warnings, fmt.Sprintf("the permissible error is only %.2f times the reference's own expanded uncertainty, below the %g : 1 practice", minRef, opt.ReferenceRatioThreshold))
 		}
 	}
-	if !anyHyst {
-		warnings = append(warnings, "hysteresis not evaluated: no cycle has both an up and a down reading at any point; its budget term is 0")
+	if !math.IsInf(minExp, 1) {
+		res.MinExpandedRatio = &minExp
 	}
-	if !anyRepeat {
-		warnings = append(warnings, "repeatability not evaluated: no point has two series in the same direction; its budget term is 0")
+	if !anyHyst {
+		warnings = append(warnings, "hysteresis not evaluated: no cycle has both an up and a down reading at any point; its budget term is left out")
 	}
 	if c := dev.Accuracy.EN837Class; c != 0 {
 		// At least 10 points for classes 0.1–0.6 and 5 for 1–4: a gauge
@@ -316,23 +414,8 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 			need = 10
 		}
 		if len(indices) < need {
-			warnings = append(warnings, fmt.Sprintf("%d measuring points: EN 837-1 practice for class %g is at least %d", len(indices), c, need))
+			warnings = append(warnings, fmt.Sprintf("%s: EN 837-1 practice for class %g is at least %d", plural(len(indices), "measuring point"), c, need))
 		}
-	}
-
-	xs, ys := make([]float64, len(res.Points)), make([]float64, len(res.Points))
-	for i, p := range res.Points {
-		xs[i], ys[i] = p.ReferenceMeanPa, p.DUTMeanPa
-	}
-	if lin, err := linearities(xs, ys, span, opt.Linearity); err != nil {
-		warnings = append(warnings, "linearity not evaluated: "+err.Error())
-	} else {
-		res.Linearity = lin
-	}
-	if cc, err := correctionCurve(ys, xs, opt.CorrectionDegree); err != nil {
-		warnings = append(warnings, "correction curve not fitted: "+err.Error())
-	} else {
-		res.Correction = cc
 	}
 	if res.Cycles >= 2 {
 		res.Drift = drift(res.Points, zeros)
@@ -396,6 +479,7 @@ func zeroDeviation(zeros []zeroReading) ZeroDeviation {
 			d := *zc.AfterErrorPa - *zc.BeforeErrorPa
 			zc.ChangePa = &d
 			z.DeviationPa = math.Max(z.DeviationPa, math.Abs(d))
+			z.Evaluated = true
 			z.Source = "zero-readings"
 			if zeros[0].fallback {
 				z.Source = "nominal-zero-points"
@@ -406,83 +490,299 @@ func zeroDeviation(zeros []zeroReading) ZeroDeviation {
 	return z
 }
 
-var sqrt12 = 2 * math.Sqrt(3)
-
-func evaluatePoint(idx int, nominal float64, rs []reading, dev Device, ref Reference, opt Options, f0 float64) (pr PointResult, hasHyst, hasRepeat bool) {
-	pr = PointResult{Index: idx, NominalPa: nominal, Readings: make([]SeriesReading, len(rs))}
-	refs, duts, errs := make([]float64, 0, len(rs)), make([]float64, 0, len(rs)), make([]float64, 0, len(rs))
+// describePoint computes what does not depend on the uncertainty: the
+// direction summaries, the means, the hysteresis of each cycle and the
+// point's own repeatability.
+func describePoint(idx int, nominal float64, rs []reading, dev Device) PointResult {
+	pr := PointResult{Index: idx, NominalPa: nominal, Readings: make([]SeriesReading, len(rs)), HysteresisCycles: []HysteresisCycle{}}
+	errs := make([]float64, 0, len(rs))
 	byDir := map[Direction][]reading{}
 	upErr := map[int]float64{}
 	for i, r := range rs {
 		e := r.err()
-		pr.Readings[i] = SeriesReading{Cycle: r.cycle, Direction: r.dir, ReferencePa: r.ref, DUTPa: r.dut, ErrorPa: e, Time: r.t}
-		refs, duts, errs = append(refs, r.ref), append(duts, r.dut), append(errs, e)
+		pr.Readings[i] = SeriesReading{Cycle: r.cycle, Direction: r.dir, ReferencePa: r.ref, DUTPa: r.dut, ErrorPa: e, HeadCorrectionPa: r.head, Time: r.t}
+		errs = append(errs, e)
 		byDir[r.dir] = append(byDir[r.dir], r)
 		if r.dir == Ascending {
 			upErr[r.cycle] = e
 		}
 	}
-	pr.ReferenceMeanPa, pr.DUTMeanPa, pr.MeanErrorPa = mean(refs), mean(duts), mean(errs)
+	pr.Up, pr.Down = summarise(byDir[Ascending]), summarise(byDir[Descending])
+	switch {
+	case pr.Up != nil && pr.Down != nil:
+		pr.ReferenceMeanPa = (pr.Up.ReferenceMeanPa + pr.Down.ReferenceMeanPa) / 2
+		pr.DUTMeanPa = (pr.Up.DUTMeanPa + pr.Down.DUTMeanPa) / 2
+		pr.MeanErrorPa = (pr.Up.MeanErrorPa + pr.Down.MeanErrorPa) / 2
+	case pr.Up != nil:
+		pr.ReferenceMeanPa, pr.DUTMeanPa, pr.MeanErrorPa = pr.Up.ReferenceMeanPa, pr.Up.DUTMeanPa, pr.Up.MeanErrorPa
+	default:
+		pr.ReferenceMeanPa, pr.DUTMeanPa, pr.MeanErrorPa = pr.Down.ReferenceMeanPa, pr.Down.DUTMeanPa, pr.Down.MeanErrorPa
+	}
 	pr.CorrectionPa = -pr.MeanErrorPa
-	span := dev.Span()
-	pr.ErrorPercentSpan = pr.MeanErrorPa / span * 100
+	pr.ErrorPercentSpan = pr.MeanErrorPa / dev.Span() * 100
 	pr.ErrorStdDevPa = sampleSD(errs)
 
 	var hsum float64
-	var hn int
 	for _, r := range byDir[Descending] {
 		if eu, ok := upErr[r.cycle]; ok {
-			hsum += math.Abs(r.err() - eu)
-			hn++
+			h := math.Abs(r.err() - eu)
+			hsum += h
+			pr.HysteresisCycles = append(pr.HysteresisCycles, HysteresisCycle{Cycle: r.cycle, HysteresisPa: h})
 		}
 	}
-	if hn > 0 {
-		pr.HysteresisPa = hsum / float64(hn)
-		hasHyst = true
+	if n := len(pr.HysteresisCycles); n > 0 {
+		pr.HysteresisPa = hsum / float64(n)
+		pr.HysteresisEvaluated = true
 	}
-	pr.Up, pr.Down = summarise(byDir[Ascending]), summarise(byDir[Descending])
 	for _, s := range []*SeriesSummary{pr.Up, pr.Down} {
-		if s != nil {
+		if s != nil && s.Series >= 2 {
 			pr.RepeatabilityPa = math.Max(pr.RepeatabilityPa, s.ErrorRangePa)
-			hasRepeat = hasRepeat || s.Series >= 2
+			pr.RepeatabilityEvaluated = true
 		}
 	}
+	return pr
+}
 
-	uRef := ref.Expanded(pr.ReferenceMeanPa)
-	pr.Budget = []Contribution{
-		{Name: "reference", EstimatePa: uRef, Distribution: "normal", Divisor: ref.K},
-		rect("resolution", dev.ResolutionPa, sqrt12),
-		rect("zero_deviation", f0, sqrt12),
-		rect("repeatability", pr.RepeatabilityPa, sqrt12),
-		rect("hysteresis", pr.HysteresisPa, sqrt12),
+// repeatSeries is the number of series behind a point's own repeatability:
+// that of the direction with the larger range (ν = n − 1 as a Type A term).
+func repeatSeries(pr PointResult) int {
+	n, best := 0, -1.0
+	for _, s := range []*SeriesSummary{pr.Up, pr.Down} {
+		if s != nil && s.Series >= 2 && s.ErrorRangePa > best {
+			n, best = s.Series, s.ErrorRangePa
+		}
 	}
-	pr.Budget[0].StandardUncertaintyPa = uRef / ref.K
-	if ref.Head.enabled() {
-		hh, hd := ref.Head.halfWidths()
-		pr.Budget = append(pr.Budget, rect("head_height", hh, math.Sqrt(3)), rect("head_density", hd, math.Sqrt(3)))
+	return n
+}
+
+// shortProcedure handles runs in which some point has no repeated series
+// (the basic procedure of EURAMET cg-17 §5.2.1: one cycle, repeats at a
+// few points, REFERENCES.md §1.2 [C]): the largest repeatability found is
+// applied to the points without one, and U gets the procedure's minimum.
+func shortProcedure(res *Result, say messages) []string {
+	var with, without []int
+	best := -1.0
+	for _, p := range res.Points {
+		if p.RepeatabilityEvaluated {
+			with = append(with, p.Index+1)
+			best = math.Max(best, p.RepeatabilityPa)
+		} else {
+			without = append(without, p.Index+1)
+		}
 	}
-	var v float64
-	for _, c := range pr.Budget {
-		v += c.StandardUncertaintyPa * c.StandardUncertaintyPa
+	if len(without) == 0 {
+		return nil
 	}
-	pr.CombinedUncertaintyPa = math.Sqrt(v)
-	pr.ExpandedUncertaintyPa = opt.CoverageFactor * pr.CombinedUncertaintyPa
+	res.ShortProcedure = true
+	res.MinimumUncertaintyPa = basicMinimumPercent / 100 * res.Device.Span()
+	floor := fmt.Sprintf("U is never below %s (%g %% of span, the minimum of the basic procedure, EURAMET cg-17)", say.p(res.MinimumUncertaintyPa), basicMinimumPercent)
+	if len(with) == 0 {
+		return []string{"repeatability not evaluated: no point has two series in the same direction (the basic procedure repeats an ascending series three times at two points); " + floor}
+	}
+	for i := range res.Points {
+		p := &res.Points[i]
+		if !p.RepeatabilityEvaluated {
+			p.RepeatabilityPa = best
+			p.RepeatabilityEvaluated = true
+			p.RepeatabilityFrom = with
+		}
+	}
+	return []string{fmt.Sprintf("points %s have one series per direction: the largest repeatability %s, found at points %s, is applied to them; %s",
+		numberList(without), say.p(best), numberList(with), floor)}
+}
+
+var sqrt12 = 2 * math.Sqrt(3)
+
+// judgePoint builds the budget and the expanded uncertainties of a point
+// and decides it: each direction, the mean and each cycle's hysteresis.
+func judgePoint(pr *PointResult, rs []reading, dev Device, ref Reference, opt Options, res Result) {
+	pr.Budget = budget(*pr, rs, dev, ref, opt, res)
+	pr.CombinedUncertaintyPa = combined(pr.Budget, "")
+	k, nu := coverageFor(opt, pr.Budget, "")
+	pr.CoverageFactor, pr.EffectiveDOF = k, nu
+	pr.ExpandedUncertaintyPa = k * pr.CombinedUncertaintyPa
+	if pr.ExpandedUncertaintyPa < res.MinimumUncertaintyPa {
+		pr.ExpandedUncertaintyPa = res.MinimumUncertaintyPa
+		pr.MinimumApplied = true
+	}
 	pr.ErrorSpanPa = math.Abs(pr.MeanErrorPa) + pr.ExpandedUncertaintyPa
 	pr.MPEPa = dev.MPE(pr.ReferenceMeanPa)
 	pr.AcceptanceLimitPa = AcceptanceLimit(opt.Rule, pr.MPEPa, pr.ExpandedUncertaintyPa)
 	pr.Decision = Decide(opt.Rule, math.Abs(pr.MeanErrorPa), pr.MPEPa, pr.ExpandedUncertaintyPa)
-	// TUR against the reference standard's own expanded uncertainty, restated
-	// at the analysis coverage factor: the 4:1 practice compares the
-	// standard, not the whole calibration process, with the tolerance.
-	if uStd := opt.CoverageFactor * uRef / ref.K; uStd > 0 {
-		t := pr.MPEPa / uStd
-		pr.TUR = &t
+
+	// A single reading of one direction is not a mean of up and down, so
+	// the hysteresis term does not belong to its uncertainty.
+	kd, _ := coverageFor(opt, pr.Budget, "hysteresis")
+	uDir := math.Max(kd*combined(pr.Budget, "hysteresis"), res.MinimumUncertaintyPa)
+	for _, dir := range []Direction{Ascending, Descending} {
+		var d *DirectionResult
+		for _, r := range rs {
+			if r.dir != dir {
+				continue
+			}
+			if d == nil {
+				d = &DirectionResult{ExpandedUncertaintyPa: uDir, Decision: Pass, WorstCycle: r.cycle, WorstErrorPa: r.err()}
+			}
+			if math.Abs(r.err()) > math.Abs(d.WorstErrorPa) {
+				d.WorstErrorPa, d.WorstCycle = r.err(), r.cycle
+			}
+			d.Decision = Worse(d.Decision, Decide(opt.Rule, math.Abs(r.err()), pr.MPEPa, uDir))
+		}
+		if d == nil {
+			continue
+		}
+		if dir == Ascending {
+			pr.UpResult = d
+		} else {
+			pr.DownResult = d
+		}
+		pr.Decision = Worse(pr.Decision, d.Decision)
 	}
-	return pr, hasHyst, hasRepeat
+
+	// The hysteresis of a cycle is the difference of two readings of the
+	// same device at the same reference point: the reference's certificate
+	// uncertainty is common to both and cancels, what remains is the
+	// resolution of the two readings, u(h) = √2 · r/(2√3).
+	if limit, ok := dev.HysteresisLimit(pr.ReferenceMeanPa); ok && pr.HysteresisEvaluated {
+		pr.HysteresisLimitPa = &limit
+		uh := opt.CoverageFactor * math.Sqrt2 * dev.ResolutionPa / sqrt12
+		pr.HysteresisDecision = Pass
+		for i := range pr.HysteresisCycles {
+			c := &pr.HysteresisCycles[i]
+			c.Decision = Decide(opt.Rule, c.HysteresisPa, limit, uh)
+			pr.HysteresisDecision = Worse(pr.HysteresisDecision, c.Decision)
+		}
+		pr.Decision = Worse(pr.Decision, pr.HysteresisDecision)
+	}
+
+	// The 4 : 1 practice compares the reference standard alone, restated
+	// at the analysis coverage, with the permissible error.
+	if uStd := opt.CoverageFactor * ref.Expanded(pr.ReferenceMeanPa) / ref.K; uStd > 0 {
+		t := pr.MPEPa / uStd
+		pr.ReferenceRatio = &t
+	}
+	if pr.ExpandedUncertaintyPa > 0 {
+		t := pr.MPEPa / pr.ExpandedUncertaintyPa
+		pr.ExpandedRatio = &t
+	}
 }
 
 func rect(name string, estimate, divisor float64) Contribution {
-	return Contribution{Name: name, EstimatePa: estimate, Distribution: "rectangular", Divisor: divisor, StandardUncertaintyPa: estimate / divisor}
+	return Contribution{Name: name, Evaluated: true, EstimatePa: estimate, Distribution: "rectangular", Divisor: divisor, StandardUncertaintyPa: estimate / divisor}
+}
+
+func notEvaluated(name, why string) Contribution {
+	return Contribution{Name: name, Note: why}
+}
+
+func dof(n float64) *float64 { return &n }
+
+// budget lists every contribution at a point, evaluated or not.
+func budget(pr PointResult, rs []reading, dev Device, ref Reference, opt Options, res Result) []Contribution {
+	uRef := ref.Expanded(pr.ReferenceMeanPa)
+	b := []Contribution{
+		{Name: "reference", Evaluated: true, EstimatePa: uRef, Distribution: "normal", Divisor: ref.K, StandardUncertaintyPa: uRef / ref.K},
+		rect("resolution", dev.ResolutionPa, sqrt12),
+	}
+	if res.Zero.Evaluated {
+		b = append(b, rect("zero_deviation", res.Zero.DeviationPa, sqrt12))
+	} else {
+		b = append(b, notEvaluated("zero_deviation", "no cycle has a zero reading before and after"))
+	}
+	if pr.RepeatabilityEvaluated {
+		c := rect("repeatability", pr.RepeatabilityPa, sqrt12)
+		n := repeatSeries(pr)
+		if len(pr.RepeatabilityFrom) > 0 {
+			c.Note = "from points " + numberList(pr.RepeatabilityFrom)
+			n = 0
+			for _, q := range res.Points {
+				if q.RepeatabilityEvaluated && len(q.RepeatabilityFrom) == 0 && q.RepeatabilityPa == pr.RepeatabilityPa {
+					n = repeatSeries(q)
+					break
+				}
+			}
+		}
+		if opt.Coverage == CoverageStudentT && n >= 2 {
+			c.DegreesOfFreedom = dof(float64(n - 1))
+		}
+		b = append(b, c)
+	} else {
+		b = append(b, notEvaluated("repeatability", "no repeated series in either direction"))
+	}
+	if pr.HysteresisEvaluated {
+		b = append(b, rect("hysteresis", pr.HysteresisPa, sqrt12))
+	} else {
+		b = append(b, notEvaluated("hysteresis", "no cycle has both an up and a down reading here"))
+	}
+	if ref.Head.enabled() {
+		hh, hd := ref.Head.halfWidths(pr.ReferenceMeanPa - meanHead(rs))
+		b = append(b, rect("head_height", hh, math.Sqrt(3)), rect("head_density", hd, math.Sqrt(3)))
+	} else {
+		b = append(b, notEvaluated("head_height", "no head correction configured"), notEvaluated("head_density", "no head correction configured"))
+	}
+	if a := ref.stability(pr.ReferenceMeanPa); a > 0 {
+		b = append(b, rect("reference_stability", a, math.Sqrt(3)))
+	} else {
+		b = append(b, notEvaluated("reference_stability", "no stability since calibration configured"))
+	}
+	if ref.ResolutionPa > 0 {
+		b = append(b, rect("reference_resolution", ref.ResolutionPa, sqrt12))
+	} else {
+		b = append(b, notEvaluated("reference_resolution", "no reference resolution configured"))
+	}
+	b = append(b, windowNoise(rs))
+	b = append(b, temperatureTerm(dev, opt))
+	switch {
+	case !opt.InterpolationInBudget:
+		b = append(b, notEvaluated("interpolation", "the correction curve is not used between the points"))
+	case res.Correction == nil || !res.Correction.InterpolationEvaluated:
+		b = append(b, notEvaluated("interpolation", "the correction curve has no residual degrees of freedom"))
+	default:
+		b = append(b, rect("interpolation", res.Correction.MaxResidualPa, math.Sqrt(3)))
+	}
+	return b
+}
+
+func meanHead(rs []reading) float64 {
+	s := 0.0
+	for _, r := range rs {
+		s += r.head
+	}
+	return s / float64(len(rs))
+}
+
+// windowNoise is the scatter of the reference over its settled windows:
+// the standard deviation of the window mean, s/√n, of the noisiest reading
+// at the point, a Type A term with ν = n − 1.
+func windowNoise(rs []reading) Contribution {
+	var worst reading
+	u := -1.0
+	for _, r := range rs {
+		if r.refN >= 2 {
+			if v := r.refSD / math.Sqrt(float64(r.refN)); v > u {
+				u, worst = v, r
+			}
+		}
+	}
+	if u < 0 {
+		return notEvaluated("reference_noise", "no settled window of two or more reference samples")
+	}
+	n := math.Sqrt(float64(worst.refN))
+	return Contribution{Name: "reference_noise", Evaluated: true, EstimatePa: worst.refSD, Distribution: "normal", Divisor: n,
+		StandardUncertaintyPa: u, DegreesOfFreedom: dof(float64(worst.refN - 1))}
+}
+
+// temperatureTerm is the device's temperature effect: coefficient (% of
+// span per K) × span × |ambient − reference temperature|, rectangular.
+func temperatureTerm(dev Device, opt Options) Contribution {
+	switch {
+	case dev.TempCoefficient == 0:
+		return notEvaluated("temperature", "no temperature coefficient configured")
+	case opt.AmbientC == nil:
+		return notEvaluated("temperature", "no ambient temperature recorded")
+	}
+	a := dev.TempCoefficient / 100 * dev.Span() * math.Abs(*opt.AmbientC-dev.ReferenceTemperatureC)
+	return rect("temperature", a, math.Sqrt(3))
 }
 
 func summarise(rs []reading) *SeriesSummary {
@@ -504,28 +804,93 @@ func summarise(rs []reading) *SeriesSummary {
 	}
 }
 
-func pointWarnings(pr PointResult, rs []reading, dev Device, opt Options) []string {
+// pointWarnings explain a point's verdict and what limits it, in the
+// display unit and with the table's point numbers.
+func pointWarnings(pr PointResult, rs []reading, dev Device, opt Options, say messages) []string {
 	var w []string
-	at := fmt.Sprintf("point %d (nominal %g Pa)", pr.Index, pr.NominalPa)
-	if pr.HysteresisPa > pr.MPEPa {
-		// EN 837-1 limits hysteresis to |MPE| (from memory, REFERENCES.md §2.1 [M]).
-		w = append(w, fmt.Sprintf("%s: hysteresis %.6g Pa exceeds the MPE %.6g Pa", at, pr.HysteresisPa, pr.MPEPa))
-	}
-	if math.Abs(pr.MeanErrorPa) <= pr.MPEPa {
-		for _, r := range rs {
-			if math.Abs(r.err()) > pr.MPEPa {
-				w = append(w, fmt.Sprintf("%s: the cycle %d %s reading's error %.6g Pa exceeds the MPE although the mean error is within it", at, r.cycle, r.dir, r.err()))
-			}
+	at := fmt.Sprintf("point %d (%s)", pr.Index+1, say.p(pr.NominalPa))
+	for _, c := range pr.HysteresisCycles {
+		if c.Decision != "" && c.Decision != Pass {
+			w = append(w, fmt.Sprintf("%s: the cycle %d hysteresis %s against the limit %s: the point %s", at, c.Cycle, say.p(c.HysteresisPa), say.p(*pr.HysteresisLimitPa), verb(c.Decision)))
 		}
 	}
+	for _, d := range []*DirectionResult{pr.UpResult, pr.DownResult} {
+		if d == nil || d.Decision == Pass {
+			continue
+		}
+		dir := Ascending
+		if d == pr.DownResult {
+			dir = Descending
+		}
+		w = append(w, fmt.Sprintf("%s: the %s readings %s (cycle %d error %s, MPE %s, U of one reading %s); the mean error is %s",
+			at, dirWord(dir), verb(d.Decision), d.WorstCycle, say.signed(d.WorstErrorPa), say.p(pr.MPEPa), say.p(d.ExpandedUncertaintyPa), say.signed(pr.MeanErrorPa)))
+	}
 	if opt.Rule != RuleSimple && pr.ExpandedUncertaintyPa >= pr.MPEPa {
-		w = append(w, fmt.Sprintf("%s: expanded uncertainty %.6g Pa is not below the MPE %.6g Pa, so no pass is possible under the %s rule", at, pr.ExpandedUncertaintyPa, pr.MPEPa, opt.Rule))
+		w = append(w, fmt.Sprintf("%s: expanded uncertainty %s is not below the MPE %s, so no pass is possible under the %s rule", at, say.p(pr.ExpandedUncertaintyPa), say.p(pr.MPEPa), opt.Rule))
 	}
 	span := dev.Span()
 	if pr.ReferenceMeanPa < dev.LowerPa-0.01*span || pr.ReferenceMeanPa > dev.UpperPa+0.01*span {
-		w = append(w, fmt.Sprintf("%s: reference %.6g Pa lies outside the device range %g … %g Pa", at, pr.ReferenceMeanPa, dev.LowerPa, dev.UpperPa))
+		w = append(w, fmt.Sprintf("%s: reference %s lies outside the device range %s … %s", at, say.p(pr.ReferenceMeanPa), say.p(dev.LowerPa), say.p(dev.UpperPa)))
 	}
 	return w
+}
+
+func dirWord(d Direction) string {
+	if d == Ascending {
+		return "ascending"
+	}
+	return "descending"
+}
+
+// verb says an outcome as a verb phrase.
+func verb(o Outcome) string {
+	switch o {
+	case Pass:
+		return "pass"
+	case ConditionalPass:
+		return "pass only conditionally"
+	case ConditionalFail:
+		return "fail conditionally"
+	}
+	return "fail"
+}
+
+// messages formats pressures for warnings and errors in the display unit.
+type messages struct{ u units.Unit }
+
+func (m messages) p(pa float64) string {
+	return strconv.FormatFloat(m.u.FromPa(pa), 'g', 6, 64) + " " + m.u.Symbol
+}
+
+func (m messages) signed(pa float64) string {
+	s := m.p(pa)
+	if pa > 0 {
+		return "+" + s
+	}
+	return s
+}
+
+func plural(n int, what string) string {
+	if n == 1 {
+		return "1 " + what
+	}
+	return strconv.Itoa(n) + " " + what + "s"
+}
+
+// numberList writes point numbers as "1, 4 and 6".
+func numberList(ns []int) string {
+	s := ""
+	for i, n := range ns {
+		switch {
+		case i == 0:
+		case i == len(ns)-1:
+			s += " and "
+		default:
+			s += ", "
+		}
+		s += strconv.Itoa(n)
+	}
+	return s
 }
 
 func linearities(x, y []float64, span float64, kinds []LinearityKind) ([]Linearity, error) {
@@ -573,8 +938,12 @@ func correctionCurve(indication, reference []float64, degree int) (*CorrectionCu
 		c.MaxResidualPa = math.Max(c.MaxResidualPa, math.Abs(r))
 		sse += r * r
 	}
+	c.PowerCoefficients = p.PowerSeries()
 	if dof := len(indication) - degree - 1; dof > 0 {
 		c.ResidualSDPa = math.Sqrt(sse / float64(dof))
+		c.CoefficientSD, c.Correlation = p.coefficientCovariance(indication, c.ResidualSDPa)
+		c.InterpolationPa = c.MaxResidualPa / math.Sqrt(3)
+		c.InterpolationEvaluated = true
 	}
 	return c, nil
 }

@@ -52,12 +52,18 @@ func Worse(a, b Outcome) Outcome {
 	return a
 }
 
+// ErrNoRule is returned when no decision rule was chosen. There is no
+// default: ILAC-G8:09/2019 asks that the rule be agreed with the customer
+// before measuring.
+var ErrNoRule = fmt.Errorf("no decision rule chosen: agree one with the customer before measuring (ILAC-G8:09/2019) and give it as %q (|error| ≤ MPE), %q (|error| ≤ MPE − U) or %q (pass, conditional pass, conditional fail, fail)",
+	RuleSimple, RuleGuarded, RuleFourState)
+
 func (r DecisionRule) validate() error {
 	switch r {
 	case RuleSimple, RuleGuarded, RuleFourState:
 		return nil
 	case "":
-		return fmt.Errorf("decision rule not set: it must be agreed before measuring (one of %q, %q, %q)", RuleSimple, RuleGuarded, RuleFourState)
+		return ErrNoRule
 	}
 	return fmt.Errorf("unknown decision rule %q (one of %q, %q, %q)", r, RuleSimple, RuleGuarded, RuleFourState)
 }
@@ -78,10 +84,16 @@ func AcceptanceLimit(rule DecisionRule, mpe, expanded float64) float64 {
 // tolerance is far below the resolution of any pressure instrument.
 const boundarySlack = 1e-9
 
+// TieRule is how a value exactly on a limit is judged. ILAC-G8:09/2019
+// §4.2 words acceptance as the measured value lying within the acceptance
+// limit (REFERENCES.md §4, [C]); a value on the limit is within it, so a tie
+// goes to the better side at every boundary.
+const TieRule = "a value exactly on a limit counts as within it (ILAC-G8:09/2019 §4.2: pass when within the acceptance limit)"
+
 // Decide applies rule to the absolute error of indication |Δ| at a point
 // with maximum permissible error mpe and expanded uncertainty U (ILAC-G8:2019
-// §4.2; REFERENCES.md §4). A value on a boundary belongs to the better side.
-// NaN errors and unknown rules fail.
+// §4.2; REFERENCES.md §4). A value on a boundary belongs to the better side
+// (TieRule). NaN errors and unknown rules fail.
 func Decide(rule DecisionRule, absError, mpe, expanded float64) Outcome {
 	slack := boundarySlack * math.Abs(mpe)
 	le := func(v, limit float64) bool { return v <= limit+slack }

@@ -333,3 +333,73 @@ func sampleSD(v []float64) float64 {
 	}
 	return math.Sqrt(s / float64(len(v)-1))
 }
+
+// scale returns α, β of t = α·x + β.
+func (p Polynomial) scale() (alpha, beta float64) {
+	w := p.XMaxPa - p.XMinPa
+	return 2 / w, -(p.XMinPa + p.XMaxPa) / w
+}
+
+// toPower is the matrix T with a = T·c: it turns the coefficients c_k of
+// t^k into the coefficients a_j of x^j, t^k = Σ_j C(k, j)·α^j·β^(k−j)·x^j.
+func (p Polynomial) toPower() *mat.Dense {
+	alpha, beta := p.scale()
+	n := len(p.Coefficients)
+	t := mat.NewDense(n, n, nil)
+	for k := 0; k < n; k++ {
+		binom := 1.0
+		for j := 0; j <= k; j++ {
+			t.Set(j, k, binom*math.Pow(alpha, float64(j))*math.Pow(beta, float64(k-j)))
+			binom = binom * float64(k-j) / float64(j+1)
+		}
+	}
+	return t
+}
+
+// PowerSeries returns a_0 … a_degree of p(x) = Σ a_j·x^j.
+func (p Polynomial) PowerSeries() []float64 {
+	var a mat.VecDense
+	a.MulVec(p.toPower(), mat.NewVecDense(len(p.Coefficients), append([]float64(nil), p.Coefficients...)))
+	return append([]float64(nil), a.RawVector().Data...)
+}
+
+// coefficientCovariance returns the standard deviations of the power-series
+// coefficients and their correlation matrix: Cov(c) = s²·(AᵀA)⁻¹ on the
+// scaled variable (ordinary least squares, s the residual standard
+// deviation), then Cov(a) = T·Cov(c)·Tᵀ. Nil when AᵀA is singular.
+func (p Polynomial) coefficientCovariance(x []float64, s float64) ([]float64, [][]float64) {
+	n := len(p.Coefficients)
+	alpha, beta := p.scale()
+	a := mat.NewDense(len(x), n, nil)
+	for i, xi := range x {
+		t, v := alpha*xi+beta, 1.0
+		for k := 0; k < n; k++ {
+			a.Set(i, k, v)
+			v *= t
+		}
+	}
+	var ata, inv mat.Dense
+	ata.Mul(a.T(), a)
+	if err := inv.Inverse(&ata); err != nil {
+		return nil, nil
+	}
+	inv.Scale(s*s, &inv)
+	tm := p.toPower()
+	var tmp, cov mat.Dense
+	tmp.Mul(tm, &inv)
+	cov.Mul(&tmp, tm.T())
+	sd := make([]float64, n)
+	for j := range sd {
+		sd[j] = math.Sqrt(math.Max(cov.At(j, j), 0))
+	}
+	corr := make([][]float64, n)
+	for i := range corr {
+		corr[i] = make([]float64, n)
+		for j := range corr[i] {
+			if sd[i] > 0 && sd[j] > 0 {
+				corr[i][j] = cov.At(i, j) / (sd[i] * sd[j])
+			}
+		}
+	}
+	return sd, corr
+}

@@ -18,6 +18,11 @@ type Device struct {
 	ResolutionPa float64  `json:"resolution_pa"` // digit step, or the readable fraction of a scale division
 	Accuracy     Accuracy `json:"accuracy"`
 	Unit         string   `json:"unit"` // the DUT's own unit symbol, for display only
+	// Temperature effect: TempCoefficient % of span per kelvin of distance
+	// between the ambient temperature (Options.AmbientC) and
+	// ReferenceTemperatureC; 0 means not specified.
+	TempCoefficient       float64 `json:"temperature_coefficient_percent_span_per_k,omitempty"`
+	ReferenceTemperatureC float64 `json:"reference_temperature_c,omitempty"`
 }
 
 // Span is the upper minus the lower range value; compound ranges use the full span.
@@ -33,6 +38,10 @@ type Accuracy struct {
 	PercentOfSpan    float64 `json:"percent_of_span,omitempty"`    // custom limit, % of span
 	PercentOfReading float64 `json:"percent_of_reading,omitempty"` // custom limit, % of the reference value
 	FloorPa          float64 `json:"floor_pa,omitempty"`           // custom constant limit, Pa
+	// HysteresisPercentOfSpan is a hysteresis limit from the device's own
+	// specification, % of span. Without it an EN 837-1 class limits the
+	// hysteresis of every cycle to the MPE; other specifications set none.
+	HysteresisPercentOfSpan float64 `json:"hysteresis_percent_of_span,omitempty"`
 }
 
 // quarterTolerance keeps a reference value that sits on a quarter-span
@@ -82,7 +91,8 @@ func (a Accuracy) validate() error {
 	for _, c := range []struct {
 		name string
 		v    float64
-	}{{"percent_of_span", a.PercentOfSpan}, {"percent_of_reading", a.PercentOfReading}, {"floor_pa", a.FloorPa}} {
+	}{{"percent_of_span", a.PercentOfSpan}, {"percent_of_reading", a.PercentOfReading}, {"floor_pa", a.FloorPa},
+		{"hysteresis_percent_of_span", a.HysteresisPercentOfSpan}} {
 		if !finite(c.v) || c.v < 0 {
 			return fmt.Errorf("accuracy %s = %g: must be a finite number ≥ 0", c.name, c.v)
 		}
@@ -103,6 +113,21 @@ func (d Device) MPE(p float64) float64 {
 	return mpe
 }
 
+// HysteresisLimit is the largest permitted hysteresis of one cycle at
+// reference value p, and whether the specification sets one. EN 837-1
+// limits hysteresis to the absolute value of the MPE at every point (from
+// memory, REFERENCES.md §2.1 [M]); ASME grades and custom limits set none
+// unless HysteresisPercentOfSpan is given.
+func (d Device) HysteresisLimit(p float64) (float64, bool) {
+	switch {
+	case d.Accuracy.HysteresisPercentOfSpan > 0:
+		return d.Accuracy.HysteresisPercentOfSpan / 100 * d.Span(), true
+	case d.Accuracy.EN837Class != 0:
+		return d.MPE(p), true
+	}
+	return 0, false
+}
+
 // Validate reports the first problem with the device description.
 func (d Device) Validate() error {
 	if !finite(d.LowerPa) || !finite(d.UpperPa) {
@@ -117,6 +142,12 @@ func (d Device) Validate() error {
 	if err := d.Accuracy.validate(); err != nil {
 		return fmt.Errorf("device accuracy: %w", err)
 	}
+	if !finite(d.TempCoefficient) || d.TempCoefficient < 0 {
+		return fmt.Errorf("device temperature coefficient %g %% of span per K: must be a finite number ≥ 0", d.TempCoefficient)
+	}
+	if !finite(d.ReferenceTemperatureC) || d.ReferenceTemperatureC < -273.15 {
+		return fmt.Errorf("device reference temperature %g °C: must be a finite temperature", d.ReferenceTemperatureC)
+	}
 	return nil
 }
 
@@ -126,6 +157,13 @@ type Reference struct {
 	PercentOfReading float64 `json:"percent_of_reading"`
 	FloorPa          float64 `json:"floor_pa"`
 	K                float64 `json:"k"` // coverage factor of the certificate, usually 2
+	// Stability since calibration: the half-width of a rectangular
+	// distribution, % of reading plus a floor, from the certificate history
+	// or the maker's long-term stability; both 0 means not evaluated.
+	StabilityPercentOfReading float64 `json:"stability_percent_of_reading,omitempty"`
+	StabilityFloorPa          float64 `json:"stability_floor_pa,omitempty"`
+	// ResolutionPa is the reference's own digit step; 0 means not evaluated.
+	ResolutionPa float64 `json:"resolution_pa,omitempty"`
 	// Head is the height difference between the reference's and the DUT's
 	// pressure reference levels; the zero value means none.
 	Head HeadCorrection `json:"head_correction"`
@@ -147,7 +185,20 @@ func (r Reference) Validate() error {
 	if !finite(r.K) || r.K <= 0 {
 		return fmt.Errorf("reference coverage factor k = %g: must be > 0 (usually 2)", r.K)
 	}
+	for _, c := range []struct {
+		name string
+		v    float64
+	}{{"stability % of reading", r.StabilityPercentOfReading}, {"stability floor", r.StabilityFloorPa}, {"resolution", r.ResolutionPa}} {
+		if !finite(c.v) || c.v < 0 {
+			return fmt.Errorf("reference %s = %g: must be a finite number ≥ 0", c.name, c.v)
+		}
+	}
 	return nil
+}
+
+// stability is the half-width of the drift since calibration at p.
+func (r Reference) stability(p float64) float64 {
+	return r.StabilityPercentOfReading/100*math.Abs(p) + r.StabilityFloorPa
 }
 
 // HeadCorrection describes a height difference between the reference
@@ -159,8 +210,8 @@ func (r Reference) Validate() error {
 //
 // A DUT mounted lower than the reference sees a higher pressure. For an
 // absolute-pressure DUT set AirDensity to 0 (no air column on an evacuated
-// reference side). FluidDensity is taken as constant: right for liquids; for
-// a gas give its density at the working pressure.
+// reference side). FluidDensity is constant, right for liquids; for a gas
+// set Gas, and the density follows each reading's absolute pressure.
 type HeadCorrection struct {
 	FluidDensity     float64 `json:"fluid_density_kg_m3"`
 	AirDensity       float64 `json:"air_density_kg_m3"`
@@ -168,7 +219,45 @@ type HeadCorrection struct {
 	ZRef             float64 `json:"z_ref_m"`
 	ZDUT             float64 `json:"z_dut_m"`
 	HeightHalfWidth  float64 `json:"height_half_width_m"`      // rectangular half-width of the height difference
-	DensityHalfWidth float64 `json:"density_half_width_kg_m3"` // rectangular half-width of the fluid density
+	DensityHalfWidth float64 `json:"density_half_width_kg_m3"` // rectangular half-width of the fluid density (a gas: at 1 bar absolute)
+	Gas              *Gas    `json:"gas,omitempty"`
+}
+
+// Gas describes a gaseous pressure medium, whose density grows with the
+// absolute pressure: ρ = p_abs·M / (Z·R·T) (ideal gas with compressibility
+// factor Z; REFERENCES.md §6, physics).
+type Gas struct {
+	MolarMass    float64 `json:"molar_mass_kg_mol"` // e.g. 0.0280134 for nitrogen
+	TemperatureK float64 `json:"temperature_k"`     // temperature of the gas in the line
+	Z            float64 `json:"compressibility"`   // 0 means 1 (ideal gas)
+	// AtmosphericPa turns a gauge-pressure reading into an absolute one; 0
+	// means the standard atmosphere. Absolute says readings already are.
+	AtmosphericPa float64 `json:"atmospheric_pa,omitempty"`
+	Absolute      bool    `json:"absolute,omitempty"`
+}
+
+// molarGasConstant R, J/(mol·K): exact since the 2019 SI redefinition
+// (k_B·N_A), from memory.
+const molarGasConstant = 8.314462618
+
+// standardAtmospherePa is 1 atm, exact by definition (REFERENCES.md §5).
+const standardAtmospherePa = 101325
+
+// density is the gas density at a reading p (gauge or absolute as configured).
+func (g Gas) density(p float64) float64 {
+	abs := p
+	if !g.Absolute {
+		atm := g.AtmosphericPa
+		if atm == 0 {
+			atm = standardAtmospherePa
+		}
+		abs += atm
+	}
+	z := g.Z
+	if z == 0 {
+		z = 1
+	}
+	return math.Max(abs, 0) * g.MolarMass / (z * molarGasConstant * g.TemperatureK)
 }
 
 func (h HeadCorrection) enabled() bool { return h != HeadCorrection{} }
@@ -180,16 +269,46 @@ func (h HeadCorrection) gravity() float64 {
 	return h.Gravity
 }
 
-// Pa is the correction added to the reference reading.
-func (h HeadCorrection) Pa() float64 {
-	return (h.FluidDensity - h.AirDensity) * h.gravity() * (h.ZRef - h.ZDUT)
+// fluidDensity is the medium's density at reference reading p.
+func (h HeadCorrection) fluidDensity(p float64) float64 {
+	if h.Gas != nil {
+		return h.Gas.density(p)
+	}
+	return h.FluidDensity
 }
 
-// halfWidths are the rectangular half-widths, Pa, of the correction from
-// the height and from the density uncertainty.
-func (h HeadCorrection) halfWidths() (height, density float64) {
+// Pa is the correction added to a liquid-medium reference reading, which
+// does not depend on the pressure; for a gas use At.
+func (h HeadCorrection) Pa() float64 { return h.At(0) }
+
+// At is the correction added to the reference reading p.
+func (h HeadCorrection) At(p float64) float64 {
+	return (h.fluidDensity(p) - h.AirDensity) * h.gravity() * (h.ZRef - h.ZDUT)
+}
+
+// halfWidths are the rectangular half-widths, Pa, of the correction at
+// reference reading p from the height and from the density uncertainty.
+// A gas's density half-width is given at 1 bar absolute and scales with
+// the absolute pressure, as the density does.
+func (h HeadCorrection) halfWidths(p float64) (height, density float64) {
 	g := h.gravity()
-	return math.Abs(h.FluidDensity-h.AirDensity) * g * h.HeightHalfWidth, g * math.Abs(h.ZRef-h.ZDUT) * h.DensityHalfWidth
+	dh := h.DensityHalfWidth
+	if h.Gas != nil {
+		dh *= h.Gas.density(p) / h.Gas.density(h.Gas.atBar())
+	}
+	return math.Abs(h.fluidDensity(p)-h.AirDensity) * g * h.HeightHalfWidth, g * math.Abs(h.ZRef-h.ZDUT) * dh
+}
+
+// atBar is the reading that is 1 bar absolute.
+func (g Gas) atBar() float64 {
+	if g.Absolute {
+		return 1e5
+	}
+	atm := g.AtmosphericPa
+	if atm == 0 {
+		atm = standardAtmospherePa
+	}
+	return 1e5 - atm
 }
 
 // Validate reports the first problem with the head-correction description.
@@ -205,6 +324,18 @@ func (h HeadCorrection) Validate() error {
 	}
 	if !finite(h.ZRef) || !finite(h.ZDUT) {
 		return fmt.Errorf("head correction heights z_ref = %g m, z_dut = %g m: must be finite", h.ZRef, h.ZDUT)
+	}
+	if g := h.Gas; g != nil {
+		if !finite(g.MolarMass) || g.MolarMass <= 0 || g.MolarMass > 1 {
+			return fmt.Errorf("head correction gas molar mass %g kg/mol: must be > 0 (nitrogen 0.0280134)", g.MolarMass)
+		}
+		if !finite(g.TemperatureK) || g.TemperatureK < 150 || g.TemperatureK > 500 {
+			return fmt.Errorf("head correction gas temperature %g K: must be a temperature in kelvin, 150 … 500", g.TemperatureK)
+		}
+		if !finite(g.Z) || g.Z < 0 || g.Z > 3 || !finite(g.AtmosphericPa) || g.AtmosphericPa < 0 {
+			return fmt.Errorf("head correction gas compressibility %g or atmospheric pressure %g Pa: must be finite and ≥ 0", g.Z, g.AtmosphericPa)
+		}
+		return nil
 	}
 	if h.enabled() && h.FluidDensity == 0 {
 		return errors.New("head correction: fluid density is 0; give the density of the pressure medium")

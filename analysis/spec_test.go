@@ -153,7 +153,7 @@ func TestHeadCorrection(t *testing.T) {
 		}
 	}
 	h := HeadCorrection{FluidDensity: 1000, Gravity: 9.81, ZRef: 0.5, ZDUT: 0.2, HeightHalfWidth: 0.005, DensityHalfWidth: 10}
-	hh, hd := h.halfWidths()
+	hh, hd := h.halfWidths(0)
 	if math.Abs(hh-1000*9.81*0.005) > 1e-9 || math.Abs(hd-9.81*0.3*10) > 1e-9 {
 		t.Errorf("half-widths %g, %g", hh, hd)
 	}

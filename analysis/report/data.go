@@ -38,29 +38,51 @@ func CSV(w io.Writer, info Info, res analysis.Result) error {
 	u := info.unit()
 	cw := csv.NewWriter(w)
 	pressure := []string{"nominal", "reference_mean", "dut_mean", "error", "correction", "hysteresis", "repeatability",
-		"combined_standard_uncertainty", "expanded_uncertainty", "error_span", "mpe", "acceptance_limit"}
+		"combined_standard_uncertainty", "expanded_uncertainty", "error_span", "mpe", "acceptance_limit", "up_worst_error", "down_worst_error"}
 	header := []string{"point"}
 	for _, c := range pressure {
 		header = append(header, c+"_"+u.Symbol)
 	}
-	header = append(header, "error_percent_span", "coverage_factor", "tur", "decision")
+	header = append(header, "error_percent_span", "coverage_factor", "effective_degrees_of_freedom",
+		"mpe_to_reference_uncertainty", "mpe_to_expanded_uncertainty", "up_decision", "down_decision", "hysteresis_decision", "decision")
 	if err := cw.Write(header); err != nil {
 		return fmt.Errorf("write CSV: %w", err)
 	}
 	// 12 significant digits: beyond any pressure instrument, and free of
 	// binary noise such as 0.30000000000000004 after unit conversion.
 	num := func(v float64) string { return strconv.FormatFloat(v, 'g', 12, 64) }
+	// A figure that could not be computed is an empty cell, never a 0.
+	opt := func(v *float64) string {
+		if v == nil {
+			return ""
+		}
+		return num(*v)
+	}
+	pressureIf := func(pa float64, ok bool) string {
+		if !ok {
+			return ""
+		}
+		return num(u.FromPa(pa))
+	}
+	dir := func(d *analysis.DirectionResult) (string, string) {
+		if d == nil {
+			return "", ""
+		}
+		return num(u.FromPa(d.WorstErrorPa)), string(d.Decision)
+	}
 	for _, p := range res.Points {
 		row := []string{strconv.Itoa(p.Index + 1)}
-		for _, pa := range []float64{p.NominalPa, p.ReferenceMeanPa, p.DUTMeanPa, p.MeanErrorPa, p.CorrectionPa, p.HysteresisPa,
-			p.RepeatabilityPa, p.CombinedUncertaintyPa, p.ExpandedUncertaintyPa, p.ErrorSpanPa, p.MPEPa, p.AcceptanceLimitPa} {
+		for _, pa := range []float64{p.NominalPa, p.ReferenceMeanPa, p.DUTMeanPa, p.MeanErrorPa, p.CorrectionPa} {
 			row = append(row, num(u.FromPa(pa)))
 		}
-		t := ""
-		if p.TUR != nil {
-			t = num(*p.TUR)
+		row = append(row, pressureIf(p.HysteresisPa, p.HysteresisEvaluated), pressureIf(p.RepeatabilityPa, p.RepeatabilityEvaluated))
+		for _, pa := range []float64{p.CombinedUncertaintyPa, p.ExpandedUncertaintyPa, p.ErrorSpanPa, p.MPEPa, p.AcceptanceLimitPa} {
+			row = append(row, num(u.FromPa(pa)))
 		}
-		row = append(row, num(p.ErrorPercentSpan), num(res.CoverageFactor), t, string(p.Decision))
+		upE, upD := dir(p.UpResult)
+		downE, downD := dir(p.DownResult)
+		row = append(row, upE, downE, num(p.ErrorPercentSpan), num(p.CoverageFactor), opt(p.EffectiveDOF),
+			opt(p.ReferenceRatio), opt(p.ExpandedRatio), upD, downD, string(p.HysteresisDecision), string(p.Decision))
 		if err := cw.Write(row); err != nil {
 			return fmt.Errorf("write CSV: %w", err)
 		}

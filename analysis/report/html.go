@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"html/template"
 	"io"
+	"strconv"
 
 	"plateau/analysis"
 )
@@ -30,8 +31,19 @@ func (n numbers) budgets(res analysis.Result) []budgetBlock {
 		// are what it is read for, and must not print as zero.
 		fine := numbers{u: n.u, decimals: n.decimals + 2}
 		b := budgetBlock{Index: itoa(p.Index + 1), Nominal: n.pu(p.NominalPa), Combined: fine.pu(p.CombinedUncertaintyPa),
-			Expanded: fine.pu(p.ExpandedUncertaintyPa), K: ftoa(res.CoverageFactor)}
+			Expanded: fine.pu(p.ExpandedUncertaintyPa)}
+		b.K = strconv.FormatFloat(p.CoverageFactor, 'f', 2, 64)
+		if p.EffectiveDOF != nil {
+			b.K += ", ν_eff = " + strconv.FormatFloat(*p.EffectiveDOF, 'f', 1, 64)
+		}
+		if p.MinimumApplied {
+			b.Expanded += " (raised to the basic-procedure minimum)"
+		}
 		for _, c := range p.Budget {
+			if !c.Evaluated {
+				b.Lines = append(b.Lines, budgetLine{Name: contributionText(c.Name), Estimate: notEvaluated, Distribution: c.Note, Divisor: "", Standard: notEvaluated})
+				continue
+			}
 			b.Lines = append(b.Lines, budgetLine{Name: contributionText(c.Name), Estimate: fine.pu(c.EstimatePa),
 				Distribution: c.Distribution, Divisor: fmt.Sprintf("%.4g", c.Divisor), Standard: fine.pu(c.StandardUncertaintyPa)})
 		}
@@ -55,10 +67,12 @@ func HTML(w io.Writer, info Info, res analysis.Result) error {
 	data := struct {
 		Title     string
 		Unit      string
-		K         string
 		Identity  []identityLine
 		Rows      []pointRow
+		Judged    []judgementRow
 		Summary   []summaryLine
+		Curve     []summaryLine
+		Complete  bool
 		Verdict   string
 		Outcome   analysis.Outcome
 		Rule      string
@@ -68,7 +82,8 @@ func HTML(w io.Writer, info Info, res analysis.Result) error {
 		ChartSVGs []template.HTML
 	}{
 		Title: joinNonEmpty(" — ", "Calibration report", info.Device.ID, info.Run.Label), Unit: n.u.Symbol,
-		K: ftoa(res.CoverageFactor), Identity: n.identity(info, res), Rows: n.rows(res), Summary: n.summary(res),
+		Identity: n.identity(info, res), Rows: n.rows(res), Judged: n.judgements(res), Summary: n.summary(res),
+		Curve: n.curveLines(res), Complete: info.Run.finished(),
 		Verdict: outcomeText(res.Decision), Outcome: res.Decision, Rule: ruleText(res.DecisionRule),
 		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs,
 	}

@@ -44,10 +44,32 @@ type ReferenceIdentity struct {
 	Expires     time.Time `json:"expires,omitzero"`
 }
 
-// RunIdentity names the run: a label people read and an id machines match.
+// RunIdentity names the run: a label people read and an id machines match,
+// and how the run ended. State is empty for a table recorded elsewhere.
 type RunIdentity struct {
 	Label string `json:"label"`
 	ID    string `json:"id"`
+	// State is how the run ended, e.g. "finished", "stopped", "aborted",
+	// "running"; Reason says why when it did not finish.
+	State  string `json:"state,omitempty"`
+	Reason string `json:"reason,omitempty"`
+	// Missed lists the planned readings that were not captured.
+	Missed []MissedPoint `json:"missed,omitempty"`
+}
+
+// MissedPoint is one planned reading the run did not capture.
+type MissedPoint struct {
+	Cycle     int                `json:"cycle"`
+	Direction analysis.Direction `json:"direction,omitempty"`
+	Kind      analysis.PointKind `json:"kind"`
+	Index     int                `json:"index"` // 0-based, as analysis.Point.Index; printed as Index + 1
+	NominalPa float64            `json:"nominal_pa"`
+	Reason    string             `json:"reason,omitempty"` // e.g. "timed out"
+}
+
+// finished says whether the run ended as planned (or is a recorded table).
+func (r RunIdentity) finished() bool {
+	return (r.State == "" || r.State == "finished" || r.State == "done") && len(r.Missed) == 0
 }
 
 // Condition is one stated condition of the calibration, e.g. medium = oil.
@@ -109,11 +131,31 @@ func (n numbers) spec(pa float64) string {
 
 func pct(v float64) string { return strconv.FormatFloat(v, 'f', 3, 64) + " %" }
 
-func tur(t *float64) string {
+// notEvaluated is printed where a figure could not be computed.
+const notEvaluated = "not evaluated"
+
+// ratio formats a ratio such as MPE / U as "12.5 : 1".
+func ratio(t *float64) string {
 	if t == nil {
-		return "—"
+		return notEvaluated
 	}
 	return strconv.FormatFloat(*t, 'f', 1, 64) + " : 1"
+}
+
+// puIf formats a pressure with its unit, or "not evaluated".
+func (n numbers) puIf(pa float64, ok bool) string {
+	if !ok {
+		return notEvaluated
+	}
+	return n.pu(pa)
+}
+
+// pIf formats a pressure, or "not evaluated".
+func (n numbers) pIf(pa float64, ok bool) string {
+	if !ok {
+		return notEvaluated
+	}
+	return n.p(pa)
 }
 
 // accuracy describes the device's permissible-error specification.
@@ -162,6 +204,13 @@ func ruleText(r analysis.DecisionRule) string {
 	return string(r)
 }
 
+// judgementText says how a point's verdict is reached.
+const judgementText = "every reading of each direction against the MPE (with the U of one reading: the budget without its hysteresis term), " +
+	"the mean error against the MPE (with U), and, where the specification limits it, each cycle's hysteresis; a point takes the worst outcome, the run the worst point"
+
+// meanText says what the mean error is.
+const meanText = "midpoint of the ascending and the descending mean (one direction's mean where only one was measured)"
+
 // outcomeText is the verdict as printed.
 func outcomeText(o analysis.Outcome) string {
 	switch o {
@@ -194,6 +243,16 @@ func contributionText(name string) string {
 		return "head correction: height"
 	case "head_density":
 		return "head correction: fluid density"
+	case "reference_stability":
+		return "reference stability since calibration"
+	case "reference_resolution":
+		return "resolution of the reference"
+	case "reference_noise":
+		return "reference noise over the settled window"
+	case "temperature":
+		return "temperature effect on the device"
+	case "interpolation":
+		return "interpolation of the correction curve"
 	}
 	return name
 }
@@ -252,6 +311,32 @@ func cyclesText(info Info, res analysis.Result) string {
 		s += fmt.Sprintf(" (%d planned)", info.Procedure.Cycles)
 	}
 	return s
+}
+
+// runState describes how the run ended and what it missed; empty for a
+// finished run with every planned reading.
+func (n numbers) runState(r RunIdentity) []identityLine {
+	if r.finished() {
+		return nil
+	}
+	state := r.State
+	if state == "" {
+		state = "incomplete"
+	}
+	var out []identityLine
+	out = append(out, identityLine{"Run state", strings.ToUpper(state) + prefixed(": ", r.Reason) + " — the results cover only the readings captured"})
+	if len(r.Missed) > 0 {
+		ms := make([]string, len(r.Missed))
+		for i, m := range r.Missed {
+			what := string(m.Direction)
+			if m.Kind != "" && m.Kind != analysis.Measurement {
+				what = string(m.Kind)
+			}
+			ms[i] = fmt.Sprintf("cycle %d %s point %d (%s)", m.Cycle, what, m.Index+1, n.pu(m.NominalPa)) + prefixed(": ", m.Reason)
+		}
+		out = append(out, identityLine{"Readings missed", strings.Join(ms, "; ")})
+	}
+	return out
 }
 
 func itoa(i int) string     { return strconv.Itoa(i) }

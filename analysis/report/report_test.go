@@ -5,6 +5,7 @@ import (
 	"flag"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -101,5 +102,52 @@ func TestGolden(t *testing.T) {
 			}
 			golden(t, c.file, b.Bytes())
 		})
+	}
+}
+
+// A stopped run says so, names what it missed in the display unit and the
+// table's numbering, and prints "not evaluated" where a figure is missing.
+// The table is the one of the issue that asked for it (invented readings):
+// class 1, 0–16 bar, 8 bar read 8.10 rising and 8.21 falling.
+func TestStoppedRunAndNotEvaluated(t *testing.T) {
+	const bar = 1e5
+	w := func(v float64) analysis.Window { return analysis.Window{Mean: v * bar, Count: 1} }
+	pts := []analysis.Point{
+		{Cycle: 1, Kind: analysis.Measurement, Direction: analysis.Ascending, Index: 1, Nominal: 8 * bar, Reference: w(8), DUT: w(8.10)},
+		{Cycle: 1, Kind: analysis.Measurement, Direction: analysis.Descending, Index: 1, Nominal: 8 * bar, Reference: w(8), DUT: w(8.21)},
+	}
+	dev := analysis.Device{UpperPa: 16 * bar, ResolutionPa: 0.01 * bar, Unit: "bar", Accuracy: analysis.Accuracy{EN837Class: 1}}
+	res, err := analysis.Analyze(pts, dev, analysis.Reference{FloorPa: 0.001 * bar, K: 2}, analysis.Options{Rule: analysis.RuleSimple})
+	if err != nil {
+		t.Fatal(err)
+	}
+	info := Info{Unit: units.Bar, Run: RunIdentity{Label: "bench 2", State: "stopped", Reason: "operator pressed stop",
+		Missed: []MissedPoint{{Cycle: 1, Direction: analysis.Ascending, Kind: analysis.Measurement, Index: 2, NominalPa: 16 * bar, Reason: "timed out"}}}}
+	var b bytes.Buffer
+	if err := Text(&b, info, res); err != nil {
+		t.Fatal(err)
+	}
+	out := b.String()
+	for _, want := range []string{
+		"Run state              STOPPED: operator pressed stop",
+		"Readings missed        cycle 1 up point 3 (16.000 bar): timed out",
+		"VERDICT: FAIL",
+		"the verdict covers only the readings shown",
+		"point 2 (8 bar): the descending readings fail (cycle 1 error +0.21 bar, MPE 0.16 bar",
+		"Zero deviation                     not evaluated",
+		"Linearity                          not evaluated",
+		"repeatability  not evaluated",
+		"Largest repeatability              not evaluated",
+	} {
+		if !strings.Contains(out, want) {
+			t.Errorf("text lacks %q:\n%s", want, out)
+		}
+	}
+	b.Reset()
+	if err := CSV(&b, info, res); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(b.String(), ",0.11,,") { // hysteresis 0.11 bar, then an empty repeatability cell
+		t.Errorf("CSV does not leave the repeatability cell empty:\n%s", b.String())
 	}
 }

@@ -1,24 +1,74 @@
 package report
 
 import (
+	"strconv"
+	"strings"
+
 	"plateau/analysis"
 )
 
 // pointRow is one point of the table as printed, shared by Text and HTML.
 type pointRow struct {
-	Index, Nominal, Reference, DUT, Error, ErrorPct, Hysteresis, Repeatability, U, MPE, TUR, Decision string
-	Outcome                                                                                           analysis.Outcome
+	Index, Nominal, Reference, DUT, Error, ErrorPct, Hysteresis, Repeatability, U, K, Span, MPE string
+	RefRatio, ExpRatio, Decision                                                                string
+	Outcome                                                                                     analysis.Outcome
 }
 
 func (n numbers) rows(res analysis.Result) []pointRow {
 	out := make([]pointRow, len(res.Points))
 	for i, p := range res.Points {
+		u := n.p(p.ExpandedUncertaintyPa)
+		if p.MinimumApplied {
+			u += "*"
+		}
 		out[i] = pointRow{
 			Index: itoa(p.Index + 1), Nominal: n.p(p.NominalPa), Reference: n.p(p.ReferenceMeanPa), DUT: n.p(p.DUTMeanPa),
-			Error: n.p(p.MeanErrorPa), ErrorPct: pct(p.ErrorPercentSpan), Hysteresis: n.p(p.HysteresisPa),
-			Repeatability: n.p(p.RepeatabilityPa), U: n.p(p.ExpandedUncertaintyPa), MPE: n.p(p.MPEPa),
-			TUR: tur(p.TUR), Decision: outcomeText(p.Decision), Outcome: p.Decision,
+			Error: n.p(p.MeanErrorPa), ErrorPct: pct(p.ErrorPercentSpan), Hysteresis: n.pIf(p.HysteresisPa, p.HysteresisEvaluated),
+			Repeatability: n.pIf(p.RepeatabilityPa, p.RepeatabilityEvaluated), U: u, K: strconv.FormatFloat(p.CoverageFactor, 'f', 2, 64),
+			Span: n.p(p.ErrorSpanPa), MPE: n.p(p.MPEPa),
+			RefRatio: ratio(p.ReferenceRatio), ExpRatio: ratio(p.ExpandedRatio), Decision: outcomeText(p.Decision), Outcome: p.Decision,
 		}
+	}
+	return out
+}
+
+// judgementRow shows how a point's verdict was reached: each direction's
+// worst reading with the U of one reading, and the worst cycle's hysteresis
+// against its limit.
+type judgementRow struct {
+	Index, UpError, UpU, Up, DownError, DownU, Down, Hysteresis, Limit, HystOutcome, Point string
+	UpOutcome, DownOutcome, HOutcome, Outcome                                              analysis.Outcome
+}
+
+func (n numbers) judgements(res analysis.Result) []judgementRow {
+	out := make([]judgementRow, len(res.Points))
+	dir := func(d *analysis.DirectionResult) (e, u, o string, oc analysis.Outcome) {
+		if d == nil {
+			return "—", "—", "not measured", ""
+		}
+		return n.p(d.WorstErrorPa), n.p(d.ExpandedUncertaintyPa), outcomeText(d.Decision), d.Decision
+	}
+	for i, p := range res.Points {
+		r := judgementRow{Index: itoa(p.Index + 1), Point: outcomeText(p.Decision), Outcome: p.Decision,
+			Hysteresis: notEvaluated, Limit: "none", HystOutcome: "not judged", HOutcome: p.HysteresisDecision}
+		r.UpError, r.UpU, r.Up, r.UpOutcome = dir(p.UpResult)
+		r.DownError, r.DownU, r.Down, r.DownOutcome = dir(p.DownResult)
+		if p.HysteresisEvaluated {
+			worst := p.HysteresisCycles[0]
+			for _, c := range p.HysteresisCycles {
+				if c.HysteresisPa > worst.HysteresisPa {
+					worst = c
+				}
+			}
+			r.Hysteresis = n.p(worst.HysteresisPa) + " (cycle " + itoa(worst.Cycle) + ")"
+		}
+		if p.HysteresisLimitPa != nil {
+			r.Limit = n.p(*p.HysteresisLimitPa)
+			if p.HysteresisDecision != "" {
+				r.HystOutcome = outcomeText(p.HysteresisDecision)
+			}
+		}
+		out[i] = r
 	}
 	return out
 }
@@ -27,12 +77,24 @@ func (n numbers) rows(res analysis.Result) []pointRow {
 type summaryLine struct{ Label, Value string }
 
 func (n numbers) summary(res analysis.Result) []summaryLine {
+	zero := notEvaluated + " (no cycle has a zero reading before and after)"
+	if res.Zero.Evaluated {
+		zero = n.pu(res.Zero.DeviationPa) + " (from " + res.Zero.Source + ")"
+	}
+	hyst, repeat := false, false
+	for _, p := range res.Points {
+		hyst, repeat = hyst || p.HysteresisEvaluated, repeat || p.RepeatabilityEvaluated
+	}
 	s := []summaryLine{
+		{"Mean error", meanText},
 		{"Largest |error|", n.pu(res.MaxAbsErrorPa)},
-		{"Largest |error| + U", n.pu(res.MaxErrorSpanPa) + " (" + pct(res.MaxErrorSpanPercentSpan) + " of span)"},
-		{"Largest hysteresis", n.pu(res.MaxHysteresisPa)},
-		{"Largest repeatability", n.pu(res.MaxRepeatabilityPa)},
-		{"Zero deviation", n.pu(res.Zero.DeviationPa) + " (from " + res.Zero.Source + ")"},
+		{"Largest |error| + U", n.pu(res.MaxErrorSpanPa) + " (" + pct(res.MaxErrorSpanPercentSpan) + " of span; the error span, for users who do not correct)"},
+		{"Largest hysteresis", n.puIf(res.MaxHysteresisPa, hyst)},
+		{"Largest repeatability", n.puIf(res.MaxRepeatabilityPa, repeat)},
+		{"Zero deviation", zero},
+	}
+	if len(res.Linearity) == 0 {
+		s = append(s, summaryLine{"Linearity", notEvaluated + " (fewer than three points)"})
 	}
 	for _, l := range res.Linearity {
 		s = append(s, summaryLine{"Linearity, " + string(l.Kind), n.pu(l.MaxDeviationPa) + " (" + pct(l.MaxDeviationPercentSpan) + " of span)"})
@@ -40,12 +102,69 @@ func (n numbers) summary(res analysis.Result) []summaryLine {
 	if res.Drift != nil {
 		s = append(s, summaryLine{"Largest change between cycles", n.pu(res.Drift.LargestCycleChangePa)})
 	}
+	if res.ShortProcedure {
+		s = append(s, summaryLine{"Short procedure", "U raised to at least " + n.pu(res.MinimumUncertaintyPa) +
+			" (0.2 % of span, EURAMET cg-17 basic procedure; marked * in the table)"})
+	}
 	s = append(s,
-		summaryLine{"Smallest TUR", tur(res.MinTUR)},
-		summaryLine{"Coverage factor", "k = " + ftoa(res.CoverageFactor)},
+		summaryLine{"Smallest MPE / U of the reference", ratio(res.MinReferenceRatio) + " (the 4 : 1 practice compares the reference standard alone)"},
+		summaryLine{"Smallest MPE / U", ratio(res.MinExpandedRatio) + " (U of the whole measurement at the point)"},
+		summaryLine{"Coverage", res.Coverage.Statement},
 		summaryLine{"Decision rule", ruleText(res.DecisionRule)},
+		summaryLine{"Judged", judgementText},
+		summaryLine{"Ties", res.TieRule},
 	)
 	return s
+}
+
+// curveLines describe the correction curve with its coefficients in the
+// display unit: p = Σ a_j·x^j with x and p in that unit.
+func (n numbers) curveLines(res analysis.Result) []summaryLine {
+	c := res.Correction
+	if c == nil {
+		return nil
+	}
+	f := n.u.Pa
+	var out []summaryLine
+	for j, a := range c.PowerCoefficients {
+		scale := 1.0
+		for range j - 1 {
+			scale *= f
+		}
+		if j == 0 {
+			scale = 1 / f
+		}
+		unit := n.u.Symbol
+		switch {
+		case j == 1:
+			unit = ""
+		case j > 1:
+			unit = n.u.Symbol + "^" + itoa(1-j)
+		}
+		with := func(v float64, digits int) string {
+			return strings.TrimSpace(strconv.FormatFloat(v, 'g', digits, 64) + " " + unit)
+		}
+		v := with(a*scale, 8)
+		if c.CoefficientSD != nil {
+			v += ", standard uncertainty " + with(c.CoefficientSD[j]*scale, 3)
+		}
+		out = append(out, summaryLine{"a" + itoa(j), v})
+	}
+	if c.Correlation != nil {
+		var rs []string
+		for i := range c.Correlation {
+			for j := i + 1; j < len(c.Correlation); j++ {
+				rs = append(rs, "r(a"+itoa(i)+", a"+itoa(j)+") = "+strconv.FormatFloat(c.Correlation[i][j], 'f', 4, 64))
+			}
+		}
+		out = append(out, summaryLine{"Correlation", strings.Join(rs, ", ")})
+	}
+	interp := notEvaluated + " (the curve passes through every point by construction)"
+	if c.InterpolationEvaluated {
+		fine := numbers{u: n.u, decimals: n.decimals + 2}
+		interp = fine.pu(c.InterpolationPa) + " (largest residual " + fine.pu(c.MaxResidualPa) + " as a rectangular half-width)"
+	}
+	return append(out, summaryLine{"Interpolation u", interp})
 }
 
 // identityLine is one labelled line of the identity block.
@@ -55,14 +174,20 @@ func (n numbers) identity(info Info, res analysis.Result) []identityLine {
 	d, r := info.Device, info.Reference
 	lines := []identityLine{
 		{"Run", dash(joinNonEmpty(" · ", info.Run.Label, info.Run.ID))},
-		{"Device under test", dash(joinNonEmpty(" · ", d.ID, joinNonEmpty(" ", d.Manufacturer, d.Model), prefixed("serial ", d.Serial)))},
-		{"Range", n.pu(res.Device.LowerPa) + " … " + n.pu(res.Device.UpperPa) + ", resolution " + n.pu(res.Device.ResolutionPa)},
-		{"Permissible error", n.accuracy(res.Device.Accuracy)},
-		{"Reference standard", dash(joinNonEmpty(" · ", r.ID, r.Model, prefixed("serial ", r.Serial)))},
-		{"Certificate", dash(r.Certificate) + ", valid until " + date(r.Expires)},
-		{"Reference uncertainty", n.refUncertainty(res.Reference)},
 	}
-	if res.HeadCorrectionPa != 0 {
+	lines = append(lines, n.runState(info.Run)...)
+	lines = append(lines,
+		identityLine{"Device under test", dash(joinNonEmpty(" · ", d.ID, joinNonEmpty(" ", d.Manufacturer, d.Model), prefixed("serial ", d.Serial)))},
+		identityLine{"Range", n.pu(res.Device.LowerPa) + " … " + n.pu(res.Device.UpperPa) + ", resolution " + n.pu(res.Device.ResolutionPa)},
+		identityLine{"Permissible error", n.accuracy(res.Device.Accuracy)},
+		identityLine{"Reference standard", dash(joinNonEmpty(" · ", r.ID, r.Model, prefixed("serial ", r.Serial)))},
+		identityLine{"Certificate", dash(r.Certificate) + ", valid until " + date(r.Expires)},
+		identityLine{"Reference uncertainty", n.refUncertainty(res.Reference)},
+	)
+	switch {
+	case res.HeadVaries:
+		lines = append(lines, identityLine{"Head correction", "gas medium: density at each reading's absolute pressure, added to every reference reading"})
+	case res.HeadCorrectionPa != 0:
 		lines = append(lines, identityLine{"Head correction", n.pu(res.HeadCorrectionPa) + " added to every reference reading"})
 	}
 	for _, c := range info.Conditions {
@@ -83,4 +208,48 @@ func prefixed(prefix, s string) string {
 		return ""
 	}
 	return prefix + s
+}
+
+// budgetTable is the budget as rows of contributions by columns of points:
+// standard uncertainties, "not evaluated" where a term could not be.
+func (n numbers) budgetTable(res analysis.Result) [][]string {
+	if len(res.Points) == 0 {
+		return nil
+	}
+	fine := numbers{u: n.u, decimals: n.decimals + 2}
+	head := []string{"contribution"}
+	for _, p := range res.Points {
+		head = append(head, "#"+itoa(p.Index+1))
+	}
+	out := [][]string{head}
+	for i, c := range res.Points[0].Budget {
+		row := []string{contributionText(c.Name)}
+		for _, p := range res.Points {
+			if i < len(p.Budget) && p.Budget[i].Evaluated {
+				row = append(row, fine.p(p.Budget[i].StandardUncertaintyPa))
+			} else {
+				row = append(row, notEvaluated)
+			}
+		}
+		out = append(out, row)
+	}
+	uc, u, k := []string{"combined u_c"}, []string{"expanded U"}, []string{"coverage factor k"}
+	for _, p := range res.Points {
+		uc = append(uc, fine.p(p.CombinedUncertaintyPa))
+		u = append(u, fine.p(p.ExpandedUncertaintyPa))
+		k = append(k, strconv.FormatFloat(p.CoverageFactor, 'f', 2, 64))
+	}
+	out = append(out, uc, u, k)
+	if res.Coverage.Method == analysis.CoverageStudentT {
+		nu := []string{"ν_eff"}
+		for _, p := range res.Points {
+			if p.EffectiveDOF == nil {
+				nu = append(nu, "∞")
+			} else {
+				nu = append(nu, strconv.FormatFloat(*p.EffectiveDOF, 'f', 1, 64))
+			}
+		}
+		out = append(out, nu)
+	}
+	return out
 }
