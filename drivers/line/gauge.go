@@ -67,6 +67,7 @@ type Gauge struct {
 	buf     []byte
 	chunk   []byte
 	query   []byte
+	term    []byte
 }
 
 var (
@@ -90,7 +91,7 @@ func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, erro
 
 func newGauge(name string, opts options, conv drivers.Conversion, env drivers.OpenEnv) *Gauge {
 	return &Gauge{name: name, opts: opts, conv: conv, clk: env.Time(), bus: drivers.NewBus(0),
-		chunk: make([]byte, 256), query: []byte(opts.Query),
+		chunk: make([]byte, 256), query: []byte(opts.Query), term: []byte(opts.Terminator),
 		log: env.Logger("instrument", name, "link", config.LinkSerial, "device", opts.Device)}
 }
 
@@ -266,10 +267,9 @@ var errTimeout = errors.New("no complete reply line before the time-out")
 // the deadline-aware reader go.bug.st/serial lacks: its Read returns (0, nil)
 // on a time-out, which this turns into errTimeout.
 func (g *Gauge) readLine(ctx context.Context, deadline time.Time, partial bool) (string, error) {
-	term := g.opts.Terminator
 	chunk := g.chunk
 	for {
-		if line, ok := g.takeLine(term, partial); ok {
+		if line, ok := g.takeLine(partial); ok {
 			return line, nil
 		}
 		if err := ctx.Err(); err != nil {
@@ -294,24 +294,36 @@ func (g *Gauge) readLine(ctx context.Context, deadline time.Time, partial bool) 
 }
 
 // takeLine removes every complete line from the buffer and returns the last
-// non-empty one; a trailing partial line stays for the next read.
-func (g *Gauge) takeLine(term string, partial bool) (string, bool) {
-	i := bytes.LastIndex(g.buf, []byte(term))
+// non-empty one; a trailing partial line stays for the next read. It scans
+// back from the end so that only the line it returns is copied.
+func (g *Gauge) takeLine(partial bool) (string, bool) {
+	t := g.term
+	i := bytes.LastIndex(g.buf, t)
 	if i < 0 {
 		return "", false
 	}
-	complete := string(g.buf[:i])
-	g.buf = append(g.buf[:0], g.buf[i+len(term):]...)
+	var line string
+	found := false
+	for rest := g.buf[:i]; !partial; {
+		start := 0
+		j := bytes.LastIndex(rest, t)
+		if j >= 0 {
+			start = j + len(t)
+		}
+		if s := bytes.TrimSpace(rest[start:]); len(s) > 0 {
+			line, found = string(s), true
+			break
+		}
+		if j < 0 {
+			break
+		}
+		rest = rest[:j]
+	}
+	g.buf = append(g.buf[:0], g.buf[i+len(t):]...)
 	if partial {
 		return "", true
 	}
-	lines := strings.Split(complete, term)
-	for j := len(lines) - 1; j >= 0; j-- {
-		if s := strings.TrimSpace(lines[j]); s != "" {
-			return s, true
-		}
-	}
-	return "", false
+	return line, found
 }
 
 // Close waits for a running read, refuses later ones and closes the port.
