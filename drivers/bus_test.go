@@ -149,9 +149,13 @@ func TestBusNeverStartsEndedWork(t *testing.T) {
 	}{
 		{"cancelled before the call", 0, 0, func() (context.Context, context.CancelFunc) { return cancelled, func() {} }, context.Canceled},
 		{"ends while the line is busy", 0, 50 * time.Millisecond,
-			func() (context.Context, context.CancelFunc) { return context.WithTimeout(context.Background(), 10*time.Millisecond) }, context.DeadlineExceeded},
+			func() (context.Context, context.CancelFunc) {
+				return context.WithTimeout(context.Background(), 10*time.Millisecond)
+			}, context.DeadlineExceeded},
 		{"ends during the pause", 200 * time.Millisecond, time.Millisecond,
-			func() (context.Context, context.CancelFunc) { return context.WithTimeout(context.Background(), 30*time.Millisecond) }, context.DeadlineExceeded},
+			func() (context.Context, context.CancelFunc) {
+				return context.WithTimeout(context.Background(), 30*time.Millisecond)
+			}, context.DeadlineExceeded},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
