@@ -11,6 +11,7 @@ import (
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/config"
+	"plateau/drivers"
 	_ "plateau/drivers/all"
 	"plateau/drivers/clock"
 	"plateau/drivers/sim"
@@ -33,6 +34,18 @@ type benchOption func(*benchSetup)
 type benchSetup struct {
 	rigOpts []sim.Option
 	dial    bool
+	store   func(*store.Store) acquire.Store
+	ref     func(drivers.Gauge) drivers.Gauge
+}
+
+// withStore puts a fake in front of the real store.
+func withStore(f func(*store.Store) acquire.Store) benchOption {
+	return func(b *benchSetup) { b.store = f }
+}
+
+// withReference wraps the opened reference gauge.
+func withReference(f func(drivers.Gauge) drivers.Gauge) benchOption {
+	return func(b *benchSetup) { b.ref = f }
 }
 
 // withDial lets the rig's simulated operator read the dial.
@@ -83,13 +96,24 @@ func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBe
 		rig.Stop()
 		t.Fatal(err)
 	}
-	eopt := acquire.Options{Config: cfg, Store: st, Clock: clk, Resolve: rig.Resolve}
-	if setup.dial {
-		eopt.Dial = rig.Operator()
-	}
-	eng, err := acquire.New(eopt)
+	in, closeInstruments, err := acquire.Open(cfg, drivers.OpenEnv{Clock: clk}, rig)
 	if err != nil {
 		cancel()
+		rig.Stop()
+		st.Close()
+		t.Fatal(err)
+	}
+	if setup.ref != nil {
+		in.Reference.Gauge = setup.ref(in.Reference.Gauge)
+	}
+	var est acquire.Store = st
+	if setup.store != nil {
+		est = setup.store(st)
+	}
+	eng, err := acquire.New(acquire.Options{Config: cfg, Store: est, Clock: clk, Instruments: in})
+	if err != nil {
+		cancel()
+		closeInstruments()
 		rig.Stop()
 		st.Close()
 		t.Fatal(err)
@@ -99,7 +123,7 @@ func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBe
 	t.Cleanup(func() {
 		cancel()
 		<-served
-		eng.Close()
+		closeInstruments()
 		rig.Stop()
 		path := st.Path()
 		if err := st.Close(); err != nil {
@@ -143,6 +167,13 @@ func (b *testBench) wait(t *testing.T, limit time.Duration) (store.State, string
 	state, reason := b.eng.Wait(ctx)
 	if state == "" {
 		b.logInstruments(t)
+		st := b.eng.Status()
+		t.Logf("status: %s %s (%s) step %d/%d phase %q trip %q store %q", st.Run, st.State, st.Reason, st.Step+1, st.Steps, st.Phase, st.Trip, st.StoreFault)
+		if evs, err := b.st.Events(0, 0); err == nil {
+			for _, ev := range evs[max(0, len(evs)-8):] {
+				t.Logf("event %d %s %s: %s", ev.ID, ev.Type, ev.Instrument, ev.Message)
+			}
+		}
 		t.Fatalf("run still going after %s: %s", limit, reason)
 	}
 	return state, reason

@@ -1,13 +1,24 @@
-// Package acquire runs a calibration: one poller per instrument feeding its
-// settle detector, the procedure runner that drives the pressure and
-// captures comparison points, the run lifecycle and the live event bus.
-package acquire
+// Package procedure is the calibration procedure: the plan of steps, and
+// the runner that drives the pressure (or asks a person to), approaches each
+// point from its side and captures a comparison point when the reference and
+// the device are settled over shared windows. It works through narrow
+// interfaces (the source, the instruments' settled windows, the record, a
+// pause gate, the clock) and knows nothing of wire formats or storage.
+package procedure
 
 import (
 	"fmt"
 
 	"plateau/analysis"
 	"plateau/config"
+)
+
+// Mode says how a run finds its points.
+type Mode string
+
+const (
+	Planned Mode = "plan" // follow the configured points
+	Free    Mode = "free" // every plateau both instruments hold becomes a point
 )
 
 // StepKind is what the runner does at one step of a plan.

@@ -1,4 +1,4 @@
-package acquire
+package procedure
 
 import (
 	"testing"

@@ -9,6 +9,7 @@ import (
 	"plateau/acquire"
 	"plateau/acquire/store"
 	"plateau/config"
+	"plateau/config/record"
 	"plateau/drivers"
 	_ "plateau/drivers/all"
 	"plateau/drivers/clock"
@@ -19,11 +20,12 @@ import (
 // instruments and, when any instrument is simulated, the simulated rig
 // serving them over its real transports.
 type bench struct {
-	cfg    *config.Config
-	store  *store.Store
-	engine *acquire.Engine
-	rig    *sim.Rig
-	clock  clock.Clock
+	cfg              *config.Config
+	store            *store.Store
+	engine           *acquire.Engine
+	rig              *sim.Rig
+	clock            clock.Clock
+	closeInstruments func() error
 }
 
 func usesSimulator(cfg *config.Config) bool {
@@ -35,37 +37,23 @@ func usesSimulator(cfg *config.Config) bool {
 	return false
 }
 
-// simulatedDial says whether the device under test is the simulator's dial.
-func simulatedDial(cfg *config.Config) bool {
-	for _, in := range cfg.Instruments {
-		if in.Role == config.RoleDevice && in.Link.Kind == config.LinkSim {
-			return cfg.Simulator.Device.Kind == "dial"
-		}
-	}
-	return false
-}
-
 // openBench opens the store, starts the simulated rig if one is configured,
 // and opens every instrument. ctx bounds the rig's servers.
 func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*bench, error) {
 	b := &bench{cfg: cfg, clock: clock.Wall{}}
-	var resolve func(config.Instrument) (config.Instrument, error)
-	var dial drivers.Gauge
+	var rig acquire.Simulated
 	if usesSimulator(cfg) {
 		if cfg.Simulator.Speed != 1 {
 			b.clock = clock.NewScaled(cfg.Simulator.Speed)
 		}
-		rig, err := sim.New(cfg.Simulator, b.clock, sim.WithLogger(log.With("component", "simulator")))
+		r, err := sim.New(cfg.Simulator, b.clock, sim.WithLogger(log.With("component", "simulator")))
 		if err != nil {
 			return nil, fmt.Errorf("simulator: %w", err)
 		}
-		if _, err := rig.Start(ctx); err != nil {
+		if _, err := r.Start(ctx); err != nil {
 			return nil, fmt.Errorf("start simulator: %w", err)
 		}
-		b.rig, resolve = rig, rig.Resolve
-		if simulatedDial(cfg) {
-			dial = rig.Operator() // the simulated operator reads the simulated dial
-		}
+		b.rig, rig = r, r
 	}
 	st, err := store.Open(cfg.Store.Path, store.Options{Clock: b.clock})
 	if err != nil {
@@ -79,7 +67,14 @@ func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*benc
 		b.close()
 		return nil, fmt.Errorf("keep the configuration with the run: %w", err)
 	}
-	eng, err := acquire.New(acquire.Options{Config: cfg, ConfigYAML: yaml, Store: st, Clock: b.clock, Log: log, Resolve: resolve, Dial: dial})
+	in, closeInstruments, err := acquire.Open(cfg, drivers.OpenEnv{Log: log, Clock: b.clock}, rig)
+	if err != nil {
+		b.close()
+		return nil, err
+	}
+	b.closeInstruments = closeInstruments
+	eng, err := acquire.New(acquire.Options{Config: cfg, ConfigYAML: yaml, Record: record.Of(cfg).Encode(),
+		Identity: record.Identity(cfg), Instruments: in, Store: st, Clock: b.clock, Log: log})
 	if err != nil {
 		b.close()
 		return nil, err
@@ -91,8 +86,8 @@ func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*benc
 // close releases everything; the store is flushed last.
 func (b *bench) close() error {
 	var err error
-	if b.engine != nil {
-		b.engine.Close()
+	if b.closeInstruments != nil {
+		b.closeInstruments()
 	}
 	if b.rig != nil {
 		b.rig.Stop()

@@ -10,7 +10,7 @@ import (
 	"testing"
 	"time"
 
-	"plateau/acquire"
+	"plateau/acquire/procedure"
 	"plateau/acquire/store"
 	"plateau/config"
 )
@@ -30,7 +30,7 @@ func TestKillAndResume(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	total := acquire.CaptureCount(acquire.Plan(cfg.Procedure, cfg.Device.LowerPa))
+	total := procedure.CaptureCount(procedure.Plan(cfg.Procedure, cfg.Device.LowerPa))
 
 	rng := rand.New(rand.NewPCG(1, 2))
 	seen := map[string]bool{}

@@ -11,7 +11,6 @@ import (
 	"path/filepath"
 	"strings"
 	"sync"
-	"sync/atomic"
 	"syscall"
 	"time"
 
@@ -102,7 +101,7 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger) (err error
 	srv, err := api.New(api.Options{
 		Control: ctl, Records: b.store, Feed: busFeed{b.engine.Bus()}, Render: render,
 		Token: token, Version: version, Logger: log.With("component", "api"),
-		Ready: func() error { return b.store.WriterStatus().Err },
+		Ready: b.engine.Healthy,
 	})
 	if err != nil {
 		return err
@@ -122,8 +121,6 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger) (err error
 			log.Error("engine stopped", "err", err)
 		}
 	}()
-	wg.Add(1)
-	go func() { defer wg.Done(); ctl.countPoints(engCtx) }()
 
 	failed := make(chan error, len(listeners))
 	for _, l := range listeners {
@@ -228,18 +225,17 @@ func (f busFeed) Subscribe(buffer int) (<-chan store.Event, func()) {
 
 // engineControl adapts the engine to the API's Control.
 type engineControl struct {
-	eng    *acquire.Engine
-	st     *store.Store
-	cfg    *config.Config
-	since  time.Time
-	points atomic.Uint64 // points captured since the daemon started
+	eng   *acquire.Engine
+	st    *store.Store
+	cfg   *config.Config
+	since time.Time
 }
 
 func (c *engineControl) currentRun() string { return c.eng.Status().Run }
 
 func (c *engineControl) Status(context.Context) api.Status {
 	es := c.eng.Status()
-	out := api.Status{Version: version, Since: c.since, PointsCaptured: c.points.Load(), Unit: c.cfg.Device.Unit}
+	out := api.Status{Version: version, Since: c.since, PointsCaptured: es.PointsCommitted, Unit: c.cfg.Device.Unit}
 	if es.TotalPoints > 0 {
 		out.Progress = float64(es.Points) / float64(es.TotalPoints)
 	}
@@ -263,8 +259,11 @@ func (c *engineControl) Status(context.Context) api.Status {
 		roles[in.Name] = in.Role
 	}
 	for _, p := range es.Instruments {
+		// An instrument read by a person is not down while it waits for
+		// an entry.
+		up := (p.Reads > 0 && p.LastErr == "") || (!es.Polled[p.Name] && p.LastErr == "")
 		out.Instruments = append(out.Instruments, api.InstrumentInfo{
-			Name: p.Name, Role: roles[p.Name], Up: p.Reads > 0 && p.LastErr == "",
+			Name: p.Name, Role: roles[p.Name], Up: up,
 			Reads: p.Reads, Errors: p.Failures, LastPa: p.Last.Pa, LastAt: p.Last.Time,
 			Settled: p.Settled, LastError: p.LastErr,
 		})
@@ -306,27 +305,6 @@ func refusal(err error) error {
 	return err
 }
 
-// countPoints counts captured points from the event bus for the
-// points_captured metric. The bus drops a subscriber that falls behind;
-// this one only counts, so it subscribes again.
-func (c *engineControl) countPoints(ctx context.Context) {
-	for ctx.Err() == nil {
-		sub := c.eng.Bus().Subscribe(1024)
-		for open := true; open; {
-			select {
-			case <-ctx.Done():
-				sub.Close()
-				return
-			case ev, ok := <-sub.C:
-				open = ok
-				if ok && ev.Type == "point" {
-					c.points.Add(1)
-				}
-			}
-		}
-	}
-}
-
 // reportStatus keeps the line `systemctl status plateau` shows current.
 func (c *engineControl) reportStatus(ctx context.Context, log *slog.Logger) {
 	last := ""
@@ -360,8 +338,9 @@ func (c *engineControl) reportStatus(ctx context.Context, log *slog.Logger) {
 // store writer (idle, or committing its queue).
 func (c *engineControl) probes() []systemd.Probe {
 	var out []systemd.Probe
-	for _, in := range c.eng.Status().Instruments {
-		if !in.Polled {
+	st := c.eng.Status()
+	for _, in := range st.Instruments {
+		if !st.Polled[in.Name] {
 			continue
 		}
 		name := in.Name
@@ -378,10 +357,13 @@ func (c *engineControl) probes() []systemd.Probe {
 		}})
 	}
 	// While a run is active samples flow and the writer commits every
-	// flush interval; when idle it has nothing to do unless it failed.
+	// flush interval; when idle it has nothing to do unless it failed. A
+	// store fault the engine has taken in hand (the source vented, the run
+	// paused, status saying why) is not a wedged daemon: a restart would
+	// not free the disk.
 	out = append(out, systemd.Probe{Name: "store writer", Last: func() time.Time {
 		ws := c.st.WriterStatus()
-		if ws.Err == nil && c.currentRun() == "" {
+		if (ws.Err == nil && c.currentRun() == "") || c.eng.Healthy() != nil {
 			return time.Now()
 		}
 		if ws.LastCommit.Before(c.since) {

@@ -13,8 +13,8 @@ import (
 	"testing"
 	"time"
 
-	"plateau/acquire"
 	"plateau/acquire/api"
+	"plateau/acquire/procedure"
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/config"
@@ -37,7 +37,7 @@ func TestServeTermAndResume(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	total := acquire.CaptureCount(acquire.Plan(cfg.Procedure, cfg.Device.LowerPa))
+	total := procedure.CaptureCount(procedure.Plan(cfg.Procedure, cfg.Device.LowerPa))
 
 	c := api.NewUnixClient(socket, "")
 	ctx, cancel := context.WithTimeout(context.Background(), 90*time.Second)
@@ -169,7 +169,7 @@ func TestServeTermAndResume(t *testing.T) {
 	}
 	resumed := false
 	for _, ev := range events {
-		resumed = resumed || strings.Contains(ev.Message, "resumed after restart")
+		resumed = resumed || strings.Contains(ev.Message, "after a restart") && strings.HasPrefix(ev.Message, "resuming ")
 	}
 	if !resumed {
 		t.Fatal("no event says the run was resumed")

@@ -3,6 +3,7 @@ package sim
 import (
 	"math"
 	"sync"
+	"time"
 
 	"github.com/simonvetter/modbus"
 
@@ -22,6 +23,27 @@ type bank struct {
 
 	mu      sync.Mutex
 	spWords [2]uint16 // setpoint words as last written, applied when the low word arrives
+	writes  []Write   // every command the controller accepted, in order
+}
+
+// Write is one command the simulated controller accepted over the wire.
+type Write struct {
+	Wall  time.Time // when it arrived (wall time)
+	Clock time.Time // when it arrived (the rig's clock)
+	Vent  bool      // a vent command; otherwise a setpoint
+	Pa    float64   // the setpoint
+}
+
+func (b *bank) logWrite(w Write) {
+	w.Wall, w.Clock = time.Now(), b.clk.Now()
+	b.writes = append(b.writes, w)
+}
+
+// accepted returns a copy of the write log.
+func (b *bank) accepted() []Write {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	return append([]Write(nil), b.writes...)
 }
 
 var setpointSpec = mustSpec("float32", "ABCD")
@@ -46,6 +68,9 @@ func (b *bank) HandleCoils(req *modbus.CoilsRequest) ([]bool, error) {
 		}
 	}
 	if req.Args[0] {
+		b.mu.Lock()
+		b.logWrite(Write{Vent: true})
+		b.mu.Unlock()
 		b.m.vent(b.clk.Now())
 	}
 	return nil, nil
@@ -94,9 +119,11 @@ func (b *bank) writeHolding(addr int, args []uint16) error {
 			return modbus.ErrIllegalDataValue
 		}
 		b.m.setPoint(now, pa)
+		b.logWrite(Write{Pa: pa})
 	}
 	b.spWords = sp
 	if vent {
+		b.logWrite(Write{Vent: true})
 		b.m.vent(now)
 	}
 	return nil

@@ -86,7 +86,7 @@ func (r *Rig) answerLine(ctx context.Context, port *ptyPort, part, cmd string, v
 	if cmd == "" {
 		return nil
 	}
-	if r.j.linkDown(r.clk.Now()) {
+	if r.j.linkDown(r.clk.Now()) || r.muted(part) {
 		return nil
 	}
 	f := r.j.request(r.p.faults.Garbage)

@@ -24,6 +24,14 @@ type Operator struct {
 // Operator returns the rig's dial reader.
 func (r *Rig) Operator() *Operator { return &Operator{r: r, Watch: time.Second} }
 
+// DialReader is the operator when the simulated device is a dial, else nil.
+func (r *Rig) DialReader() drivers.Gauge {
+	if r.p.kind != KindDial {
+		return nil
+	}
+	return r.Operator()
+}
+
 // Read waits (in clock time) for the pointer to settle and the operator to
 // read it, then returns the reading in the device's unit.
 func (o *Operator) Read(ctx context.Context) (drivers.Reading, error) {

@@ -57,6 +57,8 @@ type Rig struct {
 	m        *model
 	j        *injector
 	bank     *bank
+	muteMu   sync.Mutex
+	mute     map[string]bool // parts whose line instrument does not answer
 	tcpAddr  string
 	unit     uint8
 	baud     int
@@ -231,6 +233,28 @@ func (r *Rig) RegisterMap() []Register { return r.bank.regs }
 
 // Sample is what the instruments show now (faults not applied).
 func (r *Rig) Sample() Sample { return r.m.sample(r.clk.Now()) }
+
+// Mute silences the line instrument of one part ("reference" or
+// "device"): it stops answering, as an instrument whose cable was pulled
+// does, until Mute is called again with false.
+func (r *Rig) Mute(part string, on bool) {
+	r.muteMu.Lock()
+	defer r.muteMu.Unlock()
+	if r.mute == nil {
+		r.mute = map[string]bool{}
+	}
+	r.mute[part] = on
+}
+
+func (r *Rig) muted(part string) bool {
+	r.muteMu.Lock()
+	defer r.muteMu.Unlock()
+	return r.mute[part]
+}
+
+// Writes is the log of every setpoint and vent the simulated controller
+// accepted over the wire, in order.
+func (r *Rig) Writes() []Write { return r.bank.accepted() }
 
 // SetPoint moves the simulated source directly, as its front panel would.
 func (r *Rig) SetPoint(pa float64) error {

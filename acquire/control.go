@@ -1,0 +1,425 @@
+package acquire
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"log/slog"
+	"math"
+	"time"
+
+	"plateau/acquire/poll"
+	"plateau/acquire/procedure"
+	"plateau/acquire/store"
+	"plateau/analysis"
+	"plateau/drivers"
+)
+
+var (
+	// ErrBusy is returned by Start while another run is active.
+	ErrBusy = errors.New("a run is already active")
+	// ErrNoRun is returned by Stop, Pause and Resume when no run is active.
+	ErrNoRun = errors.New("no run is active")
+)
+
+// Status is a snapshot of the engine and its run, for the API and the
+// progress display.
+type Status struct {
+	Run         string       `json:"run,omitempty"`
+	State       string       `json:"state"`
+	Reason      string       `json:"reason,omitempty"`
+	Since       time.Time    `json:"since,omitzero"`
+	Step        int          `json:"step"`
+	Steps       int          `json:"steps"`
+	Points      int          `json:"points"`
+	TotalPoints int          `json:"total_points"`
+	Phase       string       `json:"phase,omitempty"`
+	TargetPa    float64      `json:"target_pa"`
+	Instruments []poll.State `json:"instruments"`
+	// Polled names the instruments with a poll loop (a dial read by a
+	// person has none).
+	Polled map[string]bool `json:"polled"`
+	// Trip is why the safety guard is latched; empty when it is not.
+	Trip string `json:"trip,omitempty"`
+	// StoreFault is why the store cannot write; empty when it can.
+	StoreFault string `json:"store_fault,omitempty"`
+	// PointsCommitted counts points committed since the engine started.
+	PointsCommitted uint64 `json:"points_committed"`
+	// Last is the run that ended most recently in this process.
+	Last *LastRun `json:"last,omitempty"`
+}
+
+// LastRun is how the last run ended.
+type LastRun struct {
+	Run    string `json:"run"`
+	State  string `json:"state"`
+	Reason string `json:"reason,omitempty"`
+}
+
+// Status reports the engine and its run. It never waits for a state write.
+func (e *Engine) Status() Status {
+	s := Status{State: "idle", Steps: len(e.steps), TotalPoints: procedure.CaptureCount(e.steps),
+		PointsCommitted: e.committedPoints.Load(), Polled: map[string]bool{}}
+	if v, ok := e.runs.snapshot(); ok {
+		s.Run, s.State, s.Reason, s.Since = v.ID.String(), string(v.State), v.Reason, v.Since
+		s.Step, s.Points, s.Phase, s.TargetPa = v.Step, v.Points, v.Phase, v.Target
+	}
+	if l := e.runs.last.Load(); l != nil {
+		s.Last = &LastRun{Run: l.ID.String(), State: string(l.State), Reason: l.Reason}
+	}
+	if t, ok := e.guard.Tripped(); ok {
+		s.Trip = t.Reason
+	}
+	if f := e.storeFault.Load(); f != nil {
+		s.StoreFault = *f
+	}
+	for _, p := range e.pollers() {
+		s.Instruments = append(s.Instruments, p.State())
+		s.Polled[p.Name] = !(p == e.dev && e.byPerson)
+	}
+	return s
+}
+
+// Healthy reports why the engine cannot do its job (the store cannot
+// write), or nil.
+func (e *Engine) Healthy() error {
+	if f := e.storeFault.Load(); f != nil {
+		return errors.New(*f)
+	}
+	return nil
+}
+
+// Start creates a run and starts its procedure. Starting is a person's
+// decision, so it clears a tripped safety guard.
+func (e *Engine) Start(label string) (store.RunID, error) {
+	select {
+	case <-e.ready:
+	default:
+		return 0, errors.New("start: the engine is not serving yet")
+	}
+	e.runs.mu.Lock()
+	defer e.runs.mu.Unlock()
+	if r := e.runs.active(); r != nil {
+		return 0, fmt.Errorf("start: %w (%s)", ErrBusy, r.id)
+	}
+	if err := e.Healthy(); err != nil {
+		return 0, fmt.Errorf("start: the store cannot write: %v", err)
+	}
+	if exp := e.cfg.Reference.ExpiresAt; !exp.IsZero() && e.clk.Now().After(exp.Add(24*time.Hour)) {
+		return 0, fmt.Errorf("start: the reference's calibration expired on %s; recalibrate it or correct reference.expires", e.cfg.Reference.Expires)
+	}
+	if e.cfg.Procedure.Decision == "" {
+		return 0, errors.New("start: no decision rule: set procedure.decision to simple, guarded or four-state (ILAC-G8:09/2019 asks that the rule be agreed before measuring)")
+	}
+	unfinished, err := e.st.Unfinished()
+	if err != nil {
+		return 0, fmt.Errorf("start: %w", err)
+	}
+	if len(unfinished) > 0 {
+		u := unfinished[len(unfinished)-1]
+		return 0, fmt.Errorf("start: the store holds the unfinished run %s (%s): restart the daemon to resume it, or end it with plateau stop", u.ID, u.State)
+	}
+	run, err := e.st.CreateFrozenRun(label, e.yaml, e.record)
+	if err != nil {
+		return 0, fmt.Errorf("start: %w", err)
+	}
+	if _, err := e.st.SetState(run.ID, store.StateRunning, "started"); err != nil {
+		return 0, fmt.Errorf("start: %w", err)
+	}
+	e.guard.Clear()
+	e.launch(run.ID, 0, false, "")
+	return run.ID, nil
+}
+
+// launch starts the procedure of run id from step; e.runs.mu must be held.
+func (e *Engine) launch(id store.RunID, step int, paused bool, why string) {
+	ctx, cancel := context.WithCancelCause(e.serveCtx)
+	r := &activeRun{id: id, cancel: cancel, done: make(chan struct{}), gate: newGate(paused, why)}
+	st := store.StateRunning
+	if paused {
+		st = store.StatePaused
+	}
+	e.runs.begin(r, runView{ID: id, State: st, Reason: why, Step: step, Since: e.clk.Now()})
+	e.samples.setRun(id)
+	go e.execute(ctx, r, step)
+}
+
+type stopRequest struct{ reason string }
+
+func (s *stopRequest) Error() string { return s.reason }
+
+// Stop ends the active run by an operator's decision; the source is vented.
+func (e *Engine) Stop(reason string) error {
+	r := e.runs.active()
+	if r == nil {
+		return ErrNoRun
+	}
+	if reason == "" {
+		reason = "stopped by operator"
+	}
+	r.cancel(&stopRequest{reason})
+	<-r.done
+	return nil
+}
+
+// Pause holds the run at the current step; the pressure is held where it is.
+func (e *Engine) Pause() error {
+	return e.pause("paused by operator; the pressure is held", slog.LevelInfo)
+}
+
+func (e *Engine) pause(why string, level slog.Level) error {
+	r := e.runs.active()
+	if r == nil {
+		return ErrNoRun
+	}
+	if !r.gate.set(true, why) {
+		return nil
+	}
+	err := e.runs.setState(r.id, store.StatePaused, why, e.clk.Now())
+	e.emit(r.id, level, "state", "", why, map[string]string{"state": string(store.StatePaused)})
+	return err
+}
+
+// Resume continues a paused run: a person has looked, so a tripped guard
+// is cleared. It is refused while the store cannot write.
+func (e *Engine) Resume() error {
+	r := e.runs.active()
+	if r == nil {
+		return ErrNoRun
+	}
+	if err := e.Healthy(); err != nil {
+		return fmt.Errorf("resume: the store still cannot write (%v): free space or mend the store first", err)
+	}
+	if n := e.samples.clearLost(); n > 0 {
+		e.emit(r.id, slog.LevelWarn, "store", "", fmt.Sprintf("%d samples taken while the store could not keep up were not kept; no point uses them", n), nil)
+	}
+	e.guard.Clear()
+	if !r.gate.set(false, "") {
+		return nil
+	}
+	if err := e.runs.setState(r.id, store.StateRunning, "resumed", e.clk.Now()); err != nil {
+		return err
+	}
+	e.emit(r.id, slog.LevelInfo, "state", "", "resumed", map[string]string{"state": string(store.StateRunning)})
+	return nil
+}
+
+// Enter passes an operator's dial reading to the device under test.
+func (e *Engine) Enter(value float64, unit string) error {
+	if e.enterer == nil {
+		return errors.New("the device under test is not read by an operator (link kind manual)")
+	}
+	if math.IsNaN(value) || math.IsInf(value, 0) {
+		return errors.New("the reading must be a finite number")
+	}
+	return e.enterer.Enter(value, unit, e.clk.Now())
+}
+
+// Wait blocks until the active run (if any) has ended, and returns its final state.
+func (e *Engine) Wait(ctx context.Context) (store.State, string) {
+	r := e.runs.active()
+	if r == nil {
+		return "", ""
+	}
+	select {
+	case <-r.done:
+		return r.final, r.reason
+	case <-ctx.Done():
+		return "", ctx.Err().Error()
+	}
+}
+
+// resumeUnfinished continues the newest run left running or paused, and
+// closes older unfinished ones as failed (only one run is ever active).
+func (e *Engine) resumeUnfinished() error {
+	runs, err := e.st.Unfinished()
+	if err != nil || len(runs) == 0 {
+		return err
+	}
+	for _, old := range runs[:len(runs)-1] {
+		reason := fmt.Sprintf("left unfinished when %s was started; closed at start-up", runs[len(runs)-1].ID)
+		if _, err := e.st.SetState(old.ID, store.StateFailed, reason); err != nil {
+			return fmt.Errorf("close the older unfinished run %s: %w", old.ID, err)
+		}
+		e.emit(old.ID, slog.LevelWarn, "state", "", fmt.Sprintf("run %s failed: %s", old.ID, reason), map[string]string{"state": string(store.StateFailed)})
+	}
+	r := runs[len(runs)-1]
+	c, err := decodeCursor(r)
+	if err != nil {
+		return err
+	}
+	var reason string
+	switch {
+	case c.Plan != "" && c.Plan != e.plan:
+		// The cursor counts steps of the plan the run started with; applied
+		// to another plan it would mix points of two procedures in one run.
+		reason = "the procedure in the configuration changed since this run started; its points are kept, start a new run"
+	case c.Identity != "" && e.identity != "" && c.Identity != e.identity:
+		reason = "the device under test or the reference in the configuration changed since this run started; its points are kept, start a new run"
+	}
+	if reason != "" {
+		if _, err := e.st.SetState(r.ID, store.StateFailed, reason); err != nil {
+			return err
+		}
+		e.emit(r.ID, slog.LevelError, "state", "", fmt.Sprintf("run %s not resumed: %s", r.ID, reason), map[string]string{"state": string(store.StateFailed)})
+		return nil
+	}
+	e.runs.mu.Lock()
+	e.launch(r.ID, c.Step, r.State == store.StatePaused, r.Reason)
+	e.runs.mu.Unlock()
+	total := len(e.steps)
+	msg := fmt.Sprintf("resuming %s at step %d of %d after a restart", r.ID, c.Step+1, total)
+	if total == 0 {
+		msg = fmt.Sprintf("resuming the free run %s after a restart", r.ID)
+	}
+	if r.State == store.StatePaused {
+		msg += " (still paused: " + r.Reason + ")"
+	}
+	e.emit(r.ID, slog.LevelInfo, "state", "", msg, nil)
+	return nil
+}
+
+// execute runs the procedure of r, then records how the run ended. A run
+// whose context ended because the daemon is shutting down is left as it is
+// in the store, to be resumed by the next start.
+func (e *Engine) execute(ctx context.Context, r *activeRun, from int) {
+	defer func() {
+		e.samples.setRun(0)
+		e.runs.end(r)
+		close(r.done)
+	}()
+	p := e.procedure(r)
+	err := p.Run(ctx, from)
+	cause := context.Cause(ctx)
+	var stop *stopRequest
+	e.ventQuietly()
+	switch {
+	case err == nil:
+		e.finish(r, store.StateFinished, "every step done", slog.LevelInfo)
+	case errors.As(cause, &stop):
+		e.finish(r, store.StateStopped, stop.reason, slog.LevelWarn)
+	case ctx.Err() != nil:
+		// Shutdown: keep the run resumable, but never leave an unattended
+		// bench under pressure; the resumed step approaches its point again.
+		r.final, r.reason = store.StateRunning, "interrupted by shutdown; source vented; resumes on next start"
+		e.emit(r.id, slog.LevelWarn, "state", "", r.reason, nil)
+	default:
+		e.finish(r, store.StateFailed, err.Error(), slog.LevelError)
+	}
+}
+
+func (e *Engine) finish(r *activeRun, st store.State, reason string, level slog.Level) {
+	r.final, r.reason = st, reason
+	_ = e.runs.setState(r.id, st, reason, e.clk.Now()) // logged there; the start-up closes a run left open
+	e.emit(r.id, level, "state", "", fmt.Sprintf("run %s %s: %s", r.id, st, reason), map[string]string{"state": string(st)})
+}
+
+func (e *Engine) ventQuietly() {
+	if e.source == nil {
+		return
+	}
+	for attempt := 1; attempt <= 3; attempt++ {
+		ctx, cancel := context.WithTimeout(context.Background(), 3*time.Second)
+		err := e.source.Vent(ctx)
+		cancel()
+		if err == nil {
+			return
+		}
+		e.log.Error("vent failed: vent the system by hand before disconnecting", "attempt", attempt, "err", err)
+	}
+}
+
+// procedure builds the procedure of run r on the engine's instruments.
+func (e *Engine) procedure(r *activeRun) *procedure.Procedure {
+	cfg := e.cfg
+	p := &procedure.Procedure{
+		Steps: e.steps,
+		Settings: procedure.Settings{
+			LowerPa: cfg.Device.LowerPa, UpperPa: cfg.Device.UpperPa, ResolutionPa: cfg.Device.ResolutionPa,
+			BandPa: cfg.Procedure.Settle.BandPa, Hold: cfg.Procedure.Hold, TopHold: cfg.Procedure.TopHold,
+			ExerciseHold: cfg.Procedure.ExerciseHold, Timeout: cfg.Procedure.Timeout,
+			OnTimeout: procedure.OnTimeout(cfg.Procedure.OnTimeout), Compare: procedure.Compare(cfg.Procedure.Compare),
+		},
+		Ref: e.ref, Dev: e.dev, Rec: &runRecorder{e: e, r: r}, Gate: r.gate,
+		Clock: e.clk, Tick: e.tick(), Format: e.fmtPa, Log: e.log.With("run", r.id.String()),
+	}
+	if e.source != nil {
+		p.Source = e.guard.Source()
+		if rc, ok := e.source.(drivers.Reacher); ok {
+			p.Reacher = rc
+		}
+	}
+	if e.byPerson {
+		p.Dial = e.dev
+	}
+	return p
+}
+
+// runRecorder is the procedure's record of one run.
+type runRecorder struct {
+	e *Engine
+	r *activeRun
+}
+
+func (rr *runRecorder) Captured() ([]analysis.Point, error) { return rr.e.st.Points(rr.r.id) }
+
+// Point commits a point once the samples of its windows are committed: a
+// point is never stored without the samples behind it.
+func (rr *runRecorder) Point(p analysis.Point) error {
+	e := rr.e
+	if err := e.samples.flush(context.Background(), 30*time.Second); err != nil {
+		e.storeTrouble(err)
+		return fmt.Errorf("the samples of %s could not be stored: %w", describePoint(p), err)
+	}
+	_, existed, err := e.st.AddPoint(rr.r.id, p)
+	if err != nil {
+		e.storeTrouble(err)
+		return fmt.Errorf("store point: %w", err)
+	}
+	if existed {
+		return nil
+	}
+	e.committedPoints.Add(1)
+	e.runs.update(func(v *runView) {
+		if v.ID == rr.r.id {
+			v.Points++
+		}
+	})
+	e.emit(rr.r.id, slog.LevelInfo, "point", "",
+		fmt.Sprintf("captured %s: reference %s, device %s (error %s)", describePoint(p), e.fmtPa(p.Reference.Mean), e.fmtPa(p.DUT.Mean), e.fmtPa(p.DUT.Mean-p.Reference.Mean)),
+		p)
+	return nil
+}
+
+func (rr *runRecorder) Cursor(step int) error {
+	b, _ := json.Marshal(cursor{Step: step, Plan: rr.e.plan, Identity: rr.e.identity})
+	if _, err := rr.e.st.SetCursor(rr.r.id, b); err != nil {
+		rr.e.storeTrouble(err)
+		return fmt.Errorf("store cursor: %w", err)
+	}
+	return nil
+}
+
+func (rr *runRecorder) Event(level slog.Level, typ, instrument, msg string, data any) {
+	rr.e.emit(rr.r.id, level, typ, instrument, msg, data)
+}
+
+func (rr *runRecorder) Progress(step, points int, target float64, phase string) {
+	rr.e.runs.update(func(v *runView) {
+		if v.ID == rr.r.id {
+			v.Step, v.Target, v.Phase = step, target, phase
+			if points >= 0 {
+				v.Points = points
+			}
+		}
+	})
+}
+
+func describePoint(p analysis.Point) string {
+	switch p.Kind {
+	case analysis.ZeroBefore, analysis.ZeroAfter:
+		return fmt.Sprintf("cycle %d %s", p.Cycle, p.Kind)
+	}
+	return fmt.Sprintf("cycle %d %s point %d", p.Cycle, p.Direction, p.Index+1)
+}

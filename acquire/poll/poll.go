@@ -1,0 +1,250 @@
+// Package poll reads one instrument at its interval. Every reading goes
+// first to the instrument's observer (the safety guard, for the reference),
+// synchronously and before anything else; then to the sample sink, which
+// must not wait; then, when good, into the instrument's settle detector.
+package poll
+
+import (
+	"context"
+	"log/slog"
+	"math"
+	"sync"
+	"time"
+
+	"plateau/acquire/settle"
+	"plateau/analysis"
+	"plateau/drivers"
+	"plateau/drivers/clock"
+)
+
+// Sink receives every reading, good or failed, for storage. It must return
+// at once: the poll loop never waits on storage.
+type Sink interface {
+	Sample(instrument string, r drivers.Reading, err error)
+}
+
+// Observer sees every reading before the sink and the detector do.
+type Observer func(drivers.Reading, error)
+
+// Poller reads one instrument and feeds its settle detector. Only good
+// readings enter the detector; failures are counted by reason.
+type Poller struct {
+	Name     string
+	gauge    drivers.Gauge
+	interval time.Duration
+	clk      clock.Clock
+	sink     Sink
+	first    Observer
+	log      *slog.Logger
+
+	mu       sync.Mutex
+	det      *settle.Detector
+	last     drivers.Reading
+	lastErr  error
+	reads    uint64
+	failures map[drivers.Kind]uint64
+	beat     time.Time     // wall time of the last completed read attempt
+	done     time.Time     // clock time of the last completed read attempt
+	cycle    time.Duration // clock time between the last two completed attempts
+	since    time.Time     // clock time from which samples count (after a pressure change)
+	down     bool          // the link is down (for link lost / restored events)
+	waiting  string        // what an instrument read by a person is waiting for
+	link     func(name string, down bool, err error)
+}
+
+// Options wire a poller.
+type Options struct {
+	Name     string
+	Gauge    drivers.Gauge
+	Interval time.Duration
+	Rules    settle.Rules
+	Clock    clock.Clock
+	Sink     Sink     // may be nil
+	First    Observer // may be nil
+	Log      *slog.Logger
+	// Link is told when the instrument's link goes down and comes back.
+	Link func(name string, down bool, err error)
+}
+
+// New prepares a poller; it polls once Run is called.
+func New(o Options) (*Poller, error) {
+	det, err := settle.New(o.Rules)
+	if err != nil {
+		return nil, err
+	}
+	if o.Log == nil {
+		o.Log = slog.New(slog.DiscardHandler)
+	}
+	p := &Poller{Name: o.Name, gauge: o.Gauge, interval: o.Interval, clk: o.Clock, sink: o.Sink, first: o.First,
+		log: o.Log, det: det, failures: map[drivers.Kind]uint64{}}
+	p.link = o.Link
+	return p, nil
+}
+
+// Interval is the configured poll interval.
+func (p *Poller) Interval() time.Duration { return p.interval }
+
+// Run polls until ctx ends.
+func (p *Poller) Run(ctx context.Context) {
+	for {
+		start := p.clk.Now()
+		r, err := p.gauge.Read(ctx)
+		if ctx.Err() != nil {
+			return
+		}
+		p.Record(r, err)
+		wait := p.interval - p.clk.Now().Sub(start)
+		if wait < p.interval/10 {
+			wait = p.interval / 10 // never spin on a slow instrument
+		}
+		select {
+		case <-ctx.Done():
+			return
+		case <-p.clk.After(wait):
+		}
+	}
+}
+
+// Read takes one reading now, outside the poll loop (an instrument read by
+// a person, once per point), and records it like a polled one.
+func (p *Poller) Read(ctx context.Context) (drivers.Reading, error) {
+	r, err := p.gauge.Read(ctx)
+	if ctx.Err() != nil {
+		return drivers.Reading{}, ctx.Err()
+	}
+	r, err = p.Record(r, err)
+	return r, err
+}
+
+// Record handles one reading: the observer first, then the sink, then the
+// detector. A value that is not a finite number is a failed read whatever
+// the driver said. It returns the reading and error as recorded.
+func (p *Poller) Record(r drivers.Reading, err error) (drivers.Reading, error) {
+	if r.Time.IsZero() {
+		r.Time = p.clk.Now() // a failed read is stored at the time it failed
+	}
+	if err == nil && (math.IsNaN(r.Pa) || math.IsInf(r.Pa, 0)) {
+		err = drivers.Fail(p.Name, drivers.KindBadReply, errNotFinite)
+	}
+	if err != nil && drivers.KindOf(err) == 0 {
+		// A driver that forgot to classify its error still must not
+		// produce a value; count it as a bad reply.
+		err = drivers.Fail(p.Name, drivers.KindBadReply, err)
+	}
+	if err != nil {
+		r.Pa, r.Raw = 0, 0
+	}
+	if p.first != nil {
+		p.first(r, err)
+	}
+	if p.sink != nil {
+		p.sink.Sample(p.Name, r, err)
+	}
+	p.mu.Lock()
+	p.beat = time.Now()
+	if now := p.clk.Now(); !p.done.IsZero() {
+		p.cycle, p.done = now.Sub(p.done), now
+	} else {
+		p.done = now
+	}
+	p.reads++
+	wasDown := p.down
+	if err != nil {
+		p.lastErr = err
+		p.failures[drivers.KindOf(err)]++
+		p.down = drivers.KindOf(err) == drivers.KindLinkDown
+	} else {
+		p.lastErr, p.down = nil, false
+		p.last = r
+		if !r.Time.Before(p.since) {
+			if aerr := p.det.Add(r.Time, r.Pa); aerr != nil {
+				p.log.Warn("reading not usable for settling", "err", aerr)
+			}
+		}
+	}
+	down := p.down
+	p.mu.Unlock()
+	if p.link != nil && down != wasDown {
+		p.link(p.Name, down, err)
+	}
+	return r, err
+}
+
+type notFinite struct{}
+
+func (notFinite) Error() string { return "the value is not a finite number" }
+
+var errNotFinite error = notFinite{}
+
+// Restart empties the detector after a pressure change: samples taken
+// before from are never part of a settled window.
+func (p *Poller) Restart(from time.Time, target float64, hasTarget bool) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.det.Reset()
+	p.since = from
+	if hasTarget {
+		p.det.SetTarget(target)
+	} else {
+		p.det.ClearTarget()
+	}
+}
+
+// SetWaiting says what an instrument read by a person is waiting for ("" when nothing).
+func (p *Poller) SetWaiting(what string) {
+	p.mu.Lock()
+	p.waiting = what
+	p.mu.Unlock()
+}
+
+// State is a snapshot for the procedure, status and metrics.
+type State struct {
+	Name     string            `json:"name"`
+	Last     drivers.Reading   `json:"last"`
+	LastErr  string            `json:"last_error,omitempty"`
+	Reads    uint64            `json:"reads"`
+	Failures map[string]uint64 `json:"failures"`
+	Settle   settle.Status     `json:"-"`
+	Settled  bool              `json:"settled"`
+	Why      string            `json:"why,omitempty"`
+	Window   analysis.Window   `json:"window"`
+	Beat     time.Time         `json:"-"`
+	// Every is how often readings arrive: the poll interval, or the time
+	// the last read took when the instrument is slower than that.
+	Every time.Duration `json:"-"`
+	// Waiting says what an instrument read by a person waits for; such an
+	// instrument is not down while it waits.
+	Waiting string `json:"waiting,omitempty"`
+}
+
+// State returns a snapshot.
+func (p *Poller) State() State {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	st := p.det.Status()
+	f := map[string]uint64{}
+	for k, n := range p.failures {
+		f[k.String()] = n
+	}
+	s := State{Name: p.Name, Last: p.last, Reads: p.reads, Failures: f, Settle: st,
+		Settled: st.Settled, Why: st.Why, Window: st.Window, Beat: p.beat, Every: max(p.interval, p.cycle), Waiting: p.waiting}
+	if p.lastErr != nil {
+		s.LastErr = p.lastErr.Error()
+	}
+	return s
+}
+
+// Live says whether a settled window is still current at now: its last
+// read succeeded and the window reaches to within about two readings (plus
+// slack) of now. A detector whose instrument stopped answering keeps its
+// last window, which must never be paired with a fresh one.
+func (s State) Live(now time.Time, slack time.Duration) bool {
+	return s.LastErr == "" && now.Sub(s.Window.End) <= 2*s.Every+slack
+}
+
+// Paired says whether a reference and a device state form a point at now:
+// both settled over shared windows and both live. Planned captures and free
+// runs use this one rule.
+func Paired(ref, dev State, now time.Time, slack time.Duration) bool {
+	return settle.Both(ref.Settle, dev.Settle) && ref.Live(now, slack) && dev.Live(now, slack)
+}
