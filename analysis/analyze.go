@@ -720,8 +720,8 @@ func budget(pr PointResult, rs []reading, dev Device, ref Reference, opt Options
 	} else {
 		b = append(b, notEvaluated("head_height", "no head correction configured"), notEvaluated("head_density", "no head correction configured"))
 	}
-	if a := ref.stability(pr.ReferenceMeanPa); a > 0 {
-		b = append(b, rect("reference_stability", a, math.Sqrt(3)))
+	if ref.StabilityPercentOfReading > 0 || ref.StabilityFloorPa > 0 {
+		b = append(b, rect("reference_stability", ref.stability(pr.ReferenceMeanPa), math.Sqrt(3)))
 	} else {
 		b = append(b, notEvaluated("reference_stability", "no stability since calibration configured"))
 	}

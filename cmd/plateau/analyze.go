@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"io/fs"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -32,6 +33,14 @@ type analyzeFlags struct {
 	lower, upper, resolution string
 	refUncertainty, refFloor string
 	refK                     float64
+	// Uncertainty budget and coverage.
+	coverage, refStability, refStabilityFloor, refResolution string
+	tempCoefficient, hysteresisLimit                         string
+	ambient                                                  string
+	k, referenceTemperature                                  float64
+	interpolation                                            bool
+	// How the run ended, for a table recorded elsewhere.
+	state, reason string
 }
 
 var renderers = map[string]func(io.Writer, report.Info, analysis.Result) error{
@@ -51,7 +60,17 @@ a report as text, JSON, CSV or a printable HTML page with charts.
 The device, the reference and the decision rule come from the configuration
 file; flags override single keys. Without a configuration file the flags
 --upper, --resolution, --class or --grade, --ref-uncertainty or --ref-floor
-and --rule are required (--lower defaults to 0).`,
+and --rule are required (--lower defaults to 0).
+
+There is no default decision rule: agree one with the customer before
+measuring (ILAC-G8:09/2019) and give it with --rule or procedure.decision.
+  simple      pass when every reading's |error| ≤ MPE
+  guarded     pass when |error| ≤ MPE − U
+  four-state  pass, conditional pass, conditional fail, fail (guard band U)
+
+The budget lists every term; a term without its data is printed as "not
+evaluated". --coverage student-t takes k from Student's t at 95.45 % for the
+effective degrees of freedom instead of the conventional k = 2.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return runAnalyze(cmd, args[0], f)
@@ -72,6 +91,18 @@ and --rule are required (--lower defaults to 0).`,
 	fl.StringVar(&f.refUncertainty, "ref-uncertainty", "", `reference expanded uncertainty, % of reading, e.g. "0.01 %" (overrides reference.uncertainty)`)
 	fl.StringVar(&f.refFloor, "ref-floor", "", `reference expanded uncertainty floor, e.g. "0.1 mbar" (overrides reference.floor)`)
 	fl.Float64Var(&f.refK, "ref-k", 0, "coverage factor of the reference certificate (overrides reference.coverage; default 2)")
+	fl.StringVar(&f.coverage, "coverage", "", `how k is chosen: "conventional" (k = 2, or --k) or "student-t" (effective degrees of freedom, 95.45 %)`)
+	fl.Float64Var(&f.k, "k", 0, "coverage factor of the conventional method (default 2)")
+	fl.StringVar(&f.refStability, "ref-stability", "", `reference drift since its calibration, half-width in % of reading, e.g. "0.005 %"`)
+	fl.StringVar(&f.refStabilityFloor, "ref-stability-floor", "", `reference drift since its calibration, constant half-width, e.g. "0.05 mbar"`)
+	fl.StringVar(&f.refResolution, "ref-resolution", "", `resolution of the reference, e.g. "0.001 bar"`)
+	fl.StringVar(&f.tempCoefficient, "temp-coefficient", "", `device temperature effect in % of span per kelvin, e.g. "0.04 %"`)
+	fl.Float64Var(&f.referenceTemperature, "reference-temperature", 20, "the device's reference temperature, °C (with --temp-coefficient)")
+	fl.StringVar(&f.ambient, "ambient", "", "ambient temperature during the run, °C, e.g. 23.5 (with --temp-coefficient)")
+	fl.StringVar(&f.hysteresisLimit, "hysteresis-limit", "", `hysteresis limit of the device's specification in % of span, e.g. "0.5 %" (EN 837-1 classes: the MPE)`)
+	fl.BoolVar(&f.interpolation, "interpolation-in-budget", false, "add the correction curve's interpolation term to every point's budget")
+	fl.StringVar(&f.state, "run-state", "", `how the recorded run ended when it did not finish, e.g. "stopped"`)
+	fl.StringVar(&f.reason, "run-reason", "", "why the recorded run did not finish (with --run-state)")
 	return cmd
 }
 
@@ -107,6 +138,10 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 	if err := f.apply(&dev, &ref, &opt); err != nil {
 		return err
 	}
+	if opt.Rule == "" {
+		return errors.New("no decision rule: give --rule simple, guarded or four-state (or procedure.decision in the configuration); " +
+			"ILAC-G8:09/2019 asks that the rule be agreed with the customer before measuring, so none is assumed")
+	}
 	u, err := f.displayUnit(cfg)
 	if err != nil {
 		return err
@@ -114,7 +149,9 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 	if dev.Unit == "" {
 		dev.Unit = u.Symbol
 	}
+	opt.Unit = u
 	info.Unit = u
+	info.Run.State, info.Run.Reason = f.state, f.reason
 	info.Run.Label = f.label
 	if info.Run.Label == "" {
 		info.Run.Label = filepath.Base(csvPath)
@@ -186,7 +223,8 @@ func readRecorded(path string) ([]analysis.Point, error) {
 	return points, nil
 }
 
-// missing names the flags that must stand in for an absent configuration.
+// missing names the flags that must stand in for an absent configuration;
+// the decision rule has a message of its own (runAnalyze).
 func (f analyzeFlags) missing() []string {
 	var m []string
 	for _, c := range []struct {
@@ -197,7 +235,6 @@ func (f analyzeFlags) missing() []string {
 		{"--resolution", f.resolution != ""},
 		{"--class or --grade", f.class != "" || f.grade != ""},
 		{"--ref-uncertainty or --ref-floor", f.refUncertainty != "" || f.refFloor != ""},
-		{"--rule", f.rule != ""},
 	} {
 		if !c.set {
 			m = append(m, c.name)
@@ -253,6 +290,68 @@ func (f analyzeFlags) apply(dev *analysis.Device, ref *analysis.Reference, opt *
 	}
 	if f.refK != 0 {
 		ref.K = f.refK
+	}
+	return f.applyBudget(dev, ref, opt)
+}
+
+// applyBudget lays the uncertainty-budget and coverage flags over the
+// configuration's values.
+func (f analyzeFlags) applyBudget(dev *analysis.Device, ref *analysis.Reference, opt *analysis.Options) error {
+	switch c := analysis.CoverageMethod(f.coverage); c {
+	case "":
+	case analysis.CoverageConventional, analysis.CoverageStudentT:
+		opt.Coverage = c
+	default:
+		return fmt.Errorf("--coverage %q: use conventional or student-t", f.coverage)
+	}
+	if f.k != 0 {
+		if opt.Coverage == analysis.CoverageStudentT {
+			return errors.New("--k and --coverage student-t both given: Student's t chooses k itself")
+		}
+		opt.CoverageFactor = f.k
+	}
+	for _, p := range []struct {
+		flag, value string
+		dst         *float64
+	}{
+		{"--ref-stability", f.refStability, &ref.StabilityPercentOfReading},
+		{"--temp-coefficient", f.tempCoefficient, &dev.TempCoefficient},
+		{"--hysteresis-limit", f.hysteresisLimit, &dev.Accuracy.HysteresisPercentOfSpan},
+	} {
+		if p.value == "" {
+			continue
+		}
+		q, err := units.ParseQuantity(p.value)
+		if err != nil || !q.Percent {
+			return fmt.Errorf("%s %q: give a percentage such as \"0.01 %%\"", p.flag, p.value)
+		}
+		*p.dst = q.Value
+	}
+	for _, p := range []struct {
+		flag, value string
+		dst         *float64
+	}{{"--ref-stability-floor", f.refStabilityFloor, &ref.StabilityFloorPa}, {"--ref-resolution", f.refResolution, &ref.ResolutionPa}} {
+		if p.value == "" {
+			continue
+		}
+		pa, err := pressureFlag(p.flag, p.value)
+		if err != nil {
+			return err
+		}
+		*p.dst = pa
+	}
+	if f.tempCoefficient != "" {
+		dev.ReferenceTemperatureC = f.referenceTemperature
+	}
+	if f.ambient != "" {
+		a, err := strconv.ParseFloat(strings.TrimSpace(strings.TrimSuffix(strings.TrimSpace(f.ambient), "°C")), 64)
+		if err != nil || math.IsNaN(a) || math.IsInf(a, 0) {
+			return fmt.Errorf("--ambient %q: give a temperature in °C such as 23.5", f.ambient)
+		}
+		opt.AmbientC = &a
+	}
+	if f.interpolation {
+		opt.InterpolationInBudget = true
 	}
 	return nil
 }

@@ -31,6 +31,7 @@ func TestAnalyze(t *testing.T) {
 	// No config file at the default path: everything comes from the flags.
 	abs := filepath.Join(mustWd(t), deadweight)
 	left := filepath.Join(mustWd(t), deadweightLeft)
+	oneOut := filepath.Join(mustWd(t), "../../testdata/recorded/one-direction-out.csv")
 	t.Chdir(t.TempDir())
 	flags := []string{"--upper", "16 bar", "--resolution", "0.05 bar", "--class", "1", "--ref-uncertainty", "0.015 %"}
 
@@ -43,11 +44,30 @@ func TestAnalyze(t *testing.T) {
 		{"text, simple rule", append([]string{"analyze", abs, "--rule", "simple"}, flags...),
 			[]string{"Range                  0.000 bar … 16.000 bar", "12.000     12.001  12.113  0.111", "VERDICT: PASS", "§4.2.1"}, ""},
 		{"csv, four-state", append([]string{"analyze", abs, "--rule", "four-state", "--format", "csv"}, flags...),
-			[]string{"point,nominal_bar,", "\n4,12,12.0011,12.1125,0.1114,", ",0.0938317251696,0.69625,2,88.8807414876,conditional-pass\n"}, ""},
+			[]string{"point,nominal_bar,", "\n4,12,12.0011,12.1125,0.1114,",
+				",0.0938317251696,0.0989,0.1489,0.69625,2,,88.8807414876,2.41807724941,pass,conditional-pass,pass,conditional-pass\n"}, ""},
 		{"psi display", append([]string{"analyze", abs, "--rule", "simple", "--unit", "psi"}, flags...),
 			[]string{"pressures in psi"}, ""},
-		{"missing flags named", []string{"analyze", abs, "--class", "1"},
-			nil, "--upper, --resolution, --ref-uncertainty or --ref-floor, --rule"},
+		{"missing flags named", []string{"analyze", abs, "--class", "1", "--rule", "simple"},
+			nil, "--upper, --resolution, --ref-uncertainty or --ref-floor"},
+		// ILAC-G8:09/2019 asks that the rule be agreed before measuring: none is assumed.
+		{"no rule", append([]string{"analyze", abs}, flags...), nil,
+			"no decision rule: give --rule simple, guarded or four-state (or procedure.decision in the configuration); ILAC-G8:09/2019"},
+		// The table of the issue: the falling reading at 8 bar is out of
+		// class although the mean is within (EN 837-1 judges both directions,
+		// REFERENCES.md §2.1 [M]); the message is in bar, numbered as the table.
+		{"one direction out", []string{"analyze", oneOut, "--rule", "simple", "--upper", "16 bar", "--resolution", "0.01 bar", "--class", "1", "--ref-uncertainty", "0.01 %"},
+			[]string{"VERDICT: FAIL", "3    8.000      8.000   8.155  0.155", "point 3 (8 bar): the descending readings fail (cycle 1 error +0.21 bar, MPE 0.16 bar"}, ""},
+		{"student t", append([]string{"analyze", abs, "--rule", "simple", "--coverage", "student-t"}, flags...),
+			[]string{"ν_eff", "Student's t"}, ""},
+		{"k and student t", append([]string{"analyze", abs, "--rule", "simple", "--coverage", "student-t", "--k", "2.2"}, flags...),
+			nil, "--k and --coverage student-t"},
+		{"budget flags", append([]string{"analyze", abs, "--rule", "simple", "--ref-stability", "0.005 %", "--ref-resolution", "0.0001 bar",
+			"--temp-coefficient", "0.04 %", "--ambient", "23", "--interpolation-in-budget", "--run-state", "stopped", "--run-reason", "power failed at 12 bar"}, flags...),
+			[]string{"reference stability since calibration        0.00000        0.00012", "temperature effect on the device        0.01109",
+				"resolution of the reference        0.00003", "interpolation of the correction curve        0.00934", "Run state              STOPPED: power failed at 12 bar"}, ""},
+		{"bad ambient", append([]string{"analyze", abs, "--rule", "simple", "--ambient", "warm"}, flags...), nil, `--ambient "warm"`},
+		{"bad stability", append([]string{"analyze", abs, "--rule", "simple", "--ref-stability", "1 bar"}, flags...), nil, `--ref-stability "1 bar"`},
 		{"class and grade", append([]string{"analyze", abs, "--rule", "simple", "--grade", "2A"}, flags...),
 			nil, "--class and --grade both given"},
 		{"bad rule", append([]string{"analyze", abs, "--rule", "lenient"}, flags...), nil, `--rule "lenient"`},
