@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"math"
+	"slices"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -218,5 +219,85 @@ func TestRateMeter(t *testing.T) {
 	}
 	if r := m.Rate(); math.Abs(r.PerSecond-2) > 1e-9 || !r.Last.Equal(at) || r.Reads != 140 {
 		t.Errorf("after a slow-down: %+v, want 2/s", r)
+	}
+}
+
+// Waiting requests get the line in the order they asked, except that an
+// urgent one (a vent) goes ahead of every ordinary one still waiting.
+func TestBusOrderAndUrgent(t *testing.T) {
+	b := NewBus(0)
+	defer b.Close()
+	held := make(chan struct{})
+	release := make(chan struct{})
+	go b.Do(context.Background(), func() error { close(held); <-release; return nil })
+	<-held
+
+	var mu sync.Mutex
+	var order []string
+	queue := func(name string, urgent bool, wg *sync.WaitGroup) {
+		defer wg.Done()
+		ctx := context.Background()
+		acquire := b.Acquire
+		if urgent {
+			acquire = b.AcquireUrgent
+		}
+		if err := acquire(ctx); err != nil {
+			t.Error(err)
+			return
+		}
+		mu.Lock()
+		order = append(order, name)
+		mu.Unlock()
+		b.Release()
+	}
+	var wg sync.WaitGroup
+	for i, name := range []string{"read 1", "setpoint", "read 2", "vent", "read 3"} {
+		wg.Add(1)
+		go queue(name, name == "vent", &wg)
+		// Each asks after the one before (the queue is what is tested, not goroutine start-up).
+		waitQueued(t, b, i+1)
+	}
+	close(release)
+	wg.Wait()
+	want := []string{"vent", "read 1", "setpoint", "read 2", "read 3"}
+	if !slices.Equal(order, want) {
+		t.Errorf("order %v, want %v", order, want)
+	}
+}
+
+// waitQueued waits until n requests wait for the line.
+func waitQueued(t *testing.T, b *Bus, n int) {
+	t.Helper()
+	for deadline := time.Now().Add(5 * time.Second); time.Now().Before(deadline); time.Sleep(time.Millisecond) {
+		b.mu.Lock()
+		k := len(b.urgent) + len(b.normal)
+		b.mu.Unlock()
+		if k >= n {
+			return
+		}
+	}
+	t.Fatalf("%d requests did not queue", n)
+}
+
+// Close fails every waiting request and waits for the one on the wire.
+func TestBusCloseFailsWaiters(t *testing.T) {
+	b := NewBus(0)
+	held := make(chan struct{})
+	var finished atomic.Bool
+	go b.Do(context.Background(), func() error { close(held); time.Sleep(30 * time.Millisecond); finished.Store(true); return nil })
+	<-held
+	errs := make(chan error, 3)
+	for range 3 {
+		go func() { errs <- b.Do(context.Background(), func() error { t.Error("ran after Close"); return nil }) }()
+	}
+	waitQueued(t, b, 3)
+	b.Close()
+	if !finished.Load() {
+		t.Error("Close returned before the running request finished")
+	}
+	for range 3 {
+		if err := <-errs; !errors.Is(err, ErrBusClosed) {
+			t.Errorf("waiter: %v, want ErrBusClosed", err)
+		}
 	}
 }

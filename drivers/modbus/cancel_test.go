@@ -25,13 +25,18 @@ import (
 type countingServer struct {
 	regs     map[uint16]uint16 // holding and input registers; absent ones read 0
 	requests atomic.Int64
+	mu       sync.Mutex
+	order    []string // what arrived, in order: "coil", "write", "read"
 	holdOnce sync.Once
 	hold     chan struct{}
 	held     chan struct{} // closed when the held request has arrived
 }
 
-func (s *countingServer) arrive() {
+func (s *countingServer) arrive(what string) {
 	s.requests.Add(1)
+	s.mu.Lock()
+	s.order = append(s.order, what)
+	s.mu.Unlock()
 	s.holdOnce.Do(func() {
 		if s.hold != nil {
 			close(s.held)
@@ -41,22 +46,26 @@ func (s *countingServer) arrive() {
 }
 
 func (s *countingServer) HandleCoils(r *mb.CoilsRequest) ([]bool, error) {
-	s.arrive()
+	s.arrive("coil")
 	return make([]bool, r.Quantity), nil
 }
 
 func (s *countingServer) HandleDiscreteInputs(r *mb.DiscreteInputsRequest) ([]bool, error) {
-	s.arrive()
+	s.arrive("read")
 	return make([]bool, r.Quantity), nil
 }
 
 func (s *countingServer) HandleHoldingRegisters(r *mb.HoldingRegistersRequest) ([]uint16, error) {
-	s.arrive()
+	if r.IsWrite {
+		s.arrive("write")
+		return nil, nil
+	}
+	s.arrive("read")
 	return s.words(r.Addr, r.Quantity), nil
 }
 
 func (s *countingServer) HandleInputRegisters(r *mb.InputRegistersRequest) ([]uint16, error) {
-	s.arrive()
+	s.arrive("read")
 	return s.words(r.Addr, r.Quantity), nil
 }
 
@@ -187,6 +196,44 @@ func TestQueuedSetpointsCancelledNeverReachTheWire(t *testing.T) {
 	}
 	if err := s.Vent(context.Background()); err != nil || srv.requests.Load() != 2 {
 		t.Errorf("vent after the cancel: %v (requests %d)", err, srv.requests.Load())
+	}
+}
+
+// A vent does not wait behind queued setpoints and reads: it is next on the
+// wire after the request already there.
+func TestVentGoesAheadOfQueuedRequests(t *testing.T) {
+	srv := &countingServer{hold: make(chan struct{}), held: make(chan struct{})}
+	s := sourceOn(t, startCounting(t, srv))
+	first := make(chan error, 1)
+	go func() { _, err := s.Read(context.Background()); first <- err }()
+	<-srv.held
+	var wg sync.WaitGroup
+	queue := func(do func() error) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			if err := do(); err != nil {
+				t.Error(err)
+			}
+		}()
+	}
+	ctx := context.Background()
+	for range 5 {
+		queue(func() error { return s.SetPoint(ctx, 6e5) })
+		queue(func() error { _, err := s.Read(ctx); return err })
+	}
+	time.Sleep(50 * time.Millisecond) // the ten are queued by now
+	queue(func() error { return s.Vent(ctx) })
+	time.Sleep(20 * time.Millisecond)
+	close(srv.hold)
+	if err := <-first; err != nil {
+		t.Fatal(err)
+	}
+	wg.Wait()
+	srv.mu.Lock()
+	defer srv.mu.Unlock()
+	if len(srv.order) != 12 || srv.order[1] != "coil" {
+		t.Errorf("order on the wire %v: want the vent right after the first read", srv.order)
 	}
 }
 

@@ -161,8 +161,9 @@ const (
 // op is one exchange with one unit, described by value rather than by a
 // closure so that a read allocates nothing of plateau's own.
 type op struct {
-	code  opCode
-	unit  uint8
+	code   opCode
+	urgent bool // served before every ordinary request waiting for the line
+	unit   uint8
 	table mb.RegType
 	addr  uint16
 	n     uint16   // registers to read
@@ -219,7 +220,11 @@ func (o *op) send(c *mb.ModbusClient) (r result, err error) {
 // run holds the line (never starting when ctx has ended) and executes o
 // with connect, retries and reconnect.
 func (l *link) run(ctx context.Context, o *op) (result, error) {
-	if err := l.bus.Acquire(ctx); err != nil {
+	acquire := l.bus.Acquire
+	if o.urgent {
+		acquire = l.bus.AcquireUrgent
+	}
+	if err := acquire(ctx); err != nil {
 		return result{}, err
 	}
 	defer l.bus.Release()

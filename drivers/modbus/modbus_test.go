@@ -142,8 +142,9 @@ func TestSlowPeerTimesOut(t *testing.T) {
 	// another URL) gets the answer from the same slow peer, which serves one
 	// connection at a time.
 	g.Close()
-	r, err := mustOpen(t, inst("ref2", config.LinkModbusTCP, "localhost:"+strconv.Itoa(port),
-		config.ValueRead{Register: 1, Type: "uint16"})).Read(ctxT(t))
+	patient := inst("ref2", config.LinkModbusTCP, "localhost:"+strconv.Itoa(port), config.ValueRead{Register: 1, Type: "uint16"})
+	patient.Link.Timeout = 2 * time.Second // the peer first finishes the 300 ms of the abandoned request
+	r, err := mustOpen(t, patient).Read(ctxT(t))
 	if err != nil || r.Raw != 54321 {
 		t.Errorf("patient read: %v %v", r.Raw, err)
 	}

@@ -83,12 +83,15 @@ func (s *Source) SetPoint(ctx context.Context, pa float64) error {
 	return s.write(ctx, &op{code: opWriteRegisters, unit: s.unit, addr: s.val.addr, words: words})
 }
 
-// Vent opens the controller to atmosphere.
+// Vent opens the controller to atmosphere. It goes ahead of every ordinary
+// request waiting for the line (reads of other units, a queued setpoint),
+// after the one on the wire. Like any request it is not sent once ctx has
+// ended: vent with a context of its own, not one a shutdown cancels.
 func (s *Source) Vent(ctx context.Context) error {
 	if s.ventCoil >= 0 {
-		return s.write(ctx, &op{code: opWriteCoil, unit: s.unit, addr: uint16(s.ventCoil)})
+		return s.write(ctx, &op{code: opWriteCoil, urgent: true, unit: s.unit, addr: uint16(s.ventCoil)})
 	}
-	return s.write(ctx, &op{code: opWriteRegister, unit: s.unit, addr: uint16(s.ventRegister), value: s.ventValue})
+	return s.write(ctx, &op{code: opWriteRegister, urgent: true, unit: s.unit, addr: uint16(s.ventRegister), value: s.ventValue})
 }
 
 // Reached reads the controller's "setpoint reached" discrete input. Without
