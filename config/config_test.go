@@ -162,16 +162,27 @@ func TestEmptyFileNeedsInstruments(t *testing.T) {
 }
 
 func FuzzParse(f *testing.F) {
-	for _, s := range []string{"", "device: {upper: 16 bar}", "instruments: [1, 2]", "a: [", "procedure: {points: 3}"} {
+	for _, s := range []string{"", "device: {upper: 16 bar}", "instruments: [1, 2]", "a: [", "procedure: {points: 3}",
+		"a: &x {b: *x}", "<<: {store: {path: x}}", "procedure: {cycles: .nan}"} {
 		f.Add([]byte(s))
 	}
-	if data, err := os.ReadFile("../testdata/config/sim.yaml"); err == nil {
-		f.Add(data)
+	files, _ := filepath.Glob("../testdata/config/*.yaml")
+	bad, _ := filepath.Glob("../testdata/config/bad/*.yaml")
+	for _, path := range append(files, bad...) {
+		if data, err := os.ReadFile(path); err == nil {
+			f.Add(data)
+		}
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
 		cfg, err := Parse(data, "fuzz.yaml")
 		if err == nil && cfg == nil {
 			t.Fatal("nil config without error")
+		}
+		if p, ok := AsProblems(err); ok && p.Errors() == 0 {
+			t.Fatalf("refused without an error: %v", p)
+		}
+		if err == nil && len(cfg.Devices) == 0 {
+			t.Fatal("accepted without a device")
 		}
 	})
 }

@@ -192,7 +192,14 @@ func toDuration(data any) (any, error) {
 	return nil, fmt.Errorf("expected a duration such as 30s, found %s", describe(data))
 }
 
-func fmtNum(f float64) string { return strconv.FormatFloat(f, 'f', -1, 64) }
+// fmtNum writes a number as a person would type it; huge ones in
+// exponent form rather than as hundreds of digits.
+func fmtNum(f float64) string {
+	if math.Abs(f) >= 1e15 {
+		return strconv.FormatFloat(f, 'g', -1, 64)
+	}
+	return strconv.FormatFloat(f, 'f', -1, 64)
+}
 
 // describe names a decoded YAML value in plain words.
 func describe(data any) string {

@@ -2,6 +2,21 @@ package config
 
 import "time"
 
+// CompleteInstrument gives an instrument built in code (such as the
+// simulator's, made after Load) the defaults and resolved values that Load
+// gives the file's, so that no driver needs defaults of its own. It
+// returns the problems with the values it could not resolve.
+func CompleteInstrument(in *Instrument) error {
+	instrumentDefaults(in)
+	p := newProblems("instrument " + in.Name)
+	in.resolve(p, "instrument")
+	if p.Len() > 0 {
+		p.sort()
+		return p
+	}
+	return nil
+}
+
 // Roles an instrument can play on the bench.
 const (
 	RoleReference = "reference" // the reference standard

@@ -5,7 +5,9 @@ import (
 	"io"
 	"os"
 	"reflect"
+	"regexp"
 	"sort"
+	"strconv"
 	"strings"
 	"unicode/utf8"
 
@@ -59,7 +61,8 @@ func Parse(data []byte, name string) (*Config, error) {
 	}
 	var root yaml.Node
 	if err := yaml.Unmarshal(data, &root); err != nil {
-		return nil, fmt.Errorf("%s: %s", name, strings.TrimPrefix(err.Error(), "yaml: "))
+		p.add(syntaxProblem(err))
+		return nil, p
 	}
 	tree := map[string]any{}
 	if len(root.Content) > 0 {
@@ -106,6 +109,19 @@ func Parse(data []byte, name string) (*Config, error) {
 	}
 	cfg.Warnings = p.Warnings()
 	return &cfg, nil
+}
+
+var yamlLine = regexp.MustCompile(`^(?:yaml: )?line (\d+): (.*)$`)
+
+// syntaxProblem turns the YAML parser's complaint into a problem on its line.
+func syntaxProblem(err error) Problem {
+	msg := strings.TrimPrefix(err.Error(), "yaml: ")
+	q := Problem{Msg: "cannot be read as YAML: " + msg}
+	if m := yamlLine.FindStringSubmatch(err.Error()); m != nil {
+		q.Line, _ = strconv.Atoi(m[1])
+		q.Msg = "cannot be read as YAML: " + m[2] + " (look at the indentation and the brackets on this line and the one before)"
+	}
+	return q
 }
 
 // invalidUTF8 finds the first byte sequence that is not UTF-8 and says
@@ -190,7 +206,8 @@ const maxWalked = 2_000_000
 // already given at this level (and their lines) to catch repeats; a merge
 // key (<<: *anchor) brings in keys that the mapping itself may override.
 func walkMapping(n *yaml.Node, t reflect.Type, path string, p *Problems, out map[string]any, seen map[string]int) {
-	fields := fieldsOf(t)
+	keys := p.keysOf(t)
+	fields := keys.types
 	var merges []*yaml.Node
 	for i := 0; i+1 < len(n.Content); i += 2 {
 		k, val := n.Content[i], n.Content[i+1]
@@ -208,7 +225,7 @@ func walkMapping(n *yaml.Node, t reflect.Type, path string, p *Problems, out map
 		p.lines[strings.ToLower(key)] = k.Line
 		ft, ok := fields[name]
 		if !ok {
-			p.add(Problem{Line: k.Line, Key: key, Msg: unknownKey(name, fields)})
+			p.add(Problem{Line: k.Line, Key: key, Msg: keys.unknown(name)})
 			continue
 		}
 		if v := walk(val, ft, key, p); v != nil {
@@ -244,16 +261,32 @@ func walkMapping(n *yaml.Node, t reflect.Type, path string, p *Problems, out map
 	}
 }
 
-func unknownKey(name string, fields map[string]reflect.Type) string {
-	names := make([]string, 0, len(fields))
-	for f := range fields {
-		names = append(names, f)
+// structKeys are the keys of one struct, worked out once per Parse.
+type structKeys struct {
+	types  map[string]reflect.Type
+	sorted []string
+	list   string // "a, b, c"
+}
+
+func (p *Problems) keysOf(t reflect.Type) *structKeys {
+	if k, ok := p.structs[t]; ok {
+		return k
 	}
-	sort.Strings(names)
-	if s := closest(name, names); s != "" {
+	k := &structKeys{types: fieldsOf(t)}
+	for f := range k.types {
+		k.sorted = append(k.sorted, f)
+	}
+	sort.Strings(k.sorted)
+	k.list = strings.Join(k.sorted, ", ")
+	p.structs[t] = k
+	return k
+}
+
+func (k *structKeys) unknown(name string) string {
+	if s := closest(name, k.sorted); s != "" {
 		return fmt.Sprintf("unknown key; did you mean %q?", s)
 	}
-	return "unknown key; allowed here: " + strings.Join(names, ", ")
+	return "unknown key; allowed here: " + k.list
 }
 
 // fieldsOf maps the keys of a struct (its mapstructure tags, squashed

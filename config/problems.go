@@ -3,6 +3,7 @@ package config
 import (
 	"errors"
 	"fmt"
+	"reflect"
 	"sort"
 	"strings"
 )
@@ -53,9 +54,13 @@ func (q Problem) String() string {
 	return b.String()
 }
 
-// maxListed bounds the problems Error prints: a file of ten thousand
-// unknown keys is refused with the first of them and a count.
-const maxListed = 100
+// maxListed bounds the problems Error prints, maxKept those kept at all:
+// a file of ten thousand unknown keys is refused with the first of them
+// and a count, without holding ten thousand messages.
+const (
+	maxListed = 100
+	maxKept   = 1000
+)
 
 // Problems collects every problem of one file; it is the error Load returns
 // when at least one of them is not a warning.
@@ -63,23 +68,28 @@ type Problems struct {
 	File string
 	List []Problem
 
-	lines  map[string]int    // lower-case key path → line in the file
-	env    map[string]string // lower-case key path → PLATEAU_* variable that set it
-	envVal map[string]string // lower-case key path → the variable's value
-	failed map[string]bool   // keys whose value could not be decoded
-	walked int               // YAML values walked, for the alias bound
-	seen   map[Problem]bool
+	lines   map[string]int    // lower-case key path → line in the file
+	env     map[string]string // lower-case key path → PLATEAU_* variable that set it
+	envVal  map[string]string // lower-case key path → the variable's value
+	failed  map[string]bool   // keys whose value could not be decoded
+	walked  int               // YAML values walked, for the alias bound
+	seen    map[Problem]bool
+	// dropped counts problems beyond maxKept, droppedErrors those of them
+	// that are not warnings.
+	dropped, droppedErrors int
+	structs map[reflect.Type]*structKeys
 }
 
 func newProblems(file string) *Problems {
-	return &Problems{File: file, lines: map[string]int{}, env: map[string]string{}, envVal: map[string]string{}, failed: map[string]bool{}, seen: map[Problem]bool{}}
+	return &Problems{File: file, lines: map[string]int{}, env: map[string]string{}, envVal: map[string]string{}, failed: map[string]bool{}, seen: map[Problem]bool{}, structs: map[reflect.Type]*structKeys{}}
 }
 
-func (p *Problems) Len() int { return len(p.List) }
+// Len counts every problem found, kept in List or not.
+func (p *Problems) Len() int { return len(p.List) + p.dropped }
 
 // Errors counts the problems that are not warnings.
 func (p *Problems) Errors() int {
-	n := 0
+	n := p.droppedErrors
 	for _, q := range p.List {
 		if !q.Warning {
 			n++
@@ -115,7 +125,7 @@ func (p *Problems) sort() {
 			return a.Env < b.Env
 		}
 		if a.Key != b.Key {
-			return a.Key < b.Key
+			return keyLess(a.Key, b.Key)
 		}
 		if a.Warning != b.Warning {
 			return !a.Warning
@@ -130,11 +140,11 @@ func (p *Problems) Error() string {
 	for i, q := range p.List[:n] {
 		out[i] = q.String()
 	}
-	if len(p.List) > n {
-		out = append(out, fmt.Sprintf("… and %d more", len(p.List)-n))
+	if p.Len() > n {
+		out = append(out, fmt.Sprintf("… and %d more", p.Len()-n))
 	}
-	head := fmt.Sprintf("%d problem(s) in %s:\n  ", len(p.List), p.File)
-	if w := len(p.List) - p.Errors(); w > 0 {
+	head := fmt.Sprintf("%d problem(s) in %s:\n  ", p.Len(), p.File)
+	if w := p.Len() - p.Errors(); w > 0 {
 		head = fmt.Sprintf("%d problem(s) and %d warning(s) in %s:\n  ", p.Errors(), w, p.File)
 	}
 	return head + strings.Join(out, "\n  ")
@@ -154,8 +164,48 @@ func (p *Problems) add(q Problem) {
 	if p.seen[q] {
 		return // a shared value judged once for each device that uses it
 	}
+	if len(p.List) >= maxKept {
+		p.dropped++
+		if !q.Warning {
+			p.droppedErrors++
+		}
+		return
+	}
 	p.seen[q] = true
 	p.List = append(p.List, q)
+}
+
+// keyLess orders key paths with list indices by number: points[2]
+// before points[10].
+func keyLess(a, b string) bool {
+	for a != "" && b != "" {
+		if isDigit(a[0]) && isDigit(b[0]) {
+			i, j := digits(a), digits(b)
+			if i != j {
+				return i < j // no leading zeros in indices: shorter is smaller
+			}
+			if a[:i] != b[:j] {
+				return a[:i] < b[:j]
+			}
+			a, b = a[i:], b[j:]
+			continue
+		}
+		if a[0] != b[0] {
+			return a[0] < b[0]
+		}
+		a, b = a[1:], b[1:]
+	}
+	return len(a) < len(b)
+}
+
+func isDigit(c byte) bool { return c >= '0' && c <= '9' }
+
+func digits(s string) int {
+	n := 0
+	for n < len(s) && isDigit(s[n]) {
+		n++
+	}
+	return n
 }
 
 // parentKey strips the last part of a key path: "a.b[2].c" → "a.b[2]" → "a.b" → "a" → "".

@@ -2,42 +2,122 @@ package main
 
 import (
 	"fmt"
+	"io"
+	"math"
+	"os"
+	"strconv"
+	"strings"
 
 	"github.com/spf13/cobra"
 
+	"plateau/analysis/units"
 	"plateau/config"
 )
 
 func init() { register(newCheckCmd) }
+
+// checkFound is check's exit status when it finds anything, errors or
+// warnings: a script can tell "clean" (0) from "look at this" (2) and from
+// check itself failing (1, e.g. the file cannot be read).
+const checkFound = 2
+
+// exitProcess ends the process; main's error path always gives status 1.
+var exitProcess = os.Exit
 
 func newCheckCmd() *cobra.Command {
 	return &cobra.Command{
 		Use:   "check",
 		Short: "Validate the configuration file and summarise what it describes",
 		Long: `check reads the configuration file, applies defaults and PLATEAU_* environment
-overrides, and reports every problem at once with its line and key. It exits
-non-zero when anything is wrong.`,
+overrides, and reports every problem at once with its line and key (or the
+variable it came from), then what the file describes.
+
+Exit status: 0 when the file is clean, 2 when check found errors or warnings
+(an expired reference is a warning here; run and start refuse it), 1 when
+the file cannot be read at all.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
+			out := cmd.OutOrStdout()
 			cfg, err := config.Load(configPath)
+			if p, ok := config.AsProblems(err); ok {
+				fmt.Fprintln(out, p.Error())
+				exitProcess(checkFound)
+				return nil
+			}
 			if err != nil {
 				return err
 			}
-			out := cmd.OutOrStdout()
-			d := cfg.Device
-			fmt.Fprintf(out, "%s: OK\n", cfg.File)
-			fmt.Fprintf(out, "  device under test  %s, %s … %s, resolution %s\n", orDash(d.ID), d.Lower, d.Upper, d.Resolution)
-			fmt.Fprintf(out, "  reference          %s, U = %s of reading + %s (k = %g)\n", orDash(cfg.Reference.ID), cfg.Reference.Uncertainty, cfg.Reference.Floor, cfg.Reference.Coverage)
-			for _, in := range cfg.Instruments {
-				fmt.Fprintf(out, "  instrument         %-12s %-9s %s %s\n", in.Name, in.Role, in.Link.Kind, in.Link.Address)
+			if len(cfg.Warnings) > 0 {
+				fmt.Fprintf(out, "%d warning(s) in %s:\n", len(cfg.Warnings), cfg.File)
+				for _, w := range cfg.Warnings {
+					fmt.Fprintf(out, "  %s\n", w)
+				}
+			} else {
+				fmt.Fprintf(out, "%s: OK\n", cfg.File)
 			}
-			p := cfg.Procedure
-			fmt.Fprintf(out, "  procedure          %s: %d points × %d cycles, %d exercise cycles, decision rule %s\n",
-				p.Mode, len(p.PointsPa), p.Cycles, p.Exercise, p.Decision)
-			fmt.Fprintf(out, "  store              %s\n", cfg.Store.Path)
+			describe(out, cfg)
+			if len(cfg.Warnings) > 0 {
+				exitProcess(checkFound)
+			}
 			return nil
 		},
 	}
+}
+
+// describe prints what the configuration sets up, pressures in fixed
+// notation with the digits the device's resolution supports.
+func describe(out io.Writer, cfg *config.Config) {
+	for _, dut := range cfg.Devices {
+		d := dut.Device
+		name := ""
+		if len(cfg.Devices) > 1 {
+			name = " " + dut.Instrument
+		}
+		fmt.Fprintf(out, "  device under test%s  %s, %s … %s, resolution %s\n", name, orDash(d.ID),
+			fixed(d.LowerPa, d), fixed(d.UpperPa, d), fixed(d.ResolutionPa, d))
+	}
+	r := cfg.Reference
+	fmt.Fprintf(out, "  reference          %s, U = %s of reading + %s (k = %s)\n", orDash(r.ID), r.Uncertainty, r.Floor,
+		strconv.FormatFloat(r.Coverage, 'f', -1, 64))
+	if !r.ExpiresAt.IsZero() {
+		fmt.Fprintf(out, "  calibrated until   %s\n", r.ExpiresAt.Format("2006-01-02"))
+	}
+	for _, in := range cfg.Instruments {
+		fmt.Fprintf(out, "  instrument         %-12s %-9s %s %s\n", in.Name, in.Role, in.Link.Kind, in.Link.Address)
+	}
+	p := cfg.Procedure
+	fmt.Fprintf(out, "  procedure          %s: %d points × %d cycles, %d exercise cycles, decision rule %s\n",
+		p.Mode, len(p.PointsPa), p.Cycles, p.Exercise, p.Decision)
+	if len(p.PointsPa) > 0 {
+		pts := make([]string, len(p.PointsPa))
+		for i, pa := range p.PointsPa {
+			pts[i] = fixed(pa, cfg.Device)
+		}
+		fmt.Fprintf(out, "  points             %s\n", strings.Join(pts, ", "))
+	}
+	if cfg.Safety.Set {
+		fmt.Fprintf(out, "  safety limit       %s\n", fixed(cfg.Safety.MaxPressurePa, cfg.Device))
+	}
+	for _, l := range cfg.RTULines() {
+		fmt.Fprintf(out, "  RTU line           %s at %d Bd: %d instrument(s), %.1f reads/s asked, about %.1f carried\n",
+			l.Address, l.Baud, len(l.Instruments), l.Asked, l.Carried)
+	}
+	fmt.Fprintf(out, "  store              %s\n", cfg.Store.Path)
+}
+
+// fixed writes a pressure in the device's unit with as many decimals as
+// its resolution has: 0.01 bar gives two.
+func fixed(pa float64, d config.Device) string {
+	u, err := units.Lookup(d.Unit)
+	if err != nil {
+		u = units.Pascal
+	}
+	digits := 0
+	if d.ResolutionPa > 0 {
+		step := u.FromPa(d.ResolutionPa)
+		digits = max(0, int(math.Ceil(-math.Log10(step)-1e-9)))
+	}
+	return strconv.FormatFloat(u.FromPa(pa), 'f', min(digits, 9), 64) + " " + u.Symbol
 }
 
 func orDash(s string) string {
