@@ -164,11 +164,11 @@ type op struct {
 	code   opCode
 	urgent bool // served before every ordinary request waiting for the line
 	unit   uint8
-	table mb.RegType
-	addr  uint16
-	n     uint16   // registers to read
-	words []uint16 // registers to write
-	value uint16   // the one register to write
+	table  mb.RegType
+	addr   uint16
+	n      uint16   // registers to read
+	words  []uint16 // registers to write
+	value  uint16   // the one register to write
 }
 
 // result is what an exchange returns.
