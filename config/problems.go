@@ -68,16 +68,16 @@ type Problems struct {
 	File string
 	List []Problem
 
-	lines   map[string]int    // lower-case key path → line in the file
-	env     map[string]string // lower-case key path → PLATEAU_* variable that set it
-	envVal  map[string]string // lower-case key path → the variable's value
-	failed  map[string]bool   // keys whose value could not be decoded
-	walked  int               // YAML values walked, for the alias bound
-	seen    map[Problem]bool
+	lines  map[string]int    // lower-case key path → line in the file
+	env    map[string]string // lower-case key path → PLATEAU_* variable that set it
+	envVal map[string]string // lower-case key path → the variable's value
+	failed map[string]bool   // keys whose value could not be decoded
+	walked int               // YAML values walked, for the alias bound
+	seen   map[Problem]bool
 	// dropped counts problems beyond maxKept, droppedErrors those of them
 	// that are not warnings.
 	dropped, droppedErrors int
-	structs map[reflect.Type]*structKeys
+	structs                map[reflect.Type]*structKeys
 }
 
 func newProblems(file string) *Problems {
