@@ -17,7 +17,7 @@ import (
 //
 //	block   = version(1)=2 uvarint(len unit) unit stream count(u32 BE) crc32c(u32 BE, of all before it)
 //	sample  = time value [good: pa] wire
-//	time    = signed(delta-of-delta ns; the first delta is from the key)
+//	time    = signed(delta-of-delta ns; the first delta is from the key), in time widths
 //	value   = "0"    signed(digits − previous digits)         the decimal at the block's exponent
 //	        | "10"   exp(5 bits) signed(digits)                a finer exponent from here on
 //	        | "110"  Raw(64 bits)                              not a short decimal: the float itself
@@ -29,6 +29,7 @@ import (
 //	text    = unsigned(length) bytes
 //	signed  = unsigned(zigzag)
 //	unsigned= "0" (0) | "10" 4 bits | "110" 8 bits | "1110" 16 bits | "11110" 32 bits | "11111" 64 bits
+//	          (time widths: "10" 12 bits | "110" 20 bits | "1110" 32 bits | "1111" 64 bits)
 //
 // A value is stored as the decimal the instrument most likely gave — the
 // integer digits d and exponent k with Raw == d / 10^k — only when that
@@ -138,7 +139,7 @@ func (b *blockWriter) encode(smp Sample, keepWire bool) {
 	w, st := &b.bits, &b.st
 	ns := smp.Time.UnixNano()
 	delta := ns - st.lastNs
-	w.signed(delta - st.lastDelta)
+	w.signedTime(delta - st.lastDelta)
 	st.lastNs, st.lastDelta = ns, delta
 	if smp.Failed {
 		w.write(0b1110, 4)
@@ -247,7 +248,7 @@ func decodeBlockV2(key int64, b []byte, fn func(Sample) error) error {
 	}
 	count := binary.BigEndian.Uint32(b[len(b)-trailerSz:])
 	n, w := binary.Uvarint(b[1:])
-	if w <= 0 || n > uint64(len(b)-1-w-trailerSz) {
+	if avail := len(b) - 1 - w - trailerSz; w <= 0 || avail < 0 || n > uint64(avail) {
 		return bad("bad unit length")
 	}
 	unit := string(b[1+w : 1+w+int(n)])
@@ -257,7 +258,7 @@ func decodeBlockV2(key int64, b []byte, fn func(Sample) error) error {
 	}
 	st := coderState{lastNs: key}
 	for i := range count {
-		dod := r.signed()
+		dod := r.signedTime()
 		st.lastDelta += dod
 		st.lastNs += st.lastDelta
 		smp := Sample{Time: time.Unix(0, st.lastNs)}
@@ -348,29 +349,42 @@ func (w *bitWriter) write(v uint64, n uint) {
 	}
 }
 
-func (w *bitWriter) unsigned(u uint64) {
-	switch {
-	case u == 0:
+// Widths of the variable-length integers: a value takes the first width
+// it fits, after a unary prefix ("0" alone is zero). Time steps jitter by
+// microseconds (tens of thousands of ns), values by a few digits.
+var (
+	valueWidths = []uint{4, 8, 16, 32, 64}
+	timeWidths  = []uint{12, 20, 32, 64}
+)
+
+func (w *bitWriter) unsignedIn(u uint64, widths []uint) {
+	if u == 0 {
 		w.write(0, 1)
-	case u < 1<<4:
-		w.write(0b10, 2)
-		w.write(u, 4)
-	case u < 1<<8:
-		w.write(0b110, 3)
-		w.write(u, 8)
-	case u < 1<<16:
-		w.write(0b1110, 4)
-		w.write(u, 16)
-	case u < 1<<32:
-		w.write(0b11110, 5)
-		w.write(u, 32)
-	default:
-		w.write(0b11111, 5)
-		w.write(u, 64)
+		return
+	}
+	for j, width := range widths {
+		last := j == len(widths)-1
+		if last || u < 1<<width {
+			if last {
+				w.write(1<<(j+1)-1, uint(j+1))
+			} else {
+				w.write(1<<(j+2)-2, uint(j+2))
+			}
+			w.write(u, width)
+			return
+		}
 	}
 }
 
-func (w *bitWriter) signed(v int64) { w.unsigned(uint64(v<<1) ^ uint64(v>>63)) }
+func (w *bitWriter) unsigned(u uint64) { w.unsignedIn(u, valueWidths) }
+
+func (w *bitWriter) signed(v int64) { w.unsigned(zigzag(v)) }
+
+func (w *bitWriter) signedTime(v int64) { w.unsignedIn(zigzag(v), timeWidths) }
+
+func zigzag(v int64) uint64 { return uint64(v<<1) ^ uint64(v>>63) }
+
+func unzigzag(u uint64) int64 { return int64(u>>1) ^ -int64(u&1) }
 
 func (w *bitWriter) text(s string) {
 	s = cutText(s)
@@ -409,22 +423,23 @@ func (r *bitReader) read(n uint) uint64 {
 
 func (r *bitReader) bit() uint64 { return r.read(1) }
 
-func (r *bitReader) unsigned() uint64 {
+func (r *bitReader) unsignedIn(widths []uint) uint64 {
 	if r.bit() == 0 {
 		return 0
 	}
-	for _, width := range []uint{4, 8, 16, 32} {
-		if r.bit() == 0 {
+	for j, width := range widths {
+		if j == len(widths)-1 || r.bit() == 0 {
 			return r.read(width)
 		}
 	}
-	return r.read(64)
+	return 0
 }
 
-func (r *bitReader) signed() int64 {
-	u := r.unsigned()
-	return int64(u>>1) ^ -int64(u&1)
-}
+func (r *bitReader) unsigned() uint64 { return r.unsignedIn(valueWidths) }
+
+func (r *bitReader) signed() int64 { return unzigzag(r.unsigned()) }
+
+func (r *bitReader) signedTime() int64 { return unzigzag(r.unsignedIn(timeWidths)) }
 
 func (r *bitReader) text() string {
 	n := r.unsigned()

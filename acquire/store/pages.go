@@ -67,11 +67,11 @@ var errNoMagic = errors.New("no bbolt marker")
 
 // fileReport is what inspectFile found.
 type fileReport struct {
-	size     int64
-	meta     boltMeta
-	pages    int // pages walked
-	sampled  int // sample leaf pages only counted, not read (bounded walk)
-	warnings []string
+	size    int64
+	meta    boltMeta
+	pages   int               // pages walked
+	sampled int               // sample leaf pages only counted, not read (bounded walk)
+	owner   map[uint64]string // page → the bucket (or freelist) that uses it
 }
 
 // inspectFile checks the file's meta pages, its size against the pages in
@@ -95,42 +95,18 @@ func inspectFile(path string, bounded bool) (fileReport, error) {
 	case rep.size == 0:
 		return rep, fmt.Errorf("the file is empty (0 bytes): %w", ErrWrongFile)
 	case rep.size < 1024:
+		var head [pageHeaderSize + 4]byte
+		if n, _ := f.ReadAt(head[:], 0); n == len(head) && binary.LittleEndian.Uint32(head[pageHeaderSize:]) == boltMagic {
+			return rep, fmt.Errorf("truncated to %d bytes: %w", rep.size, ErrDamaged)
+		}
 		return rep, fmt.Errorf("the file has only %d bytes: %w", rep.size, ErrWrongFile)
 	}
-	m0, err0 := readMeta(f, 0)
-	var m1 boltMeta
-	err1 := errNoMagic
-	if err0 == nil {
-		m1, err1 = readMeta(f, int64(m0.pageSize))
-	} else {
-		// Page size unknown: try the sizes bbolt allows, as bbolt does.
-		for ps := int64(1024); ps <= 1<<24 && ps < rep.size; ps <<= 1 {
-			if m1, err1 = readMeta(f, ps); err1 == nil && int64(m1.pageSize) == ps {
-				break
-			}
-		}
+	m, err := chooseMeta(f, rep.size, false)
+	if err != nil {
+		return rep, err
 	}
-	switch {
-	case errors.Is(err0, errNoMagic) && errors.Is(err1, errNoMagic):
-		return rep, fmt.Errorf("no bbolt meta page at the start: %w", ErrWrongFile)
-	case err0 != nil && err1 != nil:
-		return rep, fmt.Errorf("both meta pages are damaged (first: %v; second: %v): %w", err0, err1, ErrDamaged)
-	case err0 != nil:
-		return rep, fmt.Errorf("meta page 0 is damaged (%v); meta page 1 holds transaction %d: %w", err0, m1.txid, ErrDamaged)
-	case err1 != nil:
-		return rep, fmt.Errorf("meta page 1 is damaged (%v); meta page 0 holds transaction %d: %w", err1, m0.txid, ErrDamaged)
-	case m0.pageSize != m1.pageSize:
-		return rep, fmt.Errorf("meta pages disagree on the page size (%d, %d): %w", m0.pageSize, m1.pageSize, ErrDamaged)
-	}
-	rep.meta = m0
-	if m1.txid > m0.txid {
-		rep.meta = m1
-	}
-	m := rep.meta
+	rep.meta = m
 	ps := int64(m.pageSize)
-	if ps < 1024 || ps > 1<<24 || ps&(ps-1) != 0 {
-		return rep, fmt.Errorf("page size %d is not a power of two between 1 KiB and 16 MiB: %w", ps, ErrDamaged)
-	}
 	if m.hwm < 3 || m.hwm > uint64(rep.size/ps) {
 		return rep, fmt.Errorf("truncated: the file has %d bytes but its pages reach %d bytes (%d pages of %d): %w",
 			rep.size, m.hwm*uint64(ps), m.hwm, ps, ErrDamaged)
@@ -144,7 +120,60 @@ func inspectFile(path string, bounded bool) (fileReport, error) {
 	if err := w.bucketPage(m.root, nil, 0); err != nil {
 		return rep, fmt.Errorf("%v: %w", err, ErrDamaged)
 	}
+	rep.owner = w.used
 	return rep, nil
+}
+
+// chooseMeta reads both meta pages and returns the newer valid one. A
+// damaged meta page is an error unless tolerant (salvage), which takes the
+// other one.
+func chooseMeta(f io.ReaderAt, size int64, tolerant bool) (boltMeta, error) {
+	m, _, err := chooseMetaNote(f, size, tolerant)
+	return m, err
+}
+
+// chooseMetaNote is chooseMeta that also says which damaged meta page a
+// tolerant choice passed over.
+func chooseMetaNote(f io.ReaderAt, size int64, tolerant bool) (boltMeta, string, error) {
+	m0, err0 := readMeta(f, 0)
+	var m1 boltMeta
+	err1 := errNoMagic
+	if err0 == nil {
+		m1, err1 = readMeta(f, int64(m0.pageSize))
+	} else {
+		// Page size unknown: try the sizes bbolt allows, as bbolt does.
+		for ps := int64(1024); ps <= 1<<24 && ps < size; ps <<= 1 {
+			if m1, err1 = readMeta(f, ps); err1 == nil && int64(m1.pageSize) == ps {
+				break
+			}
+		}
+	}
+	switch {
+	case errors.Is(err0, errNoMagic) && errors.Is(err1, errNoMagic):
+		return boltMeta{}, "", fmt.Errorf("no bbolt meta page at the start: %w", ErrWrongFile)
+	case err0 != nil && err1 != nil:
+		return boltMeta{}, "", fmt.Errorf("both meta pages are damaged (first: %v; second: %v): %w", err0, err1, ErrDamaged)
+	case err0 != nil && !tolerant:
+		return boltMeta{}, "", fmt.Errorf("meta page 0 is damaged (%v); meta page 1 holds transaction %d: %w", err0, m1.txid, ErrDamaged)
+	case err1 != nil && !tolerant:
+		return boltMeta{}, "", fmt.Errorf("meta page 1 is damaged (%v); meta page 0 holds transaction %d: %w", err1, m0.txid, ErrDamaged)
+	case err0 == nil && err1 == nil && m0.pageSize != m1.pageSize:
+		return boltMeta{}, "", fmt.Errorf("meta pages disagree on the page size (%d, %d): %w", m0.pageSize, m1.pageSize, ErrDamaged)
+	}
+	m, note := m0, ""
+	if err0 != nil || (err1 == nil && m1.txid > m0.txid) {
+		m = m1
+	}
+	switch {
+	case err0 != nil:
+		note = fmt.Sprintf("meta page 0 is damaged (%v): copied as of transaction %d", err0, m1.txid)
+	case err1 != nil:
+		note = fmt.Sprintf("meta page 1 is damaged (%v): copied as of transaction %d", err1, m0.txid)
+	}
+	if ps := int64(m.pageSize); ps < 1024 || ps > 1<<24 || ps&(ps-1) != 0 {
+		return m, note, fmt.Errorf("page size %d is not a power of two between 1 KiB and 16 MiB: %w", ps, ErrDamaged)
+	}
+	return m, note, nil
 }
 
 type walker struct {
@@ -154,6 +183,22 @@ type walker struct {
 	used    map[uint64]string // page → what uses it
 	bounded bool
 	rep     *fileReport
+
+	// A tolerant walk (salvage) records a damaged subtree in lost and goes
+	// on with the rest; visit sees every key/value, bucket every bucket.
+	tolerant bool
+	lost     []string
+	visit    func(path []string, key, val []byte)
+	bucket   func(path []string, seq uint64)
+}
+
+// skip returns err, or records it and returns nil on a tolerant walk.
+func (w *walker) skip(err error) error {
+	if err == nil || !w.tolerant {
+		return err
+	}
+	w.lost = append(w.lost, err.Error())
+	return nil
 }
 
 // page reads page id with its overflow pages and checks its header.
@@ -259,7 +304,7 @@ func (w *walker) bucketPage(id uint64, path []string, depth int) error {
 				}
 				continue
 			}
-			if err := w.bucketPage(child, path, depth+1); err != nil {
+			if err := w.skip(w.bucketPage(child, path, depth+1)); err != nil {
 				return err
 			}
 		}
@@ -313,29 +358,41 @@ func (w *walker) leaf(b []byte, id uint64, path []string, depth int, what string
 		if pos < 0 || ks < 0 || vs < 0 || e+pos+ks+vs > len(b) || e+pos+ks+vs < e {
 			return fmt.Errorf("%s: page %d: entry %d lies outside the page", what, id, i)
 		}
-		if flags&leafIsBucket == 0 {
-			continue
-		}
 		key := string(b[e+pos : e+pos+ks])
 		val := b[e+pos+ks : e+pos+ks+vs]
+		if flags&leafIsBucket == 0 {
+			if w.visit != nil {
+				w.visit(path, []byte(key), val)
+			}
+			continue
+		}
 		sub := append(append([]string(nil), path...), key)
 		if len(val) < 16 {
-			return fmt.Errorf("%s: page %d: bucket %q header is %d bytes", what, id, key, len(val))
+			if err := w.skip(fmt.Errorf("%s: page %d: bucket %q header is %d bytes", what, id, key, len(val))); err != nil {
+				return err
+			}
+			continue
+		}
+		if w.bucket != nil {
+			w.bucket(sub, le.Uint64(val[8:]))
 		}
 		if root := le.Uint64(val); root != 0 {
-			if err := w.bucketPage(root, sub, depth+1); err != nil {
+			if err := w.skip(w.bucketPage(root, sub, depth+1)); err != nil {
 				return err
 			}
 			continue
 		}
 		inline := val[16:]
-		if len(inline) < pageHeaderSize || le.Uint16(inline[8:]) != flagLeaf {
-			return fmt.Errorf("bucket /%s: inline page is not a leaf page", joinPath(sub))
+		var err error
+		switch {
+		case len(inline) < pageHeaderSize || le.Uint16(inline[8:]) != flagLeaf:
+			err = fmt.Errorf("bucket /%s: inline page is not a leaf page", joinPath(sub))
+		case depth+1 > maxDepth:
+			err = fmt.Errorf("bucket /%s: deeper than %d levels", joinPath(sub), maxDepth)
+		default:
+			err = w.leaf(inline, id, sub, depth+1, "bucket /"+joinPath(sub))
 		}
-		if depth+1 > maxDepth {
-			return fmt.Errorf("bucket /%s: deeper than %d levels", joinPath(sub), maxDepth)
-		}
-		if err := w.leaf(inline, id, sub, depth+1, "bucket /"+joinPath(sub)); err != nil {
+		if err := w.skip(err); err != nil {
 			return err
 		}
 	}

@@ -38,12 +38,12 @@ func (s State) valid() bool {
 
 // Run is one calibration run as stored.
 type Run struct {
-	ID      RunID
-	Label   string
-	Config  []byte // the configuration as used (YAML), opaque to the store
+	ID     RunID
+	Label  string
+	Config []byte // the configuration as used (YAML), opaque to the store
 	// Record is what the run was frozen with when it was created (resolved
 	// device, reference, procedure and decision rule), opaque to the store.
-	Record []byte
+	Record  []byte
 	State   State
 	Reason  string // why it last changed state, e.g. the fault that failed it
 	Created time.Time

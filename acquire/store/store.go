@@ -182,7 +182,7 @@ type Store struct {
 	queue   chan job
 	flushes chan chan error
 	done    chan struct{}
-	status writerState
+	status  writerState
 }
 
 // Open opens the store at path, creating it when the file does not exist.
