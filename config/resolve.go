@@ -25,6 +25,7 @@ func (c *Config) resolve(p *Problems) {
 	c.resolveDevices(p) // fills c.Devices and c.Device
 	c.resolveSafety(p)
 	c.resolveProcedure(p)
+	c.resolveSimulator(p)
 }
 
 // pressure parses a quantity that must be a pressure; "" is reported as
@@ -221,4 +222,32 @@ func (c *Config) resolveProcedure(p *Problems) {
 	if st.Band != "" {
 		st.BandPa, _, _ = pressureOrSpan(p, "procedure.settle.band", st.Band, span)
 	}
+}
+
+// resolveSimulator makes the simulated device the configured one unless
+// told otherwise, and reads its quantities once to report those that
+// cannot be read (the simulator keeps them as text).
+func (c *Config) resolveSimulator(p *Problems) {
+	s := &c.Simulator
+	if s.Device.Kind == "" {
+		s.Device.Kind = c.Device.Kind
+	}
+	if s.Device.Lower == "" {
+		s.Device.Lower = c.Device.Lower
+	}
+	if s.Device.Upper == "" {
+		s.Device.Upper = c.Device.Upper
+	}
+	for _, q := range []struct{ key, val string }{
+		{"simulator.source.leak", s.Source.Leak}, {"simulator.source.max", s.Source.Max},
+		{"simulator.reference.noise", s.Reference.Noise}, {"simulator.reference.resolution", s.Reference.Resolution},
+		{"simulator.device.zero", s.Device.Zero}, {"simulator.device.nonlinearity", s.Device.Nonlinearity},
+		{"simulator.device.dead_band", s.Device.DeadBand}, {"simulator.device.resolution", s.Device.Resolution},
+		{"simulator.device.noise", s.Device.Noise}, {"simulator.device.lower", s.Device.Lower},
+		{"simulator.device.upper", s.Device.Upper},
+	} {
+		pressure(p, q.key, q.val, false)
+	}
+	percent(p, "simulator.reference.error", s.Reference.Error, 100)
+	percent(p, "simulator.device.span", s.Device.Span, 100)
 }
