@@ -70,6 +70,12 @@ type Device struct {
 	Limit  Limit  `mapstructure:"limit"`
 	Medium string `mapstructure:"medium"` // pressure medium the device sees: air, nitrogen, water, oil, …
 	Oxygen bool   `mapstructure:"oxygen"` // oxygen service: must stay free of oil and grease
+	// Uncertainty budget: the temperature effect in % of span per kelvin away
+	// from ReferenceTemperature (°C), and a hysteresis limit of the device's
+	// own specification in % of span (0: EN 837-1 classes use the MPE).
+	TemperatureCoefficient float64 `mapstructure:"temperature_coefficient"`
+	ReferenceTemperature   float64 `mapstructure:"reference_temperature"`
+	HysteresisLimit        float64 `mapstructure:"hysteresis_limit"`
 
 	LowerPa      float64 `mapstructure:"-"`
 	UpperPa      float64 `mapstructure:"-"`
@@ -103,12 +109,21 @@ type Reference struct {
 	Coverage    float64 `mapstructure:"coverage"`   // the certificate's coverage factor k
 	Expires     string  `mapstructure:"expires"`    // date the calibration expires, YYYY-MM-DD
 	OilFilled   bool    `mapstructure:"oil_filled"` // an oil-filled reference or comparator: never for oxygen gauges
+	// Uncertainty budget: drift since calibration (half-width, % of reading
+	// plus a floor) and the reference's own resolution; empty or 0 means
+	// the term is reported as not evaluated.
+	Stability      float64 `mapstructure:"stability"`
+	StabilityFloor string  `mapstructure:"stability_floor"`
+	Resolution     string  `mapstructure:"resolution"`
 
 	LowerPa        float64   `mapstructure:"-"`
 	UpperPa        float64   `mapstructure:"-"`
 	UncertaintyPct float64   `mapstructure:"-"`
 	FloorPa        float64   `mapstructure:"-"`
 	ExpiresAt      time.Time `mapstructure:"-"`
+	// StabilityFloorPa and ResolutionPa are read in validateReference.
+	StabilityFloorPa float64 `mapstructure:"-"`
+	ResolutionPa     float64 `mapstructure:"-"`
 
 	okLower, okUpper bool // the quantity was given and could be read
 }
@@ -133,6 +148,8 @@ type Procedure struct {
 	// DUT) or "set-by-device" (bring the DUT's pointer onto the mark, read the reference).
 	Compare  string `mapstructure:"compare"`
 	Decision string `mapstructure:"decision"` // simple | guarded | four-state (ILAC-G8:2019)
+	// Coverage: "conventional" (k = 2) or "student-t" (k from the effective degrees of freedom).
+	Coverage string `mapstructure:"coverage"`
 	Settle   Settle `mapstructure:"settle"`
 
 	PointsPa []float64 `mapstructure:"-"`
@@ -174,4 +191,9 @@ type Head struct {
 	DeviceHeight       float64 `mapstructure:"device_height"`       // m, height of the DUT's reference level
 	HeightUncertainty  float64 `mapstructure:"height_uncertainty"`  // m, half-width of a rectangular distribution
 	DensityUncertainty float64 `mapstructure:"density_uncertainty"` // kg/m³, half-width
+	// A gaseous medium: its molar mass (kg/mol, e.g. 0.0280134 for
+	// nitrogen; 0 for a liquid) and temperature (°C). Its density then
+	// follows each reading's absolute pressure.
+	GasMolarMass   float64 `mapstructure:"gas_molar_mass"`
+	GasTemperature float64 `mapstructure:"gas_temperature"`
 }

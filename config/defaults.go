@@ -35,6 +35,10 @@ func defaults() map[string]any {
 		"device.limit.floor":   "",
 		"device.medium":        "air",
 		"device.oxygen":        false,
+		// uncertainty budget
+		"device.temperature_coefficient": 0.0,
+		"device.reference_temperature":   20.0,
+		"device.hysteresis_limit":        0.0,
 
 		"reference.id":          "",
 		"reference.model":       "",
@@ -47,6 +51,10 @@ func defaults() map[string]any {
 		"reference.coverage":    2.0,
 		"reference.expires":     "",
 		"reference.oil_filled":  false,
+		// uncertainty budget
+		"reference.stability":       0.0,
+		"reference.stability_floor": "",
+		"reference.resolution":      "",
 
 		"procedure.mode":              "plan",
 		"procedure.points":            []string{"0 %", "25 %", "50 %", "75 %", "100 %"},
@@ -60,6 +68,7 @@ func defaults() map[string]any {
 		"procedure.zero":              true,
 		"procedure.compare":           "set-by-reference",
 		"procedure.decision":          "simple",
+		"procedure.coverage":          "conventional",
 		"procedure.settle.window":     30 * time.Second,
 		"procedure.settle.min_count":  10,
 		"procedure.settle.max_drift":  "",
@@ -76,6 +85,8 @@ func defaults() map[string]any {
 		"head.device_height":       0.0,
 		"head.height_uncertainty":  0.0,
 		"head.density_uncertainty": 0.0,
+		"head.gas_molar_mass":      0.0,
+		"head.gas_temperature":     20.0,
 
 		"simulator.seed":                  1,
 		"simulator.speed":                 1.0,

@@ -157,6 +157,15 @@ func (d *Device) validate(p *Problems, keyOf func(string) string) {
 	case n > 1:
 		p.bad(strings.TrimSuffix(keyOf("class"), ".class"), "", "give only one of device.class, device.grade and device.limit")
 	}
+	if !(d.TemperatureCoefficient >= 0 && d.TemperatureCoefficient <= 1) {
+		p.bad(keyOf("temperature_coefficient"), fmtNum(d.TemperatureCoefficient), "must be the temperature effect in %% of span per kelvin, from 0 to 1 (EN 837-1 gauges about 0.04)")
+	}
+	if !(d.ReferenceTemperature >= -50 && d.ReferenceTemperature <= 100) {
+		p.bad(keyOf("reference_temperature"), fmtNum(d.ReferenceTemperature), "must be the device's reference temperature in °C, -50 … 100 (usually 20)")
+	}
+	if !(d.HysteresisLimit >= 0 && d.HysteresisLimit <= 100) {
+		p.bad(keyOf("hysteresis_limit"), fmtNum(d.HysteresisLimit), "must be a hysteresis limit in %% of span, 0 … 100 (0: none, or the MPE for EN 837-1 classes)")
+	}
 	if d.Oxygen && !slices.Contains(oxygenSafeMedia, strings.ToLower(strings.TrimSpace(d.Medium))) {
 		p.bad(keyOf("medium"), d.Medium, "an oxygen-service gauge is calibrated only with clean, oil-free, non-flammable gas (one of %s), never with oil or on an oil-filled comparator",
 			strings.Join(oxygenSafeMedia, ", "))
@@ -170,6 +179,16 @@ func (c *Config) validateReference(p *Problems) {
 	}
 	if r.FloorPa < 0 {
 		p.bad("reference.floor", r.Floor, "cannot be negative")
+	}
+	if !(r.Stability >= 0 && r.Stability <= 10) {
+		p.bad("reference.stability", fmtNum(r.Stability), "must be the drift since calibration as %% of reading, 0 … 10")
+	}
+	// The two budget pressures are read here, where the pointer reaches
+	// the configuration itself.
+	r.StabilityFloorPa, _ = pressure(p, "reference.stability_floor", r.StabilityFloor, false)
+	r.ResolutionPa, _ = pressure(p, "reference.resolution", r.Resolution, false)
+	if r.StabilityFloorPa < 0 || r.ResolutionPa < 0 {
+		p.bad("reference.resolution", r.Resolution, "reference.stability_floor and reference.resolution cannot be negative")
 	}
 	if r.Coverage <= 0 || r.Coverage > 4 {
 		p.bad("reference.coverage", fmt.Sprint(r.Coverage), "the coverage factor k of the certificate must be above 0 and at most 4 (usually 2)")
@@ -343,6 +362,7 @@ func (c *Config) validateProcedure(p *Problems) {
 	oneOf(p, "procedure.on_timeout", pr.OnTimeout, onTimeouts)
 	oneOf(p, "procedure.compare", pr.Compare, compares)
 	oneOf(p, "procedure.decision", pr.Decision, decisions)
+	oneOf(p, "procedure.coverage", pr.Coverage, []string{"conventional", "student-t"})
 	for _, dut := range c.Devices {
 		if pr.Mode == "free" && dut.Device.Kind == "dial" {
 			p.bad("procedure.mode", pr.Mode, "free runs capture the plateaus both instruments hold; a dial read by a person has no readings between entries: use mode plan")
@@ -489,6 +509,12 @@ func (c *Config) validateHead(p *Problems) {
 	}
 	if h.HeightUncertainty > 10 || h.DensityUncertainty > 20000 {
 		p.bad("head", "", "uncertainties are half-widths in m and kg/m³: at most 10 m and 20000 kg/m³")
+	}
+	if !(h.GasMolarMass >= 0 && h.GasMolarMass <= 0.5) {
+		p.bad("head.gas_molar_mass", fmtNum(h.GasMolarMass), "must be the molar mass of the gas in kg/mol (nitrogen 0.0280134, air 0.0289652), or 0 for a liquid")
+	}
+	if !(h.GasTemperature >= -50 && h.GasTemperature <= 200) {
+		p.bad("head.gas_temperature", fmtNum(h.GasTemperature), "must be the gas temperature in °C, -50 … 200")
 	}
 }
 

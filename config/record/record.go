@@ -101,7 +101,8 @@ func Info(cfg *config.Config) report.Info {
 // the device, the reference and the evaluation options.
 func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, analysis.Options) {
 	d := cfg.Device
-	dev := analysis.Device{LowerPa: d.LowerPa, UpperPa: d.UpperPa, ResolutionPa: d.ResolutionPa, Unit: d.Unit}
+	dev := analysis.Device{LowerPa: d.LowerPa, UpperPa: d.UpperPa, ResolutionPa: d.ResolutionPa, Unit: d.Unit,
+		TempCoefficient: d.TemperatureCoefficient, ReferenceTemperatureC: d.ReferenceTemperature}
 	switch {
 	case d.Class != "":
 		fmt.Sscan(d.Class, &dev.Accuracy.EN837Class)
@@ -112,11 +113,16 @@ func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, an
 		dev.Accuracy.PercentOfReading = d.Limit.ReadingPct
 		dev.Accuracy.FloorPa = d.Limit.FloorPa
 	}
+	dev.Accuracy.HysteresisPercentOfSpan = d.HysteresisLimit
 	h := cfg.Head
 	ref := analysis.Reference{
 		PercentOfReading: cfg.Reference.UncertaintyPct,
 		FloorPa:          cfg.Reference.FloorPa,
 		K:                cfg.Reference.Coverage,
+
+		StabilityPercentOfReading: cfg.Reference.Stability,
+		StabilityFloorPa:          cfg.Reference.StabilityFloorPa,
+		ResolutionPa:              cfg.Reference.ResolutionPa,
 	}
 	if h.ReferenceHeight != h.DeviceHeight || h.HeightUncertainty != 0 || h.DensityUncertainty != 0 {
 		ref.Head = analysis.HeadCorrection{
@@ -124,7 +130,10 @@ func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, an
 			ZRef: h.ReferenceHeight, ZDUT: h.DeviceHeight,
 			HeightHalfWidth: h.HeightUncertainty, DensityHalfWidth: h.DensityUncertainty,
 		}
+		if h.GasMolarMass > 0 {
+			ref.Head.Gas = &analysis.Gas{MolarMass: h.GasMolarMass, TemperatureK: h.GasTemperature + 273.15}
+		}
 	}
-	opt := analysis.Options{Rule: analysis.DecisionRule(cfg.Procedure.Decision)}
+	opt := analysis.Options{Rule: analysis.DecisionRule(cfg.Procedure.Decision), Coverage: analysis.CoverageMethod(cfg.Procedure.Coverage)}
 	return dev, ref, opt
 }
