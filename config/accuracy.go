@@ -10,16 +10,10 @@ import (
 // tolerancePa is the device's permissible error at full scale, used only to
 // derive sensible settle defaults; the analysis computes the real limits.
 func (d *Device) tolerancePa() float64 {
-	span := d.UpperPa - d.LowerPa
-	switch {
-	case d.Class != "":
-		f, _ := strconv.ParseFloat(d.Class, 64)
-		return f / 100 * span
-	case d.Grade != "":
-		g, _ := limits.Grade(d.Grade)
-		return g.Tightest() / 100 * span
+	if d.Grade != "" { // the tighter of the grade's two limits
+		return math.Min(d.permissiblePa(d.UpperPa), d.permissiblePa((d.LowerPa+d.UpperPa)/2))
 	}
-	return d.Limit.SpanPct/100*span + d.Limit.ReadingPct/100*math.Abs(d.UpperPa) + d.Limit.FloorPa
+	return d.permissiblePa(d.UpperPa)
 }
 
 // permissiblePa is the device's permissible error at pressure pa: a class
