@@ -2,6 +2,7 @@ package config
 
 import (
 	"fmt"
+	"reflect"
 	"strings"
 )
 
@@ -66,7 +67,10 @@ func (c *Config) resolveDevices(p *Problems) {
 			p.bad(fmt.Sprintf("instruments[%d]", i), in.Name, "is one of several devices under test: give it a device: section with at least its id")
 			continue
 		}
-		d, given := merge(c.Device, in.Device.Device)
+		d, given := merge(c.Device, in.Device.Device, func(k string) bool {
+			_, ok := p.lines[strings.ToLower(key+"."+k)]
+			return ok
+		})
 		dut := DeviceUnderTest{Instrument: in.Name, Index: i, Key: key, HeightM: c.Head.DeviceHeight, given: given}
 		if in.Device.Height != nil {
 			dut.HeightM, given["height"] = *in.Device.Height, true
@@ -80,37 +84,34 @@ func (c *Config) resolveDevices(p *Problems) {
 	}
 }
 
-// merge fills what own leaves out from shared (the top-level section) and
-// says which fields own gave. The accuracy is taken whole: a device that
-// gives a class, a grade or a limit inherits none of the three.
-func merge(shared, own Device) (Device, map[string]bool) {
+// merge fills what own leaves out from shared (the top-level section);
+// isGiven says whether own's section gave a key. The accuracy is taken
+// whole: a device that gives a class, a grade or a limit inherits none of
+// the three. Oxygen service declared for all stays on for each: a device
+// cannot opt out of what the shared line demands.
+func merge(shared, own Device, isGiven func(key string) bool) (Device, map[string]bool) {
 	given := map[string]bool{}
 	out := own
-	text := []struct {
-		name string
-		dst  *string
-		src  string
-	}{
-		{"id", &out.ID, shared.ID}, {"manufacturer", &out.Manufacturer, shared.Manufacturer},
-		{"model", &out.Model, shared.Model}, {"serial", &out.Serial, shared.Serial},
-		{"kind", &out.Kind, shared.Kind}, {"lower", &out.Lower, shared.Lower},
-		{"upper", &out.Upper, shared.Upper}, {"unit", &out.Unit, shared.Unit},
-		{"resolution", &out.Resolution, shared.Resolution}, {"medium", &out.Medium, shared.Medium},
-	}
-	for _, f := range text {
-		if strings.TrimSpace(*f.dst) != "" {
-			given[f.name] = true
+	ov, sv := reflect.ValueOf(&out).Elem(), reflect.ValueOf(shared)
+	accuracy := isGiven("class") || isGiven("grade") || isGiven("limit")
+	for i := 0; i < ov.NumField(); i++ {
+		tag := ov.Type().Field(i).Tag.Get("mapstructure")
+		if tag == "" || tag == "-" || !ov.Field(i).CanSet() {
 			continue
 		}
-		*f.dst = f.src
+		switch {
+		case tag == "class" || tag == "grade" || tag == "limit":
+			given[tag] = accuracy
+			if accuracy {
+				continue
+			}
+		case isGiven(tag):
+			given[tag] = true
+			continue
+		}
+		ov.Field(i).Set(sv.Field(i))
 	}
-	if own.Class != "" || own.Grade != "" || own.Limit != (Limit{}) {
-		given["class"], given["grade"], given["limit"] = true, true, true
-	} else {
-		out.Class, out.Grade, out.Limit = shared.Class, shared.Grade, shared.Limit
-	}
-	given["oxygen"] = own.Oxygen
-	out.Oxygen = own.Oxygen || shared.Oxygen
+	out.Oxygen = out.Oxygen || shared.Oxygen
 	return out, given
 }
 

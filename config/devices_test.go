@@ -111,3 +111,34 @@ func TestLineLoad(t *testing.T) {
 		t.Fatalf("carried %v, want %v", l[0].Carried, want)
 	}
 }
+
+// A device's own section inherits every key it leaves out, numbers with
+// defaults included, also through a YAML merge key.
+func TestDeviceInheritance(t *testing.T) {
+	// The first device's section serves as the template of the second.
+	file := `
+device: {upper: 16 bar, resolution: 0.01 bar, class: "1", reference_temperature: 23, model: M-1}
+reference: {uncertainty: 0.01 %}
+instruments:
+  - {name: ref, role: reference, link: {kind: sim}, sim_part: reference}
+  - {name: a, role: device, unit: bar, link: {kind: modbus-tcp, address: "127.0.0.1:502"}, device: &common {id: A, model: M-2, resolution: 0.005 bar}}
+  - {name: b, role: device, unit: bar, link: {kind: modbus-tcp, address: "127.0.0.1:502", unit_id: 2}, device: {<<: *common, id: B, reference_temperature: 0, grade: 2A}}
+`
+	cfg, err := Parse([]byte(file), "inherit.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	a, b := cfg.Devices[0].Device, cfg.Devices[1].Device
+	if a.ID != "A" || a.Model != "M-2" || a.ReferenceTemperature != 23 || a.Class != "1" || a.ResolutionPa != 500 {
+		t.Errorf("a: %+v", a)
+	}
+	if b.ID != "B" || b.Model != "M-2" || b.ReferenceTemperature != 0 || b.Class != "" || b.Grade != "2A" || b.ResolutionPa != 500 {
+		t.Errorf("b: %+v", b)
+	}
+	if k := cfg.Devices[1].keyOf("id"); k != "instruments[2].device.id" {
+		t.Errorf("b's id is at %s", k)
+	}
+	if k := cfg.Devices[1].keyOf("upper"); k != "device.upper" {
+		t.Errorf("b's upper is at %s", k)
+	}
+}

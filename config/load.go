@@ -232,7 +232,16 @@ func walkMapping(n *yaml.Node, t reflect.Type, path string, p *Problems, out map
 			out[name] = v
 		}
 	}
-	// Keys of the mapping itself win over merged ones.
+	// Keys of the mapping itself win over merged ones, and keep their lines.
+	own := map[string]int{}
+	for k := range seen {
+		own[k] = p.lines[strings.ToLower(join(path, k))]
+	}
+	defer func() {
+		for k, line := range own {
+			p.lines[strings.ToLower(join(path, k))] = line
+		}
+	}()
 	for _, m := range merges {
 		if m.Kind == yaml.AliasNode && m.Alias != nil {
 			m = m.Alias
@@ -252,7 +261,7 @@ func walkMapping(n *yaml.Node, t reflect.Type, path string, p *Problems, out map
 			merged := map[string]any{}
 			walkMapping(src, t, path, p, merged, map[string]int{})
 			for k, v := range merged {
-				if _, own := seen[k]; !own {
+				if _, mine := seen[k]; !mine {
 					out[k] = v
 					seen[k] = src.Line
 				}
