@@ -121,7 +121,7 @@ type Reference struct {
 	UncertaintyPct float64   `mapstructure:"-"`
 	FloorPa        float64   `mapstructure:"-"`
 	ExpiresAt      time.Time `mapstructure:"-"`
-	// StabilityFloorPa and ResolutionPa are read in validateReference.
+	// StabilityFloorPa and ResolutionPa are read in resolveReference.
 	StabilityFloorPa float64 `mapstructure:"-"`
 	ResolutionPa     float64 `mapstructure:"-"`
 

@@ -127,6 +127,8 @@ func (c *Config) resolveReference(p *Problems) {
 	}
 	r.LowerPa, r.okLower = pressure(p, "reference.lower", r.Lower, false)
 	r.UpperPa, r.okUpper = pressure(p, "reference.upper", r.Upper, false)
+	r.StabilityFloorPa, _ = pressure(p, "reference.stability_floor", r.StabilityFloor, false)
+	r.ResolutionPa, _ = pressure(p, "reference.resolution", r.Resolution, false)
 }
 
 func (in *Instrument) resolve(p *Problems, key string) {

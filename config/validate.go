@@ -183,10 +183,6 @@ func (c *Config) validateReference(p *Problems) {
 	if !(r.Stability >= 0 && r.Stability <= 10) {
 		p.bad("reference.stability", fmtNum(r.Stability), "must be the drift since calibration as %% of reading, 0 … 10")
 	}
-	// The two budget pressures are read here, where the pointer reaches
-	// the configuration itself.
-	r.StabilityFloorPa, _ = pressure(p, "reference.stability_floor", r.StabilityFloor, false)
-	r.ResolutionPa, _ = pressure(p, "reference.resolution", r.Resolution, false)
 	if r.StabilityFloorPa < 0 || r.ResolutionPa < 0 {
 		p.bad("reference.resolution", r.Resolution, "reference.stability_floor and reference.resolution cannot be negative")
 	}
