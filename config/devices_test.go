@@ -93,6 +93,14 @@ func TestWireTime(t *testing.T) {
 			t.Errorf("%d Bd, %d words: %v s, want %v s", tc.baud, tc.words, got, tc.want)
 		}
 	}
+	// A pause is quiet time: shorter than the silence it changes nothing,
+	// longer it takes the silence's place.
+	if a, b := TransactionTime(19200, 2, time.Millisecond), WireTime(19200, 2); a != b {
+		t.Errorf("1 ms pause: %v, want %v", a, b)
+	}
+	if got, want := TransactionTime(19200, 2, 20*time.Millisecond).Seconds(), 20.5*11.0/19200+0.020; math.Abs(got-want) > 1e-9 {
+		t.Errorf("20 ms pause: %v s, want %v s", got, want)
+	}
 }
 
 func TestLineLoad(t *testing.T) {
@@ -104,9 +112,9 @@ func TestLineLoad(t *testing.T) {
 	if len(l) != 1 || l[0].Asked != 8 {
 		t.Fatalf("%+v", l)
 	}
-	// Eight float32 reads at 1 s: 13.75 ms on the wire plus the default
-	// 20 ms pause each.
-	want := 1 / ((24 * 11.0 / 19200) + (20 * time.Millisecond).Seconds())
+	// Eight float32 reads at 1 s: request, silence and reply, 20.5
+	// characters, then the default 20 ms pause in place of the last silence.
+	want := 1 / ((20.5 * 11.0 / 19200) + (20 * time.Millisecond).Seconds())
 	if math.Abs(l[0].Carried-want) > 1e-6 {
 		t.Fatalf("carried %v, want %v", l[0].Carried, want)
 	}

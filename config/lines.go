@@ -8,12 +8,19 @@ import (
 )
 
 // WireTime is the time one Modbus RTU read of words registers holds a
-// line at baud: the request (8 characters) and the reply (5 + 2·words) at
-// 11 bits a character (start, 8 data, parity or a second stop bit, stop),
-// and the 3.5-character silence that ends each of the two frames; above
-// 19200 Bd that silence is fixed at 1.75 ms (REFERENCES.md §0 row 9, the
-// Modbus serial line guide).
+// line at baud with no pause: the request (8 characters) and the reply
+// (5 + 2·words) at 11 bits a character (start, 8 data, parity or a second
+// stop bit, stop), each followed by the 3.5-character silence that ends a
+// frame; above 19200 Bd that silence is fixed at 1.75 ms (REFERENCES.md §0
+// row 9, the Modbus serial line guide).
 func WireTime(baud, words int) time.Duration {
+	return TransactionTime(baud, words, 0)
+}
+
+// TransactionTime is WireTime with a pause after each reply: the pause is
+// quiet time on the line, so it stands in for the last silence when it is
+// the longer of the two.
+func TransactionTime(baud, words int, pause time.Duration) time.Duration {
 	if baud <= 0 {
 		return 0
 	}
@@ -22,8 +29,8 @@ func WireTime(baud, words int) time.Duration {
 	if baud > 19200 {
 		silence = 1.75e-3
 	}
-	chars := float64(8 + 5 + 2*words)
-	return time.Duration((chars*char + 2*silence) * float64(time.Second))
+	exchange := float64(8+5+2*words)*char + silence
+	return time.Duration((exchange + max(silence, pause.Seconds())) * float64(time.Second))
 }
 
 // LineLoad is what the instruments on one Modbus RTU line ask of it.
@@ -52,7 +59,7 @@ func (c *Config) RTULines() []LineLoad {
 		}
 		l.Instruments = append(l.Instruments, i)
 		l.Asked += float64(time.Second) / float64(in.Poll)
-		busy[in.Link.Address] += (WireTime(in.Link.Baud, valueWords(in.Value.Type)) + in.Link.Pause).Seconds() / in.Poll.Seconds()
+		busy[in.Link.Address] += TransactionTime(in.Link.Baud, valueWords(in.Value.Type), in.Link.Pause).Seconds() / in.Poll.Seconds()
 	}
 	out := make([]LineLoad, 0, len(byAddr))
 	for addr, l := range byAddr {
