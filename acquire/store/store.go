@@ -115,8 +115,8 @@ const (
 	// CheckFull reads everything: bbolt's consistency check, every record,
 	// every event and every sample block.
 	CheckFull
-	// CheckPagesOnly checks the meta pages, the file size and the page tree
-	// but decodes no records (the least that keeps bbolt from panicking).
+	// CheckPagesOnly checks the meta pages, the file size and the whole
+	// page tree but decodes no records; for callers that run Check next.
 	CheckPagesOnly
 )
 
@@ -202,7 +202,7 @@ func Open(path string, opt Options) (*Store, error) {
 	case !fresh && statErr != nil:
 		return nil, fmt.Errorf("open store %s: %w", path, statErr)
 	case !fresh:
-		if _, err := inspectFile(path, opt.StartCheck != CheckFull); err != nil {
+		if _, err := inspectFile(path, opt.StartCheck == CheckBounded); err != nil {
 			return nil, refusal(path, err)
 		}
 	}

@@ -32,27 +32,31 @@ func newVerifyCmd() *cobra.Command {
 	var path string
 	cmd := &cobra.Command{
 		Use:   "verify",
-		Short: "Check the store file for damage, e.g. after a power cut",
-		Long: `verify runs bbolt's consistency check over every page of the store and lists
-what it finds, then counts the runs, their points and any run left
-unfinished. The daemon holds the file while it runs: stop it first, or use
-'plateau backup' and verify the copy.`,
+		Short: "Check the store file for damage, e.g. after a power cut (reads only)",
+		Long: `verify opens the store read-only and reads all of it: the meta pages, the
+file size against the pages in use, every page of the tree, bbolt's own
+consistency check, and every run, point, event and sample block against its
+checksum. It writes nothing, creates nothing and refuses an empty file or one
+that is not a plateau store, so it can check a read-only copy. The daemon
+holds the file while it runs: stop it first, or use 'plateau backup' and
+verify the copy. When verify finds damage, 'plateau salvage' copies out what
+can still be read.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			p, err := storePath(path)
 			if err != nil {
 				return err
 			}
-			if _, err := os.Stat(p); err != nil {
+			if err := existingFile(p); err != nil {
 				return fmt.Errorf("verify: %w", err)
 			}
-			st, err := store.Open(p, store.Options{})
+			st, err := store.Open(p, store.Options{ReadOnly: true, StartCheck: store.CheckPagesOnly})
 			if err != nil {
 				return fmt.Errorf("verify: %w", err)
 			}
 			defer st.Close()
 			if err := st.Check(); err != nil {
-				return err
+				return fmt.Errorf("verify: %w; copy out what can be read with: %s", err, store.SalvageHint(p))
 			}
 			runs, err := st.Runs()
 			if err != nil {
@@ -77,6 +81,19 @@ unfinished. The daemon holds the file while it runs: stop it first, or use
 	return cmd
 }
 
+// existingFile refuses a path that does not name a regular file, before
+// anything opens it.
+func existingFile(p string) error {
+	fi, err := os.Stat(p)
+	if err != nil {
+		return err
+	}
+	if !fi.Mode().IsRegular() {
+		return fmt.Errorf("%s is not a regular file", p)
+	}
+	return nil
+}
+
 func newBackupCmd() *cobra.Command {
 	var path string
 	cmd := &cobra.Command{
@@ -90,7 +107,10 @@ even while runs are being written. It refuses to overwrite an existing file.`,
 			if err != nil {
 				return err
 			}
-			st, err := store.Open(p, store.Options{})
+			if err := existingFile(p); err != nil {
+				return fmt.Errorf("backup: %w", err)
+			}
+			st, err := store.Open(p, store.Options{ReadOnly: true})
 			if err != nil {
 				return fmt.Errorf("backup: %w", err)
 			}
