@@ -14,6 +14,9 @@
 //	time       optional  when the reading was taken, RFC 3339 (2025-03-01T21:04:05Z);
 //	                     needed for drift trends
 //	note       optional  free text, carried into the analysis warnings
+//	reference_sd       optional  standard deviation of the reference over the
+//	                             window the reading was averaged from (same unit)
+//	reference_samples  optional  number of samples in that window (with reference_sd)
 //
 // One row is one reading. Numbers use a decimal point. Blank lines and lines
 // starting with # are ignored. Readings at the same nominal pressure form one
@@ -41,7 +44,7 @@ const MaxRows = 1_000_000
 
 var columns = map[string]bool{
 	"cycle": true, "direction": true, "nominal": true, "reference": true, "dut": true, "unit": true,
-	"kind": false, "time": false, "note": false,
+	"kind": false, "time": false, "note": false, "reference_sd": false, "reference_samples": false,
 }
 
 // Read parses a recorded run. Errors name the line and column at fault.
@@ -61,7 +64,7 @@ func Read(r io.Reader) ([]analysis.Point, error) {
 		name := strings.ToLower(strings.TrimSpace(h))
 		if _, known := columns[name]; !known {
 			line, c := cr.FieldPos(i)
-			return nil, fmt.Errorf("recorded run: line %d, column %d: unknown column %q (known: cycle, direction, nominal, reference, dut, unit, kind, time, note)", line, c, h)
+			return nil, fmt.Errorf("recorded run: line %d, column %d: unknown column %q (known: cycle, direction, nominal, reference, dut, unit, kind, time, note, reference_sd, reference_samples)", line, c, h)
 		}
 		if _, dup := col[name]; dup {
 			line, c := cr.FieldPos(i)
@@ -178,8 +181,28 @@ func parseRow(cr *csv.Reader, rec []string, col map[string]int) (analysis.Point,
 			return p, fieldError(cr, i, "time", "%q is not an RFC 3339 time such as 2025-03-01T21:04:05Z", s)
 		}
 	}
-	// A typed-in reading is one sample: Count 1, no spread.
+	// A typed-in reading is one sample: Count 1, no spread, unless the
+	// table gives the window it was averaged from.
 	p.Reference = analysis.Window{Mean: ref, Count: 1, Start: at, End: at}
+	sd, err := number("reference_sd", true)
+	if err != nil {
+		return p, err
+	}
+	s, i = field("reference_samples")
+	switch {
+	case s == "" && sd == 0:
+	case s == "":
+		return p, fieldError(cr, col["reference_sd"], "reference_sd", "needs reference_samples, the number of samples it was computed from")
+	default:
+		n, err := strconv.Atoi(s)
+		if err != nil || n < 1 || n > 1_000_000_000 {
+			return p, fieldError(cr, i, "reference_samples", "%q is not a whole number of 1 or more", s)
+		}
+		if sd < 0 || (n == 1 && sd != 0) {
+			return p, fieldError(cr, col["reference_sd"], "reference_sd", "must be ≥ 0, and 0 for a single sample")
+		}
+		p.Reference.Count, p.Reference.StdDev = n, sd
+	}
 	p.DUT = analysis.Window{Mean: dut, Count: 1, Start: at, End: at}
 	p.Note, _ = field("note")
 	return p, nil

@@ -76,6 +76,10 @@ func TestReadErrors(t *testing.T) {
 		{"bad kind", "cycle,direction,nominal,reference,dut,unit,kind\n1,up,0,0,0,bar,spare\n", "(kind)"},
 		{"bad time", "cycle,direction,nominal,reference,dut,unit,time\n1,up,0,0,0,bar,yesterday\n", "(time)"},
 		{"bad quote", head + "1,up,0,\"0,0,bar\n", "recorded run"},
+		{"sd without samples", "cycle,direction,nominal,reference,dut,unit,reference_sd\n1,up,0,0,0,bar,0.001\n", "needs reference_samples"},
+		{"bad samples", "cycle,direction,nominal,reference,dut,unit,reference_sd,reference_samples\n1,up,0,0,0,bar,0.001,many\n", "line 2, column 22 (reference_samples)"},
+		{"negative sd", "cycle,direction,nominal,reference,dut,unit,reference_sd,reference_samples\n1,up,0,0,0,bar,-0.001,5\n", "must be ≥ 0"},
+		{"sd of one sample", "cycle,direction,nominal,reference,dut,unit,reference_sd,reference_samples\n1,up,0,0,0,bar,0.001,1\n", "0 for a single sample"},
 	} {
 		_, err := Read(strings.NewReader(c.in))
 		if err == nil || !strings.Contains(err.Error(), c.want) {
@@ -84,8 +88,26 @@ func TestReadErrors(t *testing.T) {
 	}
 }
 
+// The window columns carry the reference's scatter into the budget's
+// reference-noise term (s/√n, ν = n − 1; common practice).
+func TestReadReferenceWindow(t *testing.T) {
+	in := "cycle,direction,nominal,reference,dut,unit,reference_sd,reference_samples\n" +
+		"1,up,0,0,0,bar,,\n1,up,4,4.0001,4.01,bar,0.0004,16\n"
+	pts, err := Read(strings.NewReader(in))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if w := pts[1].Reference; w.Count != 16 || math.Abs(w.StdDev-40) > 1e-9 {
+		t.Errorf("window %+v, want 16 samples, SD 40 Pa", w)
+	}
+	if w := pts[0].Reference; w.Count != 1 || w.StdDev != 0 {
+		t.Errorf("blank window %+v, want one sample", w)
+	}
+}
+
 func FuzzRead(f *testing.F) {
 	f.Add(sample)
+	f.Add("cycle,direction,nominal,reference,dut,unit,reference_sd,reference_samples\n1,up,4,4,4.01,bar,0.0004,16\n")
 	f.Add("cycle,direction,nominal,reference,dut,unit\n1,up,0,0,0,bar\n")
 	f.Add("cycle,direction,nominal,reference,dut,unit,kind\n1,,,0,0,psi,zero-after\n")
 	f.Add("cycle,direction\n\"")
@@ -101,12 +123,12 @@ func FuzzRead(f *testing.F) {
 			t.Fatal("no points and no error")
 		}
 		for _, p := range pts {
-			for _, v := range []float64{p.Nominal, p.Reference.Mean, p.DUT.Mean} {
+			for _, v := range []float64{p.Nominal, p.Reference.Mean, p.DUT.Mean, p.Reference.StdDev} {
 				if math.IsNaN(v) || math.IsInf(v, 0) {
 					t.Fatalf("non-finite value in %+v", p)
 				}
 			}
-			if p.Cycle < 1 || p.Index < 0 || p.Reference.Count != 1 {
+			if p.Cycle < 1 || p.Index < 0 || p.Reference.Count < 1 || p.Reference.StdDev < 0 || (p.Reference.Count == 1 && p.Reference.StdDev != 0) {
 				t.Fatalf("bad point %+v", p)
 			}
 			if p.Kind == analysis.Measurement && p.Direction != analysis.Ascending && p.Direction != analysis.Descending {
