@@ -61,6 +61,8 @@ type Gauge struct {
 	bus  *drivers.Bus
 	rate drivers.RateMeter
 
+	releasePort func() // frees the process-wide claim on the device
+
 	// Below: touched only while holding bus.
 	port    port
 	nextTry time.Time
@@ -86,7 +88,13 @@ func OpenGauge(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, erro
 	if err != nil {
 		return nil, err
 	}
-	return newGauge(inst.Name, opts, conv, env), nil
+	release, err := drivers.ClaimPort(opts.Device, "line instrument "+strconv.Quote(inst.Name))
+	if err != nil {
+		return nil, err
+	}
+	g := newGauge(inst.Name, opts, conv, env)
+	g.releasePort = release
+	return g, nil
 }
 
 func newGauge(name string, opts options, conv drivers.Conversion, env drivers.OpenEnv) *Gauge {
@@ -326,9 +334,13 @@ func (g *Gauge) takeLine(partial bool) (string, bool) {
 	return line, found
 }
 
-// Close waits for a running read, refuses later ones and closes the port.
+// Close waits for a running read, refuses later ones, closes the port and
+// lets go of the device.
 func (g *Gauge) Close() error {
 	g.bus.Close() // from here on this goroutine is the port's only user
+	if g.releasePort != nil {
+		defer g.releasePort()
+	}
 	if g.port == nil {
 		return nil
 	}

@@ -79,3 +79,28 @@ func TestNonFiniteRepliesAreBadReplies(t *testing.T) {
 		}
 	}
 }
+
+// Two line instruments on one device would interleave their queries: the
+// second is refused at open, and the device is free again after Close.
+func TestOnePortOneInstrument(t *testing.T) {
+	_, dev := instrumentPty(t)
+	in := config.Instrument{Name: "ref", Unit: "bar", Line: config.LineProtocol{Query: "PR?", Terminator: "\r\n", Overload: common},
+		Link: config.Link{Kind: config.LinkSerial, Address: dev, Baud: 9600, DataBits: 8, Parity: "none", StopBits: 1, Timeout: time.Second}}
+	g, err := drivers.OpenGauge(in, drivers.OpenEnv{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	in.Name = "dut"
+	if g2, err := drivers.OpenGauge(in, drivers.OpenEnv{}); err == nil {
+		g2.Close()
+		t.Fatal("a second instrument opened on the same port")
+	} else if !strings.Contains(err.Error(), `line instrument "ref"`) {
+		t.Errorf("error %q does not name the owner", err)
+	}
+	g.Close()
+	g2, err := drivers.OpenGauge(in, drivers.OpenEnv{})
+	if err != nil {
+		t.Fatalf("after Close: %v", err)
+	}
+	g2.Close()
+}

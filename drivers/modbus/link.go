@@ -29,6 +29,15 @@ const maxBackoff = 30 * time.Second
 // Parity of a serial line.
 type Parity uint
 
+func (p Parity) String() string {
+	for name, q := range parities {
+		if q == p {
+			return name
+		}
+	}
+	return fmt.Sprintf("parity(%d)", uint(p))
+}
+
 // The parities a UART offers, as the Modbus library numbers them.
 const (
 	ParityNone Parity = Parity(mb.PARITY_NONE)
@@ -43,6 +52,7 @@ var parities = map[string]Parity{"none": ParityNone, "even": ParityEven, "odd": 
 // link cannot work without is an error at open that names it.
 type LinkOptions struct {
 	URL      string // tcp://host:port, rtu:///dev/ttyUSB0, rtuovertcp://host:port
+	Address  string // host:port or the serial device
 	Serial   bool   // the serial settings below apply (RTU on a local port)
 	Baud     int
 	DataBits int
@@ -68,7 +78,7 @@ func linkOptions(l config.Link) (LinkOptions, error) {
 	if strings.TrimSpace(l.Address) == "" {
 		return LinkOptions{}, fmt.Errorf("link.address is empty: give host:port or a serial device path")
 	}
-	o := LinkOptions{URL: scheme + "://" + l.Address, Serial: l.Kind == config.LinkModbusRTU,
+	o := LinkOptions{URL: scheme + "://" + l.Address, Address: l.Address, Serial: l.Kind == config.LinkModbusRTU,
 		Timeout: l.Timeout, Retries: l.Retries, Backoff: l.Backoff, Pause: l.Pause}
 	var errs []error
 	if l.Timeout <= 0 {
@@ -106,20 +116,52 @@ type link struct {
 	bus  *drivers.Bus
 	log  *slog.Logger
 
-	client  *mb.ModbusClient
-	up      bool
-	unit    uint8 // the client's unit id, to skip setting it again
-	backoff time.Duration
-	nextTry time.Time
+	client      *mb.ModbusClient
+	releasePort func() // frees the process-wide claim on a serial device
+	up          bool
+	unit        uint8 // the client's unit id, to skip setting it again
+	backoff     time.Duration
+	nextTry     time.Time
 }
 
 // links shares one link per URL across every instrument of the process.
 var links drivers.Shared[*link]
 
+// acquireLink returns the link for opts.URL, made on first use. The link's
+// settings are the line's, so every instrument on it must give the same
+// ones; a difference is an error rather than a silent choice of one of them.
 func acquireLink(opts LinkOptions, log *slog.Logger) (*link, func() error, error) {
-	return links.Acquire(opts.URL, func() (*link, error) {
+	l, release, err := links.Acquire(opts.URL, func() (*link, error) {
 		return newLink(opts, log)
 	})
+	if err != nil {
+		return nil, nil, err
+	}
+	if l.opts != opts {
+		release()
+		return nil, nil, fmt.Errorf("link %s is already open with other settings (%s): instruments on one connection or port must agree",
+			opts.URL, l.opts.differences(opts))
+	}
+	return l, release, nil
+}
+
+// differences names the settings in which o and p differ.
+func (o LinkOptions) differences(p LinkOptions) string {
+	var d []string
+	add := func(key string, a, b any) {
+		if a != b {
+			d = append(d, fmt.Sprintf("link.%s %v, not %v", key, a, b))
+		}
+	}
+	add("baud", o.Baud, p.Baud)
+	add("data_bits", o.DataBits, p.DataBits)
+	add("parity", o.Parity, p.Parity)
+	add("stop_bits", o.StopBits, p.StopBits)
+	add("timeout", o.Timeout, p.Timeout)
+	add("retries", o.Retries, p.Retries)
+	add("backoff", o.Backoff, p.Backoff)
+	add("pause", o.Pause, p.Pause)
+	return strings.Join(d, "; ")
 }
 
 func newLink(opts LinkOptions, log *slog.Logger) (*link, error) {
@@ -135,7 +177,13 @@ func newLink(opts LinkOptions, log *slog.Logger) (*link, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modbus client %s: %w", opts.URL, err)
 	}
-	return &link{opts: opts, bus: drivers.NewBus(opts.Pause), log: log, client: c, backoff: opts.Backoff}, nil
+	l := &link{opts: opts, bus: drivers.NewBus(opts.Pause), log: log, client: c, backoff: opts.Backoff}
+	if opts.Serial {
+		if l.releasePort, err = drivers.ClaimPort(opts.Address, "Modbus RTU link "+opts.URL); err != nil {
+			return nil, err
+		}
+	}
+	return l, nil
 }
 
 func (l *link) Close() error {
@@ -143,6 +191,9 @@ func (l *link) Close() error {
 	if l.up {
 		l.up = false
 		err = errors.Join(err, l.client.Close())
+	}
+	if l.releasePort != nil {
+		l.releasePort()
 	}
 	return err
 }

@@ -113,3 +113,44 @@ func TestLineReadsPerSecond(t *testing.T) {
 		}
 	}
 }
+
+// Instruments on one connection share its settings: a second one that
+// gives other settings is refused at open, naming what differs.
+func TestSharedLinkSettingsMustAgree(t *testing.T) {
+	a := inst("ref", config.LinkModbusTCP, "127.0.0.1:1502", config.ValueRead{Register: 1, Type: "uint16"})
+	g, err := drivers.OpenGauge(a, drivers.OpenEnv{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer g.Close()
+	b := a
+	b.Name, b.Link.UnitID = "dut", 2 // another unit on the same connection: fine
+	g2, err := drivers.OpenGauge(b, drivers.OpenEnv{})
+	if err != nil {
+		t.Fatalf("same settings, other unit: %v", err)
+	}
+	g2.Close()
+	b.Link.Timeout, b.Link.Pause = 2*time.Second, 5*time.Millisecond
+	if g3, err := drivers.OpenGauge(b, drivers.OpenEnv{}); err == nil {
+		g3.Close()
+		t.Fatal("other settings on a shared connection accepted")
+	} else if !strings.Contains(err.Error(), "link.timeout 500ms, not 2s") || !strings.Contains(err.Error(), "link.pause 0s, not 5ms") {
+		t.Errorf("error %q does not name the differences", err)
+	}
+	if n := links.Users("tcp://127.0.0.1:1502"); n != 1 {
+		t.Errorf("users after the refused open: %d, want 1", n)
+	}
+}
+
+// A Modbus RTU link and a line instrument cannot share a serial device.
+func TestRTULinkOwnsItsPort(t *testing.T) {
+	dev, _ := startLine(t, 1)
+	g, err := drivers.OpenGauge(inst("dut", config.LinkModbusRTU, dev, config.ValueRead{Register: 0, Type: "float32"}), drivers.OpenEnv{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer g.Close()
+	if _, err := drivers.ClaimPort(dev, "line instrument"); err == nil || !strings.Contains(err.Error(), "Modbus RTU link") {
+		t.Errorf("claim of the link's port: %v", err)
+	}
+}
