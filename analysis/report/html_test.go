@@ -32,6 +32,8 @@ func TestHTMLContent(t *testing.T) {
 		"PG-0417", "CAL-2025-118", "hydraulic oil", "Verdict: CONDITIONAL PASS", "ILAC-G8:09/2019 §4.2.3",
 		"Uncertainty budget per point", "resolution of the device", "@page", "break-inside: avoid",
 		"DG-10 &lt;digital&gt;", "as found &amp; adjusted",
+		"Judgement per point", "U of one reading", "MPE / U<br>reference", "not evaluated", "Correction curve",
+		"a value exactly on a limit counts as within it", "covers about 95 %",
 	} {
 		if !strings.Contains(page, want) {
 			t.Errorf("page lacks %q", want)

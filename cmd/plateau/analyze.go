@@ -36,8 +36,8 @@ type analyzeFlags struct {
 	// Uncertainty budget and coverage.
 	coverage, refStability, refStabilityFloor, refResolution string
 	tempCoefficient, hysteresisLimit                         string
-	ambient                                                  string
-	k, referenceTemperature                                  float64
+	ambient, referenceTemperature                            string
+	k                                                        float64
 	interpolation                                            bool
 	// How the run ended, for a table recorded elsewhere.
 	state, reason string
@@ -97,7 +97,7 @@ effective degrees of freedom instead of the conventional k = 2.`,
 	fl.StringVar(&f.refStabilityFloor, "ref-stability-floor", "", `reference drift since its calibration, constant half-width, e.g. "0.05 mbar"`)
 	fl.StringVar(&f.refResolution, "ref-resolution", "", `resolution of the reference, e.g. "0.001 bar"`)
 	fl.StringVar(&f.tempCoefficient, "temp-coefficient", "", `device temperature effect in % of span per kelvin, e.g. "0.04 %"`)
-	fl.Float64Var(&f.referenceTemperature, "reference-temperature", 20, "the device's reference temperature, °C (with --temp-coefficient)")
+	fl.StringVar(&f.referenceTemperature, "reference-temperature", "", "the device's reference temperature, °C (overrides device.reference_temperature; default 20)")
 	fl.StringVar(&f.ambient, "ambient", "", "ambient temperature during the run, °C, e.g. 23.5 (with --temp-coefficient)")
 	fl.StringVar(&f.hysteresisLimit, "hysteresis-limit", "", `hysteresis limit of the device's specification in % of span, e.g. "0.5 %" (EN 837-1 classes: the MPE)`)
 	fl.BoolVar(&f.interpolation, "interpolation-in-budget", false, "add the correction curve's interpolation term to every point's budget")
@@ -340,15 +340,24 @@ func (f analyzeFlags) applyBudget(dev *analysis.Device, ref *analysis.Reference,
 		}
 		*p.dst = pa
 	}
-	if f.tempCoefficient != "" {
-		dev.ReferenceTemperatureC = f.referenceTemperature
+	if f.tempCoefficient != "" && dev.ReferenceTemperatureC == 0 {
+		dev.ReferenceTemperatureC = 20 // no configuration: the usual reference temperature
 	}
-	if f.ambient != "" {
-		a, err := strconv.ParseFloat(strings.TrimSpace(strings.TrimSuffix(strings.TrimSpace(f.ambient), "°C")), 64)
-		if err != nil || math.IsNaN(a) || math.IsInf(a, 0) {
-			return fmt.Errorf("--ambient %q: give a temperature in °C such as 23.5", f.ambient)
+	for _, t := range []struct {
+		flag, value string
+		dst         func(float64)
+	}{
+		{"--reference-temperature", f.referenceTemperature, func(v float64) { dev.ReferenceTemperatureC = v }},
+		{"--ambient", f.ambient, func(v float64) { opt.AmbientC = &v }},
+	} {
+		if t.value == "" {
+			continue
 		}
-		opt.AmbientC = &a
+		v, err := strconv.ParseFloat(strings.TrimSpace(strings.TrimSuffix(strings.TrimSpace(t.value), "°C")), 64)
+		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+			return fmt.Errorf("%s %q: give a temperature in °C such as 23.5", t.flag, t.value)
+		}
+		t.dst(v)
 	}
 	if f.interpolation {
 		opt.InterpolationInBudget = true

@@ -153,6 +153,60 @@ func TestAnalyzeWithConfig(t *testing.T) {
 	}
 }
 
+// The budget keys of the configuration reach the analysis (here through
+// the environment, as a technician would override them for one run).
+func TestAnalyzeBudgetKeys(t *testing.T) {
+	cfg := filepath.Join(mustWd(t), "../../testdata/config/sim.yaml")
+	t.Setenv("PLATEAU_REFERENCE_RESOLUTION", "0.1 mbar")
+	t.Setenv("PLATEAU_REFERENCE_STABILITY", "0.005")
+	t.Setenv("PLATEAU_PROCEDURE_COVERAGE", "student-t")
+	t.Setenv("PLATEAU_DEVICE_HYSTERESIS_LIMIT", "0.25")
+	t.Setenv("PLATEAU_DEVICE_TEMPERATURE_COEFFICIENT", "0.04")
+	out, err := runPlateau(t, "--config", cfg, "analyze", deadweight, "--format", "json", "--rule", "simple", "--ambient", "25")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc struct {
+		Result struct {
+			Coverage struct{ Method string } `json:"coverage"`
+			Device   struct {
+				Accuracy struct {
+					Hysteresis float64 `json:"hysteresis_percent_of_span"`
+				} `json:"accuracy"`
+				TempCoefficient float64 `json:"temperature_coefficient_percent_span_per_k"`
+				ReferenceC      float64 `json:"reference_temperature_c"`
+			} `json:"device"`
+			Reference struct {
+				Stability    float64 `json:"stability_percent_of_reading"`
+				ResolutionPa float64 `json:"resolution_pa"`
+			} `json:"reference"`
+			Points []struct {
+				Budget []struct {
+					Name      string
+					Evaluated bool
+				}
+			} `json:"points"`
+		} `json:"result"`
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	r := doc.Result
+	if r.Coverage.Method != "student-t" || r.Device.Accuracy.Hysteresis != 0.25 || r.Device.TempCoefficient != 0.04 || r.Device.ReferenceC != 20 ||
+		r.Reference.Stability != 0.005 || r.Reference.ResolutionPa != 10 {
+		t.Fatalf("configuration not mapped: %+v", r)
+	}
+	evaluated := map[string]bool{}
+	for _, c := range r.Points[1].Budget {
+		evaluated[c.Name] = c.Evaluated
+	}
+	for _, name := range []string{"reference_stability", "reference_resolution", "temperature"} {
+		if !evaluated[name] {
+			t.Errorf("%s not evaluated: %v", name, evaluated)
+		}
+	}
+}
+
 func mustWd(t *testing.T) string {
 	t.Helper()
 	wd, err := os.Getwd()
