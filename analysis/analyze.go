@@ -391,7 +391,7 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 		if pr.ExpandedRatio != nil {
 			minExp = math.Min(minExp, *pr.ExpandedRatio)
 		}
-		warnings = append(warnings, pointWarnings(*pr, readingsByPoint[n], dev, opt, say)...)
+		warnings = append(warnings, pointWarnings(*pr, dev, opt, say)...)
 	}
 	res.MaxErrorSpanPercentSpan = res.MaxErrorSpanPa / span * 100
 	if !math.IsInf(minRef, 1) {
@@ -806,7 +806,7 @@ func summarise(rs []reading) *SeriesSummary {
 
 // pointWarnings explain a point's verdict and what limits it, in the
 // display unit and with the table's point numbers.
-func pointWarnings(pr PointResult, rs []reading, dev Device, opt Options, say messages) []string {
+func pointWarnings(pr PointResult, dev Device, opt Options, say messages) []string {
 	var w []string
 	at := fmt.Sprintf("point %d (%s)", pr.Index+1, say.p(pr.NominalPa))
 	for _, c := range pr.HysteresisCycles {
@@ -939,8 +939,8 @@ func correctionCurve(indication, reference []float64, degree int) (*CorrectionCu
 		sse += r * r
 	}
 	c.PowerCoefficients = p.PowerSeries()
-	if dof := len(indication) - degree - 1; dof > 0 {
-		c.ResidualSDPa = math.Sqrt(sse / float64(dof))
+	if free := len(indication) - degree - 1; free > 0 {
+		c.ResidualSDPa = math.Sqrt(sse / float64(free))
 		c.CoefficientSD, c.Correlation = p.coefficientCovariance(indication, c.ResidualSDPa)
 		c.InterpolationPa = c.MaxResidualPa / math.Sqrt(3)
 		c.InterpolationEvaluated = true
