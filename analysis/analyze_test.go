@@ -537,6 +537,22 @@ func TestCompare(t *testing.T) {
 	if math.Abs(c.LargestChangePa()-(16*bar*0.004+280)) > 1e-8 {
 		t.Errorf("largest change %g", c.LargestChangePa())
 	}
+	// A point missing from one side is named as the table numbers it, in the device's unit.
+	dev := dev16
+	dev.Unit = "bar"
+	var partial []Point
+	for _, p := range synth(2, func(p float64, _ int, _ Direction) float64 { return p + 20 }) {
+		if p.Index != 4 {
+			partial = append(partial, p)
+		}
+	}
+	short, err := Analyze(partial, dev, ref16, Options{Rule: RuleSimple})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c, err := Compare(found, short); err != nil || len(c.Warnings) != 1 || c.Warnings[0] != "point 5 (8 bar) has no as-left reading" {
+		t.Errorf("warnings %q (%v)", c.Warnings, err)
+	}
 	other := dev16
 	other.UpperPa = 25 * bar
 	left.Device = other

@@ -4,6 +4,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
+
+	"plateau/analysis/units"
 )
 
 // Comparison sets an as-left result beside the as-found result of the same
@@ -44,6 +46,12 @@ func Compare(asFound, asLeft Result) (Comparison, error) {
 	if asFound.DecisionRule != asLeft.DecisionRule {
 		c.Warnings = append(c.Warnings, fmt.Sprintf("decision rules differ: as-found %q, as-left %q", asFound.DecisionRule, asLeft.DecisionRule))
 	}
+	// Messages in the device's unit, points numbered as in the table.
+	u, _ := units.Lookup(asLeft.Device.Unit)
+	if u.Pa == 0 {
+		u = units.Pascal
+	}
+	say := messages{u}
 	left := map[int]PointResult{}
 	for _, p := range asLeft.Points {
 		left[p.Index] = p
@@ -51,12 +59,12 @@ func Compare(asFound, asLeft Result) (Comparison, error) {
 	for _, f := range asFound.Points {
 		l, ok := left[f.Index]
 		if !ok {
-			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (nominal %g Pa) has no as-left reading", f.Index, f.NominalPa))
+			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (%s) has no as-left reading", f.Index+1, say.p(f.NominalPa)))
 			continue
 		}
 		delete(left, f.Index)
 		if f.NominalPa != l.NominalPa {
-			return Comparison{}, fmt.Errorf("compare: point %d is nominal %g Pa as found but %g Pa as left", f.Index, f.NominalPa, l.NominalPa)
+			return Comparison{}, fmt.Errorf("compare: point %d is nominal %s as found but %s as left", f.Index+1, say.p(f.NominalPa), say.p(l.NominalPa))
 		}
 		c.Points = append(c.Points, PointChange{
 			Index: f.Index, NominalPa: f.NominalPa,
@@ -68,7 +76,7 @@ func Compare(asFound, asLeft Result) (Comparison, error) {
 	}
 	for _, p := range asLeft.Points {
 		if _, ok := left[p.Index]; ok {
-			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (nominal %g Pa) has no as-found reading", p.Index, p.NominalPa))
+			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (%s) has no as-found reading", p.Index+1, say.p(p.NominalPa)))
 		}
 	}
 	if len(c.Points) == 0 {
