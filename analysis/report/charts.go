@@ -170,14 +170,21 @@ func (e errPoints) Len() int                        { return len(e) }
 func (e errPoints) XY(i int) (float64, float64)     { return e[i].x, e[i].y }
 func (e errPoints) YError(i int) (float64, float64) { return e[i].e, e[i].e }
 
-// hysteresisChart: hysteresis at each nominal point, as bars.
+// hysteresisChart: hysteresis at each nominal point, as bars; points
+// without both directions are left out rather than drawn as zero, and
+// without any there is no chart.
 func hysteresisChart(n numbers, res analysis.Result) (*chart, error) {
 	p := newPlot("nominal pressure / "+n.u.Symbol, "hysteresis / "+n.u.Symbol)
-	vals := make(plotter.Values, len(res.Points))
-	names := make([]string, len(res.Points))
-	for i, pt := range res.Points {
-		vals[i] = n.u.FromPa(pt.HysteresisPa)
-		names[i] = fmt.Sprintf("%.6g", n.u.FromPa(pt.NominalPa))
+	var vals plotter.Values
+	var names []string
+	for _, pt := range res.Points {
+		if pt.HysteresisEvaluated {
+			vals = append(vals, n.u.FromPa(pt.HysteresisPa))
+			names = append(names, fmt.Sprintf("%.6g", n.u.FromPa(pt.NominalPa)))
+		}
+	}
+	if len(vals) == 0 {
+		return nil, nil
 	}
 	b, err := plotter.NewBarChart(vals, vg.Points(18))
 	if err != nil {

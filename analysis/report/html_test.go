@@ -100,3 +100,16 @@ func BenchmarkText(b *testing.B) {
 		}
 	}
 }
+
+// Points without both directions have no hysteresis to draw: no chart
+// of zeros.
+func TestHTMLNoHysteresisChart(t *testing.T) {
+	info, res := scenario(t)
+	for i := range res.Points {
+		res.Points[i].HysteresisEvaluated = false
+	}
+	page := renderHTML(t, info, res)
+	if strings.Contains(page, "<h3>Hysteresis</h3>") || strings.Count(page, "<svg") != 3 {
+		t.Errorf("page draws a hysteresis chart without hysteresis (%d charts)", strings.Count(page, "<svg"))
+	}
+}
