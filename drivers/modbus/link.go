@@ -120,6 +120,7 @@ type link struct {
 	releasePort func() // frees the process-wide claim on a serial device
 	up          bool
 	unit        uint8 // the client's unit id, to skip setting it again
+	units       map[uint8]*unitState
 	backoff     time.Duration
 	nextTry     time.Time
 }
@@ -177,7 +178,7 @@ func newLink(opts LinkOptions, log *slog.Logger) (*link, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modbus client %s: %w", opts.URL, err)
 	}
-	l := &link{opts: opts, bus: drivers.NewBus(opts.Pause), log: log, client: c, backoff: opts.Backoff}
+	l := &link{opts: opts, bus: drivers.NewBus(opts.Pause), log: log, client: c, backoff: opts.Backoff, units: map[uint8]*unitState{}}
 	if opts.Serial {
 		if l.releasePort, err = drivers.ClaimPort(opts.Address, "Modbus RTU link "+opts.URL); err != nil {
 			return nil, err
@@ -279,7 +280,70 @@ func (l *link) run(ctx context.Context, o *op) (result, error) {
 		return result{}, err
 	}
 	defer l.bus.Release()
-	return l.exchange(ctx, o)
+	u := l.unitState(o.unit)
+	if err := u.benched(o, len(l.units)); err != nil {
+		return result{}, err
+	}
+	r, err := l.exchange(ctx, o)
+	u.after(err, l.opts.Backoff)
+	return r, err
+}
+
+// silentAfter is how many requests in a row a unit may leave unanswered
+// before it is benched on a line it shares with others: one lost frame is
+// noise, two are a unit that is off or unplugged.
+const silentAfter = 2
+
+// unitState is what a link knows of one unit; touched only while holding
+// the bus.
+type unitState struct {
+	unit    uint8
+	silent  int           // requests in a row without an answer
+	backoff time.Duration // the next benching, doubling up to maxBackoff
+	until   time.Time     // benched until then
+}
+
+var errSilent = errors.New("unit not answering")
+
+func (l *link) unitState(unit uint8) *unitState {
+	u, ok := l.units[unit]
+	if !ok {
+		u = &unitState{unit: unit}
+		l.units[unit] = u
+	}
+	return u
+}
+
+// benched refuses an ordinary request to a unit that has stopped answering,
+// so that a device that stays down does not hold the line for its
+// time-out on every turn while the others wait. It is asked again when its
+// back-off ends. A vent is never refused.
+func (u *unitState) benched(o *op, units int) error {
+	if o.urgent || units < 2 || u.until.IsZero() {
+		return nil
+	}
+	if left := time.Until(u.until); left > 0 {
+		return fmt.Errorf("%w: unit %d left its last %d requests unanswered; asked again in %s",
+			errSilent, u.unit, u.silent, left.Round(time.Millisecond))
+	}
+	return nil
+}
+
+// after updates the unit's state with the outcome of an exchange.
+func (u *unitState) after(err error, backoff time.Duration) {
+	switch {
+	case err == nil, isModbusError(err) && !errors.Is(err, mb.ErrRequestTimedOut):
+		*u = unitState{unit: u.unit} // it answered, even if with an exception or a damaged frame
+	case errors.Is(err, mb.ErrRequestTimedOut):
+		u.silent++
+		if u.silent >= silentAfter && backoff > 0 {
+			if u.backoff == 0 {
+				u.backoff = backoff
+			}
+			u.until = time.Now().Add(u.backoff)
+			u.backoff = min(2*u.backoff, maxBackoff)
+		}
+	}
 }
 
 func (l *link) exchange(ctx context.Context, o *op) (result, error) {
@@ -401,7 +465,7 @@ func retryable(err error) bool {
 func kindOf(err error) drivers.Kind {
 	switch {
 	case errors.Is(err, mb.ErrRequestTimedOut), errors.Is(err, mb.ErrGWTargetFailedToRespond),
-		errors.Is(err, context.DeadlineExceeded):
+		errors.Is(err, context.DeadlineExceeded), errors.Is(err, errSilent):
 		return drivers.KindTimeout
 	case errors.Is(err, errDown), errors.Is(err, mb.ErrGWPathUnavailable), errors.Is(err, drivers.ErrBusClosed),
 		errors.Is(err, context.Canceled), !isModbusError(err):

@@ -1,10 +1,13 @@
 package modbus
 
 import (
+	"io"
 	"math"
 	"strings"
 	"testing"
 	"time"
+
+	mb "github.com/simonvetter/modbus"
 
 	"plateau/config"
 	"plateau/drivers"
@@ -152,5 +155,49 @@ func TestRTULinkOwnsItsPort(t *testing.T) {
 	defer g.Close()
 	if _, err := drivers.ClaimPort(dev, "line instrument"); err == nil || !strings.Contains(err.Error(), "Modbus RTU link") {
 		t.Errorf("claim of the link's port: %v", err)
+	}
+}
+
+// A unit is benched after two unanswered requests in a row, for the back-off,
+// doubling up to 30 s; any answer clears it, an exception too; a transport
+// error says nothing about the unit; a vent is never refused; a unit alone
+// on its link is never benched.
+func TestUnitBenching(t *testing.T) {
+	timeout := mb.ErrRequestTimedOut
+	steps := []struct {
+		err         error
+		wantBenched bool
+		wantBackoff time.Duration // the next one
+	}{
+		{timeout, false, 0},
+		{mb.ErrIllegalDataAddress, false, 0}, // it answered
+		{timeout, false, 0},
+		{io.EOF, false, 0}, // the connection, not the unit
+		{timeout, true, 2 * time.Second},
+		{timeout, true, 4 * time.Second},
+		{nil, false, 0},
+		{timeout, false, 0},
+	}
+	u := &unitState{unit: 3}
+	read := &op{code: opReadRegisters, unit: 3}
+	vent := &op{code: opWriteCoil, urgent: true, unit: 3}
+	for i, s := range steps {
+		u.after(s.err, time.Second)
+		err := u.benched(read, 8)
+		if (err != nil) != s.wantBenched || u.backoff != s.wantBackoff {
+			t.Errorf("step %d (%v): benched %v, next back-off %s; want %v, %s", i, s.err, err, u.backoff, s.wantBenched, s.wantBackoff)
+		}
+		if err != nil && drivers.KindOf(drivers.Fail("dut", kindOf(err), err)) != drivers.KindTimeout {
+			t.Errorf("step %d: a benched read is kind %s, want timeout", i, kindOf(err))
+		}
+		if u.benched(vent, 8) != nil || u.benched(read, 1) != nil {
+			t.Errorf("step %d: a vent, or a unit alone on its link, was refused", i)
+		}
+	}
+	for range 10 {
+		u.after(timeout, time.Second)
+	}
+	if u.backoff != maxBackoff {
+		t.Errorf("back-off %s after many silences, want the cap %s", u.backoff, maxBackoff)
 	}
 }

@@ -9,6 +9,7 @@ import (
 	"os"
 	"slices"
 	"strconv"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"testing"
@@ -41,6 +42,8 @@ func charTime(baud int) time.Duration { return 11 * time.Second / time.Duration(
 type lineUnits struct {
 	n      int
 	baud   int
+	off    uint8 // a unit that is switched off: asked, never answers
+	asked  [248]atomic.Int64
 	served [248]atomic.Int64
 }
 
@@ -62,7 +65,8 @@ func (l *lineUnits) serve(master *os.File) {
 			}
 			buf = buf[8:]
 			unit, fc, count := req[0], req[1], binary.BigEndian.Uint16(req[4:6])
-			if unit < 1 || int(unit) > l.n || (fc != 3 && fc != 4) || count == 0 || count%2 != 0 || count > 124 {
+			l.asked[unit].Add(1)
+			if unit == l.off || unit < 1 || int(unit) > l.n || (fc != 3 && fc != 4) || count == 0 || count%2 != 0 || count > 124 {
 				continue // not ours, or not a read this responder serves: stay silent
 			}
 			bits := math.Float32bits(float32(unit))
@@ -257,4 +261,60 @@ func TestRTULineTakesTurns(t *testing.T) {
 	}
 	b := bareRound(t, dev, units, 300*time.Millisecond)
 	t.Logf("driver %.1f reads/s %v, bare %.1f reads/s, wire limit %.1f", r.perSecond, r.perUnit, b.perSecond, LineReadsPerSecond(lineBaud, 2, 0))
+}
+
+// A unit that is switched off must not hold the line for its time-out on
+// every turn: after two unanswered requests it is benched (asked again when
+// its back-off ends) and the others share the line. Without that, asked in
+// turn, it would be asked as often as each live unit.
+func TestSilentUnitDoesNotHoldTheLine(t *testing.T) {
+	const units = 8
+	dev, line := startLine(t, units)
+	line.off = 3
+	gauges := make([]drivers.Gauge, units)
+	for i := range gauges {
+		in := inst("dev"+strconv.Itoa(i+1), config.LinkModbusRTU, dev, config.ValueRead{Register: 0, Type: "float32"})
+		in.Link.UnitID, in.Link.Retries = i+1, 0
+		in.Link.Timeout, in.Link.Backoff = 500*time.Millisecond, time.Second
+		gauges[i] = mustOpen(t, in)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Second)
+	defer cancel()
+	var wg sync.WaitGroup
+	var benched atomic.Int64
+	for i, g := range gauges {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for ctx.Err() == nil {
+				_, err := g.Read(ctx)
+				switch {
+				case err == nil && i+1 == int(line.off):
+					t.Error("the switched-off unit answered")
+				case err != nil && ctx.Err() == nil && i+1 != int(line.off):
+					t.Errorf("unit %d: %v", i+1, err)
+				case err != nil && ctx.Err() == nil:
+					if drivers.KindOf(err) != drivers.KindTimeout {
+						t.Errorf("switched-off unit: kind %s, want timeout (%v)", drivers.KindOf(err), err)
+					}
+					if strings.Contains(err.Error(), "asked again in") {
+						benched.Add(1)
+					}
+					time.Sleep(10 * time.Millisecond) // as a poller waits after a failure
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	off := line.asked[line.off].Load()
+	fewest := int64(math.MaxInt64)
+	for u := 1; u <= units; u++ {
+		if u != int(line.off) {
+			fewest = min(fewest, line.served[u].Load())
+		}
+	}
+	t.Logf("switched-off unit asked %d times, each live unit at least %d; %d reads refused while benched", off, fewest, benched.Load())
+	if benched.Load() == 0 || 3*off > fewest {
+		t.Errorf("switched-off unit asked %d times against %d for the live ones: it holds the line", off, fewest)
+	}
 }
