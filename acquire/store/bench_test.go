@@ -206,6 +206,59 @@ func benchDay(b *testing.B, n int, jitter time.Duration) {
 	}
 }
 
+// dayStore writes a day of the bench (n samples) into a closed store file.
+func dayStore(tb testing.TB, n int) (string, RunID) {
+	s, path, run := benchStore(tb)
+	ingest(tb, s, run, n, 0)
+	if err := s.Close(); err != nil {
+		tb.Fatal(err)
+	}
+	return path, run
+}
+
+// BenchmarkDownsampleDay asks for the reference of a day of two
+// instruments at 20 Hz in 1000 buckets (min, max, mean each).
+func BenchmarkDownsampleDay(b *testing.B) { benchDownsample(b, dayOfTwo) }
+
+func benchDownsample(b *testing.B, n int) {
+	path, run := dayStore(b, n)
+	s, err := Open(path, Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer s.Close()
+	for b.Loop() {
+		bs, err := s.Downsample(run, benchInstruments[0], time.Time{}, time.Time{}, 1000)
+		if err != nil || len(bs) != 1000 {
+			b.Fatalf("%d buckets, %v", len(bs), err)
+		}
+	}
+}
+
+// BenchmarkOpenCheckDay opens the day's store with the bounded check the
+// daemon runs at start, and reports the full check (what verify reads).
+func BenchmarkOpenCheckDay(b *testing.B) { benchOpenCheck(b, dayOfTwo) }
+
+func benchOpenCheck(b *testing.B, n int) {
+	path, _ := dayStore(b, n)
+	var full time.Duration
+	for b.Loop() {
+		s, err := Open(path, Options{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		b.StopTimer()
+		start := time.Now()
+		if err := s.Check(); err != nil {
+			b.Fatal(err)
+		}
+		full += time.Since(start)
+		s.Close()
+		b.StartTimer()
+	}
+	b.ReportMetric(full.Seconds()/float64(b.N), "full-check-s")
+}
+
 // BenchmarkAddPoint measures one committed point (one fsync'd Update).
 func BenchmarkAddPoint(b *testing.B) {
 	s, path, run := benchStore(b)
@@ -228,5 +281,10 @@ func TestBenchmarkBodies(t *testing.T) {
 	for _, jitter := range []time.Duration{0, 20 * time.Microsecond} {
 		f := dayAgainstBare(t, 20_000, jitter)
 		t.Logf("jitter %v: %.2f file bytes/sample (small files are mostly fixed overhead), %.2f × bare speed", jitter, f.bytesPerSample, f.bare.Seconds()/f.store.Seconds())
+	}
+	for name, body := range map[string]func(*testing.B, int){"downsample": benchDownsample, "open check": benchOpenCheck} {
+		if r := testing.Benchmark(func(b *testing.B) { body(b, 20_000) }); r.N == 0 {
+			t.Errorf("%s: the benchmark body did not run", name)
+		}
 	}
 }

@@ -84,13 +84,9 @@ func (s *Store) Downsample(run RunID, instrument string, from, to time.Time, buc
 // of an instrument in a run (ok false when there is none).
 func (s *Store) streamSpan(run RunID, instrument string) (first, last time.Time, ok bool, err error) {
 	err = s.view("sample span", func(tx *bolt.Tx) error {
-		rb, err := runBucket(tx, run)
-		if err != nil {
-			return err
-		}
-		b := rb.Bucket(bucketSamples).Bucket([]byte(instrument))
+		b, err := sampleStream(tx, run, instrument)
 		if b == nil {
-			return nil
+			return err
 		}
 		c := b.Cursor()
 		k, v := c.First()

@@ -77,7 +77,7 @@ func (s *Store) AddEvent(e Event) (uint64, error) {
 // the next batch of samples; meant for frequent events such as read errors.
 // committed, when not nil, is called from the writer goroutine after the
 // commit, with the id filled in or the commit error; it must not block long
-// and must not call Flush or Close.
+// and must not call Flush, AddPoint (which flushes first) or Close.
 func (s *Store) QueueEvent(e Event, committed func(Event, error)) error {
 	e, err := s.prepareEvent(e)
 	if err != nil {

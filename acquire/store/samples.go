@@ -278,6 +278,16 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 	return nil
 }
 
+// sampleStream returns the instrument's sample bucket of the run for
+// reading: nil when the instrument has no samples, ErrNoRun without a run.
+func sampleStream(tx *bolt.Tx, run RunID, instrument string) (*bolt.Bucket, error) {
+	rb, err := runBucket(tx, run)
+	if err != nil {
+		return nil, err
+	}
+	return rb.Bucket(bucketSamples).Bucket([]byte(instrument)), nil
+}
+
 // sampleBucket returns the instrument's sample bucket of the run, creating
 // it on first use, with FillPercent set for append-only writes.
 func sampleBucket(tx *bolt.Tx, k streamKey) (*bolt.Bucket, error) {
@@ -350,13 +360,9 @@ func (s *Store) Samples(run RunID, instrument string, from, to time.Time, fn fun
 		chunk = chunk[:0]
 		done := true
 		err := s.view("read samples", func(tx *bolt.Tx) error {
-			rb, err := runBucket(tx, run)
-			if err != nil {
-				return err
-			}
-			b := rb.Bucket(bucketSamples).Bucket([]byte(instrument))
+			b, err := sampleStream(tx, run, instrument)
 			if b == nil {
-				return nil
+				return err
 			}
 			c := b.Cursor()
 			var k, v []byte

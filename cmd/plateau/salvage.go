@@ -23,12 +23,9 @@ until the new store has been looked at. A run whose own record was lost is
 stored as failed, with whatever points and samples of it were saved.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			p, err := storePath(path)
+			p, err := existingStore("salvage", path)
 			if err != nil {
 				return err
-			}
-			if err := existingFile(p); err != nil {
-				return fmt.Errorf("salvage: %w", err)
 			}
 			rep, err := store.Salvage(p, args[0])
 			if err != nil {

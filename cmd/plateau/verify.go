@@ -43,12 +43,9 @@ verify the copy. When verify finds damage, 'plateau salvage' copies out what
 can still be read.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			p, err := storePath(path)
+			p, err := existingStore("verify", path)
 			if err != nil {
 				return err
-			}
-			if err := existingFile(p); err != nil {
-				return fmt.Errorf("verify: %w", err)
 			}
 			st, err := store.Open(p, store.Options{ReadOnly: true, StartCheck: store.CheckPagesOnly})
 			if err != nil {
@@ -81,17 +78,22 @@ can still be read.`,
 	return cmd
 }
 
-// existingFile refuses a path that does not name a regular file, before
-// anything opens it.
-func existingFile(p string) error {
+// existingStore is the store file of --store (or the configuration) for a
+// command that only reads it: a path that does not name an existing regular
+// file is refused before anything opens it (opening would create it).
+func existingStore(verb, flag string) (string, error) {
+	p, err := storePath(flag)
+	if err != nil {
+		return "", err
+	}
 	fi, err := os.Stat(p)
 	if err != nil {
-		return err
+		return "", fmt.Errorf("%s: %w", verb, err)
 	}
 	if !fi.Mode().IsRegular() {
-		return fmt.Errorf("%s is not a regular file", p)
+		return "", fmt.Errorf("%s: %s is not a regular file", verb, p)
 	}
-	return nil
+	return p, nil
 }
 
 func newBackupCmd() *cobra.Command {
@@ -103,12 +105,9 @@ func newBackupCmd() *cobra.Command {
 even while runs are being written. It refuses to overwrite an existing file.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			p, err := storePath(path)
+			p, err := existingStore("backup", path)
 			if err != nil {
 				return err
-			}
-			if err := existingFile(p); err != nil {
-				return fmt.Errorf("backup: %w", err)
 			}
 			st, err := store.Open(p, store.Options{ReadOnly: true})
 			if err != nil {
