@@ -25,9 +25,8 @@ func (e *Engine) tripped(t safety.Trip) {
 		return
 	}
 	msg += "; run paused: look at the bench, then resume (plateau resume) or stop it"
-	if r.gate.set(true, "safety: "+t.Reason) {
-		_ = e.runs.setState(r.id, store.StatePaused, "safety: "+t.Reason, e.clk.Now())
-	}
+	r.gate.set(true, "safety: "+t.Reason)
+	_ = e.runs.setState(r.id, store.StatePaused, "safety: "+t.Reason, e.clk.Now())
 	e.emit(r.id, slog.LevelError, "safety", e.ref.Name, msg, data)
 }
 
@@ -53,6 +52,11 @@ func (e *Engine) storeTrouble(err error) {
 		return
 	}
 	e.log.Error("the store cannot write", "err", err)
+	// Hold the procedure at once, before the guard's report arrives: the
+	// step that could not be stored is done again after the resume.
+	if r := e.runs.active(); r != nil {
+		r.gate.set(true, "safety: the store cannot write: "+msg)
+	}
 	e.guard.Trip("the store cannot write: " + msg)
 }
 
@@ -91,6 +95,7 @@ func (e *Engine) watchStore(ctx context.Context) {
 		}
 		ev.ID = id
 		e.storeFault.Store(nil)
+		e.log.Warn(ev.Message, "type", ev.Type, "run", run.String())
 		e.bus.Publish(ev)
 	}
 }

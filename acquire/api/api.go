@@ -128,6 +128,24 @@ type Status struct {
 	Unit        string           `json:"unit,omitempty"`
 	Instruments []InstrumentInfo `json:"instruments"`
 	LastEventID uint64           `json:"last_event_id"`
+	// State and Reason are the current run's state and why it is in it
+	// ("paused" with the safety trip, say); empty when idle.
+	State  string `json:"state,omitempty"`
+	Reason string `json:"reason,omitempty"`
+	// Trip says why the safety guard is latched (no setpoint is sent until
+	// a person resumes or starts a run); empty when it is not.
+	Trip string `json:"trip,omitempty"`
+	// StoreFault says why the store cannot write; empty when it can.
+	StoreFault string `json:"store_fault,omitempty"`
+	// Last is how the last run of this daemon ended, once one has.
+	Last *LastRun `json:"last,omitempty"`
+}
+
+// LastRun is how a run ended.
+type LastRun struct {
+	ID     string `json:"id"`
+	State  string `json:"state"`
+	Reason string `json:"reason,omitempty"`
 }
 
 // InstrumentInfo is one instrument's state. Reads and Errors count since

@@ -139,6 +139,11 @@ func (c *Client) Status(ctx context.Context) (Status, error) {
 }
 
 // Runs lists every run, oldest first.
+// Ready asks whether the daemon can do its job; the error says why not.
+func (c *Client) Ready(ctx context.Context) error {
+	return c.call(ctx, http.MethodGet, "/readyz", nil, nil)
+}
+
 func (c *Client) Runs(ctx context.Context) ([]RunInfo, error) {
 	var out struct {
 		Runs []RunInfo `json:"runs"`

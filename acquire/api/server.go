@@ -256,7 +256,7 @@ func (s *Server) handleReady(w http.ResponseWriter, _ *http.Request) {
 	if s.o.Ready != nil {
 		if err := s.o.Ready(); err != nil {
 			s.log.Warn("not ready", "err", err)
-			writeProblem(w, http.StatusServiceUnavailable, "not ready")
+			writeProblem(w, http.StatusServiceUnavailable, "not ready: "+err.Error())
 			return
 		}
 	}

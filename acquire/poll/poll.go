@@ -106,14 +106,18 @@ func (p *Poller) Run(ctx context.Context) {
 }
 
 // Read takes one reading now, outside the poll loop (an instrument read by
-// a person, once per point), and records it like a polled one.
+// a person, once per point), and records it like a polled one. No entry
+// yet (a time-out) is waiting, not a failed read: it is neither stored nor
+// counted.
 func (p *Poller) Read(ctx context.Context) (drivers.Reading, error) {
 	r, err := p.gauge.Read(ctx)
 	if ctx.Err() != nil {
 		return drivers.Reading{}, ctx.Err()
 	}
-	r, err = p.Record(r, err)
-	return r, err
+	if drivers.KindOf(err) == drivers.KindTimeout {
+		return drivers.Reading{}, err
+	}
+	return p.Record(r, err)
 }
 
 // Record handles one reading: the observer first, then the sink, then the

@@ -99,15 +99,15 @@ configuration and the HTML report to a folder, and prints the result table.`,
 			ctx, stop := signal.NotifyContext(cmd.Context(), os.Interrupt, syscall.SIGTERM)
 			defer stop()
 			started := time.Now()
-			id, res, err := runOnce(ctx, cfg, "demo", cmd.ErrOrStderr(), true)
+			_, res, err := runOnce(ctx, cfg, "demo", cmd.ErrOrStderr(), true)
 			if err != nil {
 				return err
 			}
-			if err := printResult(out, cfg, id, res); err != nil {
+			if err := printResult(out, res); err != nil {
 				return err
 			}
 			report := filepath.Join(abs, "report.html")
-			if err := writeHTMLReport(report, cfg, id, res); err != nil {
+			if err := writeHTMLReport(report, res); err != nil {
 				return err
 			}
 			fmt.Fprintf(out, "\nreport: %s\nstore:  %s\nconfig: %s\n(%.1f s)\n", report, cfg.Store.Path, cfgPath, time.Since(started).Seconds())

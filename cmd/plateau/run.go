@@ -45,11 +45,11 @@ leaves the run resumable.`,
 			if hasSource(cfg) {
 				fmt.Fprintln(cmd.ErrOrStderr(), safetyNotice)
 			}
-			id, res, err := runOnce(ctx, cfg, label, cmd.ErrOrStderr(), !quiet)
+			_, res, err := runOnce(ctx, cfg, label, cmd.ErrOrStderr(), !quiet)
 			if err != nil {
 				return err
 			}
-			return printResult(cmd.OutOrStdout(), cfg, id, res)
+			return printResult(cmd.OutOrStdout(), res)
 		},
 	}
 	cmd.Flags().StringVar(&label, "label", "", "a label for the run, e.g. the work order")
@@ -89,7 +89,7 @@ func runOnce(ctx context.Context, cfg *config.Config, label string, progress io.
 	if state != store.StateFinished {
 		return id, nil, fmt.Errorf("run %s ended %s: %s", id, state, reason)
 	}
-	res, err := evaluate(b.store, cfg, id)
+	res, err := evaluate(b.store, id)
 	return id, res, err
 }
 

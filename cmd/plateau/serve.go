@@ -235,7 +235,14 @@ func (c *engineControl) currentRun() string { return c.eng.Status().Run }
 
 func (c *engineControl) Status(context.Context) api.Status {
 	es := c.eng.Status()
-	out := api.Status{Version: version, Since: c.since, PointsCaptured: es.PointsCommitted, Unit: c.cfg.Device.Unit}
+	out := api.Status{Version: version, Since: c.since, PointsCaptured: es.PointsCommitted, Unit: c.cfg.Device.Unit,
+		Trip: es.Trip, StoreFault: es.StoreFault}
+	if es.Run != "" {
+		out.State, out.Reason = es.State, es.Reason
+	}
+	if es.Last != nil {
+		out.Last = &api.LastRun{ID: es.Last.Run, State: es.Last.State, Reason: es.Last.Reason}
+	}
 	if es.TotalPoints > 0 {
 		out.Progress = float64(es.Points) / float64(es.TotalPoints)
 	}
@@ -285,8 +292,17 @@ func (c *engineControl) Stop(_ context.Context, reason string) error {
 	return refusal(c.eng.Stop(reason))
 }
 
-func (c *engineControl) Pause(context.Context) error  { return refusal(c.eng.Pause()) }
-func (c *engineControl) Resume(context.Context) error { return refusal(c.eng.Resume()) }
+// Pause and resume are refused for reasons of state (no run, a store that
+// cannot write); their messages say which.
+func (c *engineControl) Pause(context.Context) error  { return conflict(c.eng.Pause()) }
+func (c *engineControl) Resume(context.Context) error { return conflict(c.eng.Resume()) }
+
+func conflict(err error) error {
+	if err == nil {
+		return nil
+	}
+	return api.AsConflict(err)
+}
 
 func (c *engineControl) Enter(_ context.Context, e api.Entry) error {
 	if err := c.eng.Enter(e.Value, e.Unit); err != nil {

@@ -121,17 +121,30 @@ func printStatus(w io.Writer, st api.Status, now time.Time) {
 	fmt.Fprintf(w, "daemon    plateau %s, up %s\n", st.Version, now.Sub(st.Since).Round(time.Second))
 	if st.Run == nil {
 		fmt.Fprintln(w, "run       none (idle)")
+		if l := st.Last; l != nil {
+			fmt.Fprintf(w, "last run  %s %s%s\n", l.ID, l.State, prefixed(": ", l.Reason))
+		}
 	} else {
 		r := st.Run
 		label := ""
 		if r.Label != "" {
 			label = fmt.Sprintf(" %q", r.Label)
 		}
-		fmt.Fprintf(w, "run       %s%s %s since %s\n", r.ID, label, r.State, r.Created.Local().Format("2006-01-02 15:04"))
+		state := st.State
+		if state == "" {
+			state = string(r.State)
+		}
+		fmt.Fprintf(w, "run       %s%s %s%s\n", r.ID, label, state, prefixed(": ", st.Reason))
 		if st.Step != "" {
 			fmt.Fprintf(w, "step      %s\n", st.Step)
 		}
 		fmt.Fprintf(w, "progress  %.0f %%\n", 100*st.Progress)
+	}
+	if st.Trip != "" {
+		fmt.Fprintf(w, "SAFETY    tripped: %s — no setpoint is sent until a person resumes or starts a run\n", st.Trip)
+	}
+	if st.StoreFault != "" {
+		fmt.Fprintf(w, "STORE     cannot write: %s\n", st.StoreFault)
 	}
 	fmt.Fprintf(w, "points    %d captured since the daemon started; last event %d\n", st.PointsCaptured, st.LastEventID)
 	if len(st.Instruments) == 0 {

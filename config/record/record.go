@@ -30,12 +30,16 @@ type Run struct {
 	// conditions, procedure); its display unit travels in Unit.
 	Info report.Info `json:"info"`
 	Unit string      `json:"unit"`
+	// Procedure is the resolved procedure the run followed, so that its
+	// planned points can be told from the captured ones.
+	Procedure config.Procedure `json:"procedure"`
 }
 
 // Of builds the record of a run from a loaded configuration.
 func Of(cfg *config.Config) Run {
 	dev, ref, opt := AnalysisInputs(cfg)
-	return Run{Version: Version, Device: dev, Reference: ref, Options: opt, Info: Info(cfg), Unit: cfg.Device.Unit}
+	return Run{Version: Version, Device: dev, Reference: ref, Options: opt, Info: Info(cfg), Unit: cfg.Device.Unit,
+		Procedure: cfg.Procedure}
 }
 
 // Encode is the stored form of the record.
