@@ -188,4 +188,3 @@ func daemonReport(st *store.Store, _ *config.Config) api.RenderFunc {
 		return fmt.Errorf("%w: format %q: use html, csv, json or text", api.ErrInvalid, format)
 	}
 }
-
