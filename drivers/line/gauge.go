@@ -9,6 +9,7 @@ import (
 	"regexp"
 	"strconv"
 	"strings"
+	"sync"
 	"time"
 
 	"go.bug.st/serial"
@@ -62,6 +63,8 @@ type Gauge struct {
 	rate drivers.RateMeter
 
 	releasePort func() // frees the process-wide claim on the device
+	closeOnce   sync.Once
+	closeErr    error
 
 	// Below: touched only while holding bus.
 	port    port
@@ -335,16 +338,17 @@ func (g *Gauge) takeLine(partial bool) (string, bool) {
 }
 
 // Close waits for a running read, refuses later ones, closes the port and
-// lets go of the device.
+// lets go of the device. Calling it again returns the first result.
 func (g *Gauge) Close() error {
-	g.bus.Close() // from here on this goroutine is the port's only user
-	if g.releasePort != nil {
-		defer g.releasePort()
-	}
-	if g.port == nil {
-		return nil
-	}
-	err := g.port.Close()
-	g.port = nil
-	return err
+	g.closeOnce.Do(func() {
+		g.bus.Close() // from here on this goroutine is the port's only user
+		if g.releasePort != nil {
+			defer g.releasePort()
+		}
+		if g.port != nil {
+			g.closeErr = g.port.Close()
+			g.port = nil
+		}
+	})
+	return g.closeErr
 }

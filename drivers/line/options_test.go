@@ -104,3 +104,26 @@ func TestOnePortOneInstrument(t *testing.T) {
 	}
 	g2.Close()
 }
+
+// Close may be called from two places at once (a shutdown and a failed
+// start) without racing on the port.
+func TestCloseTwiceAtOnce(t *testing.T) {
+	master, dev := instrumentPty(t)
+	g := openLine(t, dev, config.LineProtocol{Query: "PR?"})
+	answer(t, master, "PR?", "+1.0 bar\r\n")
+	if _, err := g.Read(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	done := make(chan error, 2)
+	for range 2 {
+		go func() { done <- g.Close() }()
+	}
+	for range 2 {
+		if err := <-done; err != nil {
+			t.Error(err)
+		}
+	}
+	if _, err := g.Read(context.Background()); !errors.Is(err, drivers.ErrLinkDown) {
+		t.Errorf("read after Close: %v, want link down", err)
+	}
+}

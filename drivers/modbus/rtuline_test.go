@@ -278,7 +278,7 @@ func TestSilentUnitDoesNotHoldTheLine(t *testing.T) {
 		in.Link.Timeout, in.Link.Backoff = 500*time.Millisecond, time.Second
 		gauges[i] = mustOpen(t, in)
 	}
-	ctx, cancel := context.WithTimeout(context.Background(), 3*time.Second)
+	ctx, cancel := context.WithTimeout(context.Background(), 4*time.Second)
 	defer cancel()
 	var wg sync.WaitGroup
 	var benched atomic.Int64
@@ -314,7 +314,9 @@ func TestSilentUnitDoesNotHoldTheLine(t *testing.T) {
 		}
 	}
 	t.Logf("switched-off unit asked %d times, each live unit at least %d; %d reads refused while benched", off, fewest, benched.Load())
-	if benched.Load() == 0 || 3*off > fewest {
+	// Asked in turn without benching, it would be asked about as often as a
+	// live unit; benched, it is asked at 0, 0.5 and about 2 s.
+	if benched.Load() == 0 || 2*off > fewest {
 		t.Errorf("switched-off unit asked %d times against %d for the live ones: it holds the line", off, fewest)
 	}
 }
