@@ -21,13 +21,16 @@ type Reading struct {
 }
 
 // Gauge is anything that reads a pressure. A failed read returns a *ReadError
-// and never a number.
+// and never a number; a good one never holds NaN or ±Inf. Read does not touch
+// the wire once ctx has ended.
 type Gauge interface {
 	Read(ctx context.Context) (Reading, error)
 	Close() error
 }
 
 // Source is a pressure controller: it moves toward a setpoint and can vent.
+// Neither command is sent once its ctx has ended, so vent with a context of
+// its own rather than one a shutdown or a trip cancels.
 type Source interface {
 	SetPoint(ctx context.Context, pa float64) error
 	Vent(ctx context.Context) error
@@ -47,7 +50,7 @@ const (
 	KindTimeout    Kind = iota + 1 // no reply in time
 	KindLinkDown                   // port or connection not available
 	KindBadReply                   // reply could not be understood (CRC, garbled line, exception)
-	KindOutOfRange                 // value outside what the instrument can report (e.g. NAMUR NE 43 fault current)
+	KindOutOfRange                 // value outside what the instrument can report (a NAMUR NE 43 fault current, a value that is not finite once scaled)
 	KindOverload                   // the instrument itself says over- or under-range
 )
 

@@ -3,9 +3,11 @@
 // using github.com/simonvetter/modbus. Register words are read raw and decoded
 // with regcodec, and the raw words travel with each reading.
 //
-// Every connection (one TCP peer, one serial port) is owned by one goroutine
-// (a drivers.Bus): instruments that share a port share one client, and their
-// requests are serialised with the configured pause between them.
+// Every connection (one TCP peer, one serial port) has one owner, a
+// drivers.Bus: instruments that share a port share one client and must give
+// the same link settings; their requests take turns in the order they ask
+// (a vent first), with the configured pause between them, and a unit that
+// stops answering on a shared line is benched for its back-off.
 package modbus
 
 import (
