@@ -57,7 +57,7 @@ func crashChild(path string) {
 		for range 20 {
 			at = at.Add(50 * time.Millisecond)
 			for _, inst := range []string{"reference", "dut"} {
-				if err := s.AddSample(1, inst, drivers.Reading{Time: at, Pa: 1e5 + float64(k), Raw: 1, RawUnit: "bar", Wire: "1.00000"}, nil); err != nil {
+				if err := s.Put(1, inst, SampleOf(drivers.Reading{Time: at, Pa: 1e5 + float64(k), Raw: 1, RawUnit: "bar", Wire: "1.00000"}, nil)); err != nil {
 					fail(err)
 				}
 			}

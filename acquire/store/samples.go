@@ -27,11 +27,16 @@ type job struct {
 //
 // Deprecated: use Put with the store's own Sample.
 func (s *Store) AddSample(run RunID, instrument string, r drivers.Reading, err error) error {
-	smp := Sample{Time: r.Time, Pa: r.Pa, Raw: r.Raw, RawUnit: r.RawUnit, Wire: r.Wire}
+	return s.Put(run, instrument, SampleOf(r, err))
+}
+
+// SampleOf is the stored form of a driver's reading: good (err nil), or a
+// failed read keeping its time, wire text, kind and message.
+func SampleOf(r drivers.Reading, err error) Sample {
 	if err != nil {
-		smp = Sample{Time: r.Time, Wire: r.Wire, Failed: true, Kind: drivers.KindOf(err), Message: err.Error()}
+		return Sample{Time: r.Time, Wire: r.Wire, Failed: true, Kind: drivers.KindOf(err), Message: err.Error()}
 	}
-	return s.Put(run, instrument, smp)
+	return Sample{Time: r.Time, Pa: r.Pa, Raw: r.Raw, RawUnit: r.RawUnit, Wire: r.Wire}
 }
 
 // Put queues one sample of one instrument for the next batched commit. It
@@ -182,10 +187,12 @@ func (s *Store) writer() {
 			}
 			take(j)
 		case ch := <-s.flushes:
-			// Everything queued before the Flush call is in the queue now.
+			// Everything queued before the Flush call is in the queue now:
+			// commit that much (not what producers add meanwhile, or a
+			// busy queue would keep Flush waiting).
 			err := commit()
-			for err == nil && len(s.queue) > 0 {
-				for n := len(s.queue); n > 0 && len(pending) < limit; n-- {
+			for n := len(s.queue); err == nil && n > 0; {
+				for ; n > 0 && len(pending) < limit; n-- {
 					pending = append(pending, <-s.queue)
 				}
 				err = commit()

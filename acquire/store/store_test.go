@@ -498,7 +498,7 @@ func TestSamplesRoundTrip(t *testing.T) {
 				err = errors.New("port closed")
 			}
 		}
-		if err := s.AddSample(run.ID, inst, r, err); err != nil {
+		if err := s.Put(run.ID, inst, SampleOf(r, err)); err != nil {
 			t.Fatal(err)
 		}
 		all = append(all, sent{inst, r, err})
@@ -552,7 +552,7 @@ func TestSamplesRoundTrip(t *testing.T) {
 	last := all[len(all)-1].r
 	for i := range 3 {
 		r := drivers.Reading{Time: last.Time, Pa: float64(i), RawUnit: "bar", Wire: "again"}
-		if err := s.AddSample(run.ID, "dut", r, nil); err != nil {
+		if err := s.Put(run.ID, "dut", SampleOf(r, nil)); err != nil {
 			t.Fatal(err)
 		}
 		all = append(all, sent{"dut", r, nil})
@@ -571,9 +571,9 @@ func TestWireKeptEveryNth(t *testing.T) {
 		s, _ := openTest(t, Options{WireEvery: tc.every})
 		run := newRun(t, s)
 		for i := range 100 {
-			s.AddSample(run.ID, "ref", drivers.Reading{Time: t0.Add(time.Duration(i) * time.Second), Pa: 1, Wire: "01 02"}, nil)
+			s.Put(run.ID, "ref", SampleOf(drivers.Reading{Time: t0.Add(time.Duration(i) * time.Second), Pa: 1, Wire: "01 02"}, nil))
 		}
-		s.AddSample(run.ID, "ref", drivers.Reading{Time: t0.Add(time.Hour), Wire: "garbage"}, errors.New("bad reply"))
+		s.Put(run.ID, "ref", SampleOf(drivers.Reading{Time: t0.Add(time.Hour), Wire: "garbage"}, errors.New("bad reply")))
 		s.Flush()
 		n := 0
 		smp := collect(t, s, run.ID, "ref", time.Time{}, time.Time{})
@@ -593,7 +593,7 @@ func TestSamplesCommittedByInterval(t *testing.T) {
 	s, _ := openTest(t, Options{FlushInterval: 20 * time.Millisecond})
 	run := newRun(t, s)
 	for i := range 10 {
-		if err := s.AddSample(run.ID, "ref", drivers.Reading{Time: t0.Add(time.Duration(i) * time.Second), Pa: float64(i)}, nil); err != nil {
+		if err := s.Put(run.ID, "ref", SampleOf(drivers.Reading{Time: t0.Add(time.Duration(i) * time.Second), Pa: float64(i)}, nil)); err != nil {
 			t.Fatal(err)
 		}
 	}
@@ -621,7 +621,7 @@ func TestWriteFailureIsReported(t *testing.T) {
 	var ferr error
 	for i := 0; ferr == nil && i < 200; i++ {
 		for j := range 500 {
-			s.AddSample(run.ID, "ref", drivers.Reading{Time: t0.Add(time.Duration(i*500+j) * time.Millisecond), Pa: rand.Float64(), Wire: strings.Repeat("x", 200)}, nil)
+			s.Put(run.ID, "ref", SampleOf(drivers.Reading{Time: t0.Add(time.Duration(i*500+j) * time.Millisecond), Pa: rand.Float64(), Wire: strings.Repeat("x", 200)}, nil))
 		}
 		ferr = s.Flush()
 	}
@@ -640,7 +640,7 @@ func TestWriteFailureIsReported(t *testing.T) {
 func TestBackup(t *testing.T) {
 	s, _ := openTest(t, Options{})
 	run := newRun(t, s)
-	s.AddSample(run.ID, "ref", drivers.Reading{Time: t0, Pa: 42}, nil)
+	s.Put(run.ID, "ref", SampleOf(drivers.Reading{Time: t0, Pa: 42}, nil))
 	s.Flush()
 	if _, _, err := s.AddPoint(run.ID, point(1, "up", "measure", 0, 0)); err != nil {
 		t.Fatal(err)
