@@ -7,9 +7,11 @@ import (
 	"os"
 	"strconv"
 	"strings"
+	"time"
 
 	"github.com/spf13/cobra"
 
+	"plateau/acquire/procedure"
 	"plateau/analysis/units"
 	"plateau/config"
 )
@@ -69,11 +71,11 @@ the file cannot be read at all.`,
 func describe(out io.Writer, cfg *config.Config) {
 	for _, dut := range cfg.Devices {
 		d := dut.Device
-		name := ""
+		id := orDash(d.ID)
 		if len(cfg.Devices) > 1 {
-			name = " " + dut.Instrument
+			id += " (" + dut.Instrument + ")"
 		}
-		fmt.Fprintf(out, "  device under test%s  %s, %s … %s, resolution %s\n", name, orDash(d.ID),
+		fmt.Fprintf(out, "  device under test  %s, %s … %s, resolution %s\n", id,
 			fixed(d.LowerPa, d), fixed(d.UpperPa, d), fixed(d.ResolutionPa, d))
 	}
 	r := cfg.Reference
@@ -86,7 +88,7 @@ func describe(out io.Writer, cfg *config.Config) {
 		fmt.Fprintf(out, "  instrument         %-12s %-9s %s %s\n", in.Name, in.Role, in.Link.Kind, in.Link.Address)
 	}
 	p := cfg.Procedure
-	fmt.Fprintf(out, "  procedure          %s: %d points × %d cycles, %d exercise cycles, decision rule %s\n",
+	fmt.Fprintf(out, "  procedure          %s: %d points × %d cycle(s), %d exercise cycle(s), decision rule %s\n",
 		p.Mode, len(p.PointsPa), p.Cycles, p.Exercise, p.Decision)
 	if len(p.PointsPa) > 0 {
 		pts := make([]string, len(p.PointsPa))
@@ -98,11 +100,60 @@ func describe(out io.Writer, cfg *config.Config) {
 	if cfg.Safety.Set {
 		fmt.Fprintf(out, "  safety limit       %s\n", fixed(cfg.Safety.MaxPressurePa, cfg.Device))
 	}
+	if least, most, ok := runLength(cfg); ok {
+		fmt.Fprintf(out, "  duration           at least %s (holds and settle windows), at most %s (every point to its time-out); reaching each pressure comes on top\n",
+			roundDuration(least), roundDuration(most))
+		if cfg.Simulator.Speed > 1 && usesSimulator(cfg) {
+			fmt.Fprintf(out, "                     the simulated bench runs %s× faster: at least %s of wall time\n",
+				strconv.FormatFloat(cfg.Simulator.Speed, 'f', -1, 64), roundDuration(time.Duration(float64(least)/cfg.Simulator.Speed)))
+		}
+	}
 	for _, l := range cfg.RTULines() {
 		fmt.Fprintf(out, "  RTU line           %s at %d Bd: %d instrument(s), %.1f reads/s asked, about %.1f carried\n",
 			l.Address, l.Baud, len(l.Instruments), l.Asked, l.Carried)
 	}
 	fmt.Fprintf(out, "  store              %s\n", cfg.Store.Path)
+}
+
+// runLength bounds how long a planned run takes from its plan: each
+// capture waits its hold and a full settle window at least, its time-out at
+// most; exercise cycles dwell at the top, and the first descending point
+// of each cycle waits its top hold.
+func runLength(cfg *config.Config) (least, most time.Duration, ok bool) {
+	pr := cfg.Procedure
+	if pr.Mode != string(procedure.Planned) {
+		return 0, 0, false
+	}
+	steps := procedure.Plan(pr, cfg.Device.LowerPa)
+	for _, st := range steps {
+		switch st.Kind {
+		case procedure.StepExercise:
+			least += pr.ExerciseHold
+			most += pr.ExerciseHold
+		case procedure.StepCapture:
+			least += pr.Hold + pr.Settle.Window
+			most += pr.Hold + pr.Timeout
+			if st.TopHold {
+				least += pr.TopHold
+				most += pr.TopHold
+			}
+		}
+	}
+	return least, most, len(steps) > 0
+}
+
+// roundDuration writes a duration to the second, or to the minute above an hour.
+func roundDuration(d time.Duration) string {
+	if d >= time.Hour {
+		d = d.Round(time.Minute)
+	} else {
+		d = d.Round(time.Second)
+	}
+	s := d.String()
+	for _, z := range []string{"m0s", "h0m"} {
+		s = strings.Replace(s, z, z[:1], 1)
+	}
+	return s
 }
 
 // fixed writes a pressure in the device's unit with as many decimals as
