@@ -13,7 +13,7 @@ const (
 	// zero, pass if |error| ≤ MPE.
 	RuleSimple DecisionRule = "simple"
 	// RuleGuarded is binary acceptance with guard band w = U (G8 §4.2.2):
-	// pass if |error| ≤ MPE − U.
+	// pass if |error| < MPE − U.
 	RuleGuarded DecisionRule = "guarded"
 	// RuleFourState is the non-binary rule with guard band w = U (G8 §4.2.3):
 	// pass, conditional pass, conditional fail, fail.
@@ -55,7 +55,7 @@ func Worse(a, b Outcome) Outcome {
 // ErrNoRule is returned when no decision rule was chosen. There is no
 // default: ILAC-G8:09/2019 asks that the rule be agreed with the customer
 // before measuring.
-var ErrNoRule = fmt.Errorf("no decision rule chosen: agree one with the customer before measuring (ILAC-G8:09/2019) and give it as %q (|error| ≤ MPE), %q (|error| ≤ MPE − U) or %q (pass, conditional pass, conditional fail, fail)",
+var ErrNoRule = fmt.Errorf("no decision rule chosen: agree one with the customer before measuring (ILAC-G8:09/2019) and give it as %q (|error| ≤ MPE), %q (|error| < MPE − U) or %q (pass, conditional pass, conditional fail, fail)",
 	RuleSimple, RuleGuarded, RuleFourState)
 
 func (r DecisionRule) validate() error {
@@ -84,37 +84,46 @@ func AcceptanceLimit(rule DecisionRule, mpe, expanded float64) float64 {
 // tolerance is far below the resolution of any pressure instrument.
 const boundarySlack = 1e-9
 
-// TieRule is how a value exactly on a limit is judged. ILAC-G8:09/2019
-// §4.2 words acceptance as the measured value lying within the acceptance
-// limit (REFERENCES.md §4, [C]); a value on the limit is within it, so a tie
-// goes to the better side at every boundary.
-const TieRule = "a value exactly on a limit counts as within it (ILAC-G8:09/2019 §4.2: pass when within the acceptance limit)"
+// TieRule is how a value exactly on a limit is judged, following the
+// wording of ILAC-G8:09/2019 §4.2 (pp. 9–10): §4.2.2 and §4.2.3 pass a
+// result that is *below* the acceptance limit TL − w, and §4.2.3 reports
+// the closed intervals [TL − w, TL] as conditional pass and [TL, TL + w]
+// as conditional fail, with conditional fail for results *above* TL. So a
+// value on TL − w is not a pass but a conditional pass (guarded: a fail),
+// a value on TL is a conditional pass, one on TL + w a conditional fail.
+// §4.2.1 (simple acceptance) words only "below" and "above" TL; a value on
+// TL is taken as a pass there, as §4.2.3 puts TL on the conforming side and
+// a specification limits the error to "not more than" the MPE.
+const TieRule = "ties follow ILAC-G8:09/2019 §4.2: under simple acceptance an error equal to the MPE passes; " +
+	"under the guarded and four-state rules a pass needs an error below MPE − U, " +
+	"so an error equal to MPE − U or to the MPE is a conditional pass (guarded: a fail) and one equal to MPE + U a conditional fail"
 
 // Decide applies rule to the absolute error of indication |Δ| at a point
 // with maximum permissible error mpe and expanded uncertainty U (ILAC-G8:2019
-// §4.2; REFERENCES.md §4). A value on a boundary belongs to the better side
-// (TieRule). NaN errors and unknown rules fail.
+// §4.2; REFERENCES.md §4), ties as TieRule says. NaN errors and unknown
+// rules fail.
 func Decide(rule DecisionRule, absError, mpe, expanded float64) Outcome {
 	slack := boundarySlack * math.Abs(mpe)
-	le := func(v, limit float64) bool { return v <= limit+slack }
+	atOrBelow := func(v, limit float64) bool { return v <= limit+slack }
+	below := func(v, limit float64) bool { return v < limit-slack }
 	switch rule {
 	case RuleSimple:
-		if le(absError, mpe) {
+		if atOrBelow(absError, mpe) {
 			return Pass
 		}
 		return Fail
 	case RuleGuarded:
-		if le(absError, mpe-expanded) {
+		if below(absError, mpe-expanded) {
 			return Pass
 		}
 		return Fail
 	case RuleFourState:
 		switch {
-		case le(absError, mpe-expanded):
+		case below(absError, mpe-expanded):
 			return Pass
-		case le(absError, mpe):
+		case atOrBelow(absError, mpe):
 			return ConditionalPass
-		case le(absError, mpe+expanded):
+		case atOrBelow(absError, mpe+expanded):
 			return ConditionalFail
 		}
 	}

@@ -33,7 +33,7 @@ func TestHTMLContent(t *testing.T) {
 		"Uncertainty budget per point", "resolution of the device", "@page", "break-inside: avoid",
 		"DG-10 &lt;digital&gt;", "as found &amp; adjusted",
 		"Judgement per point", "U of one reading", "MPE / U<br>reference", "not evaluated", "Correction curve",
-		"a value exactly on a limit counts as within it", "covers about 95 %",
+		"ties follow ILAC-G8:09/2019 §4.2", "covers about 95 %",
 	} {
 		if !strings.Contains(page, want) {
 			t.Errorf("page lacks %q", want)

@@ -197,7 +197,7 @@ func ruleText(r analysis.DecisionRule) string {
 	case analysis.RuleSimple:
 		return "simple acceptance, guard band 0: pass when |error| ≤ MPE (ILAC-G8:09/2019 §4.2.1)"
 	case analysis.RuleGuarded:
-		return "binary with guard band w = U: pass when |error| ≤ MPE − U (ILAC-G8:09/2019 §4.2.2)"
+		return "binary with guard band w = U: pass when |error| < MPE − U (ILAC-G8:09/2019 §4.2.2)"
 	case analysis.RuleFourState:
 		return "non-binary with guard band w = U: pass, conditional pass, conditional fail, fail (ILAC-G8:09/2019 §4.2.3)"
 	}

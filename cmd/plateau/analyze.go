@@ -65,7 +65,7 @@ and --rule are required (--lower defaults to 0).
 There is no default decision rule: agree one with the customer before
 measuring (ILAC-G8:09/2019) and give it with --rule or procedure.decision.
   simple      pass when every reading's |error| ≤ MPE
-  guarded     pass when |error| ≤ MPE − U
+  guarded     pass when |error| < MPE − U
   four-state  pass, conditional pass, conditional fail, fail (guard band U)
 
 The budget lists every term; a term without its data is printed as "not
