@@ -23,7 +23,8 @@ const (
 )
 
 // coverageProbability is the two-sided probability of ±2σ of a normal
-// distribution, % (JCGM 100:2008 Table G.1 lists 95.45 % for k = 2).
+// distribution, % (JCGM 100:2008 Table G.1 lists 95.45 % for k = 2; from
+// memory, and checked by TestStudentTAgainstGUMTableG2's ν = ∞ row).
 const coverageProbability = 95.45
 
 // StudentT returns the coverage factor t_p(ν) for a two-sided coverage
