@@ -124,3 +124,34 @@ func mustUnit(t *testing.T, sym string) units.Unit {
 	}
 	return u
 }
+
+// Whatever value reaches Finish, from any unit or loop range: a good reading
+// is finite, and a refused one carries no NaN or Inf either.
+func FuzzFinish(f *testing.F) {
+	f.Add(1.01325, "bar", false, 0.0, 1e6)
+	f.Add(12.0, "mA", true, -1e5, 9e5)
+	f.Add(20.5, "mA", true, 0.0, 1.79e308)
+	f.Add(1e304, "bar", false, 0.0, 0.0)
+	f.Fuzz(func(t *testing.T, raw float64, unit string, loop bool, lo, hi float64) {
+		var c Conversion
+		if loop {
+			if lo == hi || !finite(lo) || !finite(hi) || !finite(hi-lo) {
+				return // NewCurrentLoop refuses such a range (TestNewConversion)
+			}
+			c.Loop = &CurrentLoop{LowerPa: lo, UpperPa: hi}
+		} else {
+			u, err := units.Lookup(unit)
+			if err != nil {
+				return
+			}
+			c.Unit = u
+		}
+		r, err := c.Finish("x", Reading{Raw: raw})
+		if !finite(r.Raw) || !finite(r.Pa) {
+			t.Fatalf("Finish(%g) = %+v, %v: carries a non-number", raw, r, err)
+		}
+		if err != nil && KindOf(err) != KindOutOfRange {
+			t.Fatalf("Finish(%g): kind %s", raw, KindOf(err))
+		}
+	})
+}
