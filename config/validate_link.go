@@ -17,10 +17,26 @@ import (
 // connection, so they must agree on how it is driven.
 func (c *Config) validateSharedLinks(p *Problems) {
 	first := map[string]int{}
+	type place struct {
+		addr, table    string
+		unit, register int
+	}
+	reads := map[place]int{}
 	for i, in := range c.Instruments {
 		l := in.Link
 		if l.Address == "" || l.Kind == LinkSim || l.Kind == LinkManual {
 			continue
+		}
+		if l.Kind != LinkSerial {
+			// Two instruments reading one register of one unit are one
+			// instrument configured twice, typically a unit id left unchanged.
+			at := place{l.Address, in.Value.Table, l.UnitID, in.Value.Register}
+			if j, dup := reads[at]; dup {
+				p.bad(fmt.Sprintf("instruments[%d].link.unit_id", i), strconv.Itoa(l.UnitID),
+					"instruments[%d] already reads %s register %d of unit %d on %s: give each unit on a line its own id", j, at.table, at.register, at.unit, at.addr)
+			} else {
+				reads[at] = i
+			}
 		}
 		j, seen := first[l.Address]
 		if !seen {
