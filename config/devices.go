@@ -31,10 +31,10 @@ type DeviceUnderTest struct {
 	given map[string]bool // fields its own section gave; the rest came from device:
 }
 
-// resolveDevices builds c.Devices in instrument order. Without any device:
-// section in an instrument entry, the one device is the top-level device:
-// section, as it always was. c.Device is the first device, for code that
-// knows only one.
+// resolveDevices builds c.Devices in instrument order. A file with one
+// device and no device: section in its entry has the top-level device:
+// section as its device, as it always had; several devices need a section
+// each. c.Device is the first device, for code that knows only one.
 func (c *Config) resolveDevices(p *Problems) {
 	c.Devices = c.Devices[:0]
 	var idx []int
@@ -47,7 +47,7 @@ func (c *Config) resolveDevices(p *Problems) {
 			}
 		}
 	}
-	if entries == 0 {
+	if entries == 0 && len(idx) <= 1 {
 		c.Device.resolve(p, func(f string) string { return "device." + f })
 		dut := DeviceUnderTest{Index: -1, Key: "device", Device: c.Device, HeightM: c.Head.DeviceHeight}
 		if len(idx) > 0 {
