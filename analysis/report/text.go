@@ -55,6 +55,9 @@ func Text(w io.Writer, info Info, res analysis.Result) error {
 	if err := bt.Flush(); err != nil {
 		return err
 	}
+	for _, why := range notEvaluatedReasons(res) {
+		fmt.Fprintf(bw, "  not evaluated: %s\n", why)
+	}
 
 	fmt.Fprintln(bw, "\nSummary")
 	sw := tabwriter.NewWriter(bw, 0, 0, 2, ' ', 0)

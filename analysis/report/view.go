@@ -253,3 +253,31 @@ func (n numbers) budgetTable(res analysis.Result) [][]string {
 	}
 	return out
 }
+
+// notEvaluatedReasons says once per budget line why it was not evaluated,
+// naming the points (as numbered in the table) when not all of them.
+func notEvaluatedReasons(res analysis.Result) []string {
+	var order []string
+	why := map[string]string{}
+	at := map[string][]string{}
+	for _, p := range res.Points {
+		for _, c := range p.Budget {
+			if c.Evaluated {
+				continue
+			}
+			if _, ok := why[c.Name]; !ok {
+				order = append(order, c.Name)
+				why[c.Name] = c.Note
+			}
+			at[c.Name] = append(at[c.Name], itoa(p.Index+1))
+		}
+	}
+	out := make([]string, len(order))
+	for i, name := range order {
+		out[i] = contributionText(name) + " — " + why[name]
+		if len(at[name]) < len(res.Points) {
+			out[i] += " (points " + strings.Join(at[name], ", ") + ")"
+		}
+	}
+	return out
+}
