@@ -399,3 +399,23 @@ func FuzzOpenFile(f *testing.F) {
 		}
 	})
 }
+
+// A bbolt file with nothing in it (a store whose creation was cut short
+// after bbolt wrote its meta pages) is taken as a new store.
+func TestOpenTakesAnEmptyBoltFile(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "cut.db")
+	db, err := bolt.Open(path, 0o600, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	db.Close()
+	s, err := Open(path, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := s.CreateRun("after a cut-short creation", nil); err != nil {
+		t.Fatal(err)
+	}
+	s.Close()
+	checkFile(t, path)
+}

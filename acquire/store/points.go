@@ -147,10 +147,39 @@ func (s *Store) decodePoint(key, v []byte) (pointRecord, error) {
 	var rec pointRecord
 	js, err := unseal(v, s.legacy)
 	if err != nil {
-		return rec, fmt.Errorf("point key %x: %w", key, err)
+		return rec, fmt.Errorf("point %s: %w", pointName(key), err)
 	}
 	if err := json.Unmarshal(js, &rec); err != nil {
-		return rec, fmt.Errorf("point key %x: %w: %v", key, ErrBadRecord, err)
+		return rec, fmt.Errorf("point %s: %w: %v", pointName(key), ErrBadRecord, err)
 	}
 	return rec, nil
+}
+
+// pointName reads a point key back for messages: "cycle 1 down measure
+// index 2", or the key in hex when it does not parse.
+func pointName(k []byte) string {
+	r := k
+	field := func(n int) []byte {
+		if len(r) < n {
+			r = nil
+			return nil
+		}
+		f := r[:n]
+		r = r[n:]
+		return f
+	}
+	str := func() string {
+		n := field(1)
+		if n == nil {
+			return ""
+		}
+		return string(field(int(n[0])))
+	}
+	c := field(4)
+	kind, dir := str(), str()
+	i := field(4)
+	if c == nil || i == nil || len(r) != 0 {
+		return fmt.Sprintf("key %x", k)
+	}
+	return fmt.Sprintf("cycle %d %s %s index %d", binary.BigEndian.Uint32(c), dir, kind, binary.BigEndian.Uint32(i))
 }

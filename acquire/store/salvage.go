@@ -162,7 +162,11 @@ func (c *collector) visit(path []string, key, val []byte) {
 			}
 		}
 	}
-	c.badRecord = append(c.badRecord, fmt.Sprintf("record %x in bucket /%s: unreadable or its checksum does not match", key, joinPath(path)))
+	name := fmt.Sprintf("record %x", key)
+	if len(path) == 3 && path[2] == string(bucketPoints) {
+		name = "point " + pointName(key)
+	}
+	c.badRecord = append(c.badRecord, fmt.Sprintf("%s in bucket /%s: unreadable or its checksum does not match", name, joinPath(path)))
 }
 
 func (c *collector) bucket(path []string, seq uint64) {

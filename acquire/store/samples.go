@@ -118,8 +118,7 @@ func (w *writerState) set(f func(*WriterStatus)) {
 	w.mu.Unlock()
 }
 
-// WriterStatus returns the writer's progress. Queued is how many items wait
-// in the queue in front of the writer.
+// WriterStatus returns the writer's progress.
 func (s *Store) WriterStatus() WriterStatus { return s.status.get() }
 
 // Queued is the number of items waiting in front of the writer.

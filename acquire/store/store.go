@@ -283,7 +283,9 @@ func (s *Store) init(fresh bool) error {
 	return s.db.Update(func(tx *bolt.Tx) error {
 		meta := tx.Bucket(bucketMeta)
 		if meta == nil {
-			if !fresh {
+			// A bbolt file with nothing in it is one whose creation was cut
+			// short before this transaction: nothing to lose, so take it.
+			if first, _ := tx.Cursor().First(); !fresh && first != nil {
 				return fmt.Errorf("a bbolt file without plateau's meta bucket: %w", ErrWrongFile)
 			}
 			var err error
@@ -358,12 +360,12 @@ func (s *Store) Close() error {
 	}
 	s.mu.Unlock()
 	<-s.done
-	werr := s.status.get().Err
+	ws := s.status.get()
 	if err := s.db.Close(); err != nil {
 		return fmt.Errorf("close store %s: %w", s.path, err)
 	}
-	if werr != nil {
-		return fmt.Errorf("close store %s: last queued write failed: %w", s.path, werr)
+	if ws.Err != nil {
+		return fmt.Errorf("close store %s: %d queued items could not be committed: %w", s.path, ws.Pending, ws.Err)
 	}
 	return nil
 }
@@ -393,7 +395,11 @@ func (s *Store) Check() error {
 		errs = append(errs, err)
 	}
 	if len(errs) > 0 {
-		return fmt.Errorf("check store %s: %d problems: %w: %w", s.path, len(errs), ErrDamaged, errors.Join(errs...))
+		all := errors.Join(errs...)
+		if !errors.Is(all, ErrDamaged) {
+			all = fmt.Errorf("%w: %w", ErrDamaged, all)
+		}
+		return fmt.Errorf("check store %s: %d problems: %w", s.path, len(errs), all)
 	}
 	return nil
 }
