@@ -347,3 +347,34 @@ func TestDefaultsMatchKeys(t *testing.T) {
 		}
 	}
 }
+
+// FuzzDecodeValue: whatever text an environment variable holds, decoding
+// it for a number, a count, a duration or a switch either gives a sound
+// value or an error in plain words.
+func FuzzDecodeValue(f *testing.F) {
+	for _, s := range []string{"3", "2.5", "NaN", "-Inf", "1e400", "30", "30s", "-5s", "0x10", "yes", "", " 7 ", "9223372036854775807"} {
+		f.Add(s)
+	}
+	str := reflect.TypeOf("")
+	f.Fuzz(func(t *testing.T, s string) {
+		for _, to := range []reflect.Type{reflect.TypeOf(0), reflect.TypeOf(int64(0)), reflect.TypeOf(0.0), durationType, reflect.TypeOf(false)} {
+			v, err := decodeHook(str, to, s)
+			if err != nil {
+				if m := err.Error(); strings.Contains(m, "strconv") || strings.Contains(m, "unconvertible") {
+					t.Fatalf("%q as %v: jargon %q", s, to, m)
+				}
+				continue
+			}
+			switch x := v.(type) {
+			case float64:
+				if math.IsNaN(x) || math.IsInf(x, 0) {
+					t.Fatalf("%q as %v gave %v", s, to, x)
+				}
+			case int64:
+				if x > maxWhole || x < -maxWhole {
+					t.Fatalf("%q as %v gave %v", s, to, x)
+				}
+			}
+		}
+	})
+}
