@@ -559,10 +559,18 @@ func repeatSeries(pr PointResult) int {
 // (the basic procedure of EURAMET cg-17 §5.2.1: one cycle, repeats at a
 // few points, REFERENCES.md §1.2 [C]): the largest repeatability found is
 // applied to the points without one, and U gets the procedure's minimum.
+//
+// The minimum belongs to that one-cycle procedure: a run of several cycles
+// that lost a reading here and there borrows the repeatability but keeps
+// its own U.
 func shortProcedure(res *Result, say messages) []string {
 	var with, without []int
 	best := -1.0
+	downSeries := 0
 	for _, p := range res.Points {
+		if p.Down != nil {
+			downSeries = max(downSeries, p.Down.Series)
+		}
 		if p.RepeatabilityEvaluated {
 			with = append(with, p.Index+1)
 			best = math.Max(best, p.RepeatabilityPa)
@@ -573,9 +581,12 @@ func shortProcedure(res *Result, say messages) []string {
 	if len(without) == 0 {
 		return nil
 	}
-	res.ShortProcedure = true
-	res.MinimumUncertaintyPa = basicMinimumPercent / 100 * res.Device.Span()
-	floor := fmt.Sprintf("U is never below %s (%g %% of span, the minimum of the basic procedure, EURAMET cg-17)", say.p(res.MinimumUncertaintyPa), basicMinimumPercent)
+	floor := "U keeps its own value (several cycles: not the basic procedure)"
+	if downSeries <= 1 {
+		res.ShortProcedure = true
+		res.MinimumUncertaintyPa = basicMinimumPercent / 100 * res.Device.Span()
+		floor = fmt.Sprintf("U is never below %s (%g %% of span, the minimum of the basic procedure, EURAMET cg-17)", say.p(res.MinimumUncertaintyPa), basicMinimumPercent)
+	}
 	if len(with) == 0 {
 		return []string{"repeatability not evaluated: no point has two series in the same direction (the basic procedure repeats an ascending series three times at two points); " + floor}
 	}
@@ -587,8 +598,12 @@ func shortProcedure(res *Result, say messages) []string {
 			p.RepeatabilityFrom = with
 		}
 	}
-	return []string{fmt.Sprintf("points %s have one series per direction: the largest repeatability %s, found at points %s, is applied to them; %s",
-		numberList(without), say.p(best), numberList(with), floor)}
+	subject := "points " + numberList(without) + " have"
+	if len(without) == 1 {
+		subject = "point " + numberList(without) + " has"
+	}
+	return []string{fmt.Sprintf("%s one series per direction: the largest repeatability %s, found at %s, is applied; %s",
+		subject, say.p(best), pointsWord(with), floor)}
 }
 
 var sqrt12 = 2 * math.Sqrt(3)
@@ -693,7 +708,7 @@ func budget(pr PointResult, rs []reading, dev Device, ref Reference, opt Options
 		c := rect("repeatability", pr.RepeatabilityPa, sqrt12)
 		n := repeatSeries(pr)
 		if len(pr.RepeatabilityFrom) > 0 {
-			c.Note = "from points " + numberList(pr.RepeatabilityFrom)
+			c.Note = "from " + pointsWord(pr.RepeatabilityFrom)
 			n = 0
 			for _, q := range res.Points {
 				if q.RepeatabilityEvaluated && len(q.RepeatabilityFrom) == 0 && q.RepeatabilityPa == pr.RepeatabilityPa {
@@ -875,6 +890,14 @@ func plural(n int, what string) string {
 		return "1 " + what
 	}
 	return strconv.Itoa(n) + " " + what + "s"
+}
+
+// pointsWord is "point 3" or "points 1 and 4".
+func pointsWord(ns []int) string {
+	if len(ns) == 1 {
+		return "point " + numberList(ns)
+	}
+	return "points " + numberList(ns)
 }
 
 // numberList writes point numbers as "1, 4 and 6".

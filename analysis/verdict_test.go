@@ -461,3 +461,27 @@ func TestCorrectionCurveUncertaintyNorris(t *testing.T) {
 		t.Error("a two-point line has no residual degrees of freedom to judge it by")
 	}
 }
+
+// A run of several cycles that missed readings borrows the repeatability
+// for the points left with one series per direction, but the basic
+// procedure's minimum U does not apply to it (common practice: the minimum
+// belongs to the one-cycle procedure of EURAMET cg-17 §5.2.1).
+func TestMissedReadingsAreNotTheBasicProcedure(t *testing.T) {
+	var pts []Point
+	for _, p := range table(3, func(_ float64, c int, _ Direction) float64 { return 0.01 * float64(c) }) {
+		if !(p.Index == 2 && p.Cycle > 1) { // 8 bar measured in cycle 1 only
+			pts = append(pts, p)
+		}
+	}
+	r, err := Analyze(pts, class1, refClass1, Options{Rule: RuleSimple})
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := r.Points[2]
+	if r.ShortProcedure || r.MinimumUncertaintyPa != 0 || p.MinimumApplied || len(p.RepeatabilityFrom) != 4 || math.Abs(p.RepeatabilityPa-0.02*bar) > 1e-6 {
+		t.Errorf("short %v, minimum %g, point 3: %+v", r.ShortProcedure, r.MinimumUncertaintyPa, p)
+	}
+	if !hasWarning(r, "point 3 has one series per direction") || !hasWarning(r, "U keeps its own value") {
+		t.Errorf("warnings %q", r.Warnings)
+	}
+}
