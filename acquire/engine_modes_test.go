@@ -18,126 +18,6 @@ func shortCycle(c *config.Config) {
 	c.Procedure.PointsPa = []float64{0, 5e5, 10e5}
 }
 
-// With a controller that overshoots by 30 % of each step, an ascending
-// point first lands above the target: the runner must notice, retreat and
-// creep up on it again from below, so that every point lies on the branch of
-// its series (common practice: a point is approached from its series' side,
-// never by reversing onto it). The simulated dead band is widened to 0.06 bar
-// so that the two branches lie 5 tolerances apart.
-func TestApproachFromTheSeriesSide(t *testing.T) {
-	t.Parallel()
-	b := bench(t, func(c *config.Config) {
-		shortCycle(c)
-		c.Simulator.Speed = 60
-		c.Simulator.Source.Overshoot = 0.3
-		c.Simulator.Device.DeadBand = "0.06 bar"
-		instrumentNamed(t, c, config.RoleDevice).SimVia = config.LinkModbusTCP
-	})
-	id, state, reason := b.run(t, 30*time.Second)
-	if state != store.StateFinished {
-		b.logInstruments(t)
-		t.Fatalf("run ended %q: %s", state, reason)
-	}
-	if n := len(eventsOf(b.events(t, id), "approach")); n < 2 {
-		t.Errorf("%d approach events: the overshoot was never noticed", n)
-	}
-	pts := b.points(t, id)
-	if len(pts) != 8 {
-		t.Fatalf("%d points, want 8", len(pts))
-	}
-	for _, p := range pts {
-		if p.Note != "" {
-			t.Errorf("%s: %s", describe(p), p.Note)
-		}
-	}
-	checkErrors(t, b.rig, pts, 2, 0.012e5)
-}
-
-// A point that does not settle within its time-out is marked missed: with
-// on_timeout skip the run goes on to the end, with stop it ends failed at
-// the first one. The device's noise (1 bar) makes settling impossible.
-func TestPointTimeout(t *testing.T) {
-	for _, onTimeout := range []string{"skip", "stop"} {
-		t.Run(onTimeout, func(t *testing.T) {
-			t.Parallel()
-			b := bench(t, func(c *config.Config) {
-				c.Procedure.Cycles = 1
-				c.Procedure.Exercise = 0
-				c.Procedure.Zero = false
-				c.Procedure.PointsPa = []float64{0, 16e5}
-				c.Procedure.Timeout = 40 * time.Second
-				c.Procedure.OnTimeout = onTimeout
-				c.Simulator.Device.Noise = "1 bar"
-			})
-			id, state, reason := b.run(t, 20*time.Second)
-			missed := eventsOf(b.events(t, id), "missed")
-			for _, ev := range missed {
-				if !strings.Contains(ev.Message, "device under test did not settle") {
-					t.Errorf("missed event %q does not say why", ev.Message)
-				}
-			}
-			if n := len(b.points(t, id)); n != 0 {
-				t.Errorf("%d points captured from a device that never settles", n)
-			}
-			want, wantMissed := store.StateFinished, 4
-			if onTimeout == "stop" {
-				want, wantMissed = store.StateFailed, 1
-			}
-			if state != want || len(missed) != wantMissed {
-				t.Fatalf("run ended %q (%s) with %d missed points, want %q with %d", state, reason, len(missed), want, wantMissed)
-			}
-		})
-	}
-}
-
-// Free run: no plan and no source; the pressure is moved by hand (here on
-// the simulator's front panel). Every plateau both instruments hold for a
-// full window becomes one point, with the direction it was reached from.
-func TestFreeRun(t *testing.T) {
-	t.Parallel()
-	b := bench(t, func(c *config.Config) {
-		c.Procedure.Mode = "free"
-		var kept []config.Instrument
-		for _, in := range c.Instruments {
-			if in.Role != config.RoleSource {
-				kept = append(kept, in)
-			}
-		}
-		c.Instruments = kept
-	})
-	id, err := b.eng.Start(t.Name())
-	if err != nil {
-		t.Fatal(err)
-	}
-	plateaus := []float64{0, 5e5, 10e5, 5e5}
-	for _, pa := range plateaus {
-		if err := b.rig.SetPoint(pa); err != nil {
-			t.Fatal(err)
-		}
-		<-b.clk.After(40 * time.Second) // settling (about 10 s) plus a window and a half
-	}
-	if err := b.eng.Stop("plateaus done"); err != nil {
-		t.Fatal(err)
-	}
-	if run, err := b.st.Run(id); err != nil || run.State != store.StateStopped {
-		t.Errorf("run stored as %q (%v), want stopped", run.State, err)
-	}
-	pts := b.points(t, id)
-	if len(pts) != len(plateaus) {
-		for _, p := range pts {
-			t.Logf("%s at %.0f Pa", describe(p), p.Reference.Mean)
-		}
-		t.Fatalf("%d points from %d plateaus", len(pts), len(plateaus))
-	}
-	dirs := []analysis.Direction{analysis.Ascending, analysis.Ascending, analysis.Ascending, analysis.Descending}
-	for i, p := range pts {
-		if math.Abs(p.Reference.Mean-plateaus[i]) > b.cfg.Procedure.Settle.BandPa || p.Direction != dirs[i] {
-			t.Errorf("point %d: %s at %.0f Pa, want %s at %.0f Pa", i, p.Direction, p.Reference.Mean, dirs[i], plateaus[i])
-		}
-	}
-	checkWindowsFromStore(t, b, id, pts)
-}
-
 // An analog dial read by the simulated operator: one reading per point,
 // paired with the settled reference window.
 func TestDialRun(t *testing.T) {
@@ -149,6 +29,9 @@ func TestDialRun(t *testing.T) {
 				c.Simulator.Device.Kind = "dial"
 				c.Device.Kind = "dial"
 				c.Procedure.Compare = compare
+				// Bringing the pointer onto the mark takes several reads;
+				// on a loaded machine the scaled clock runs ahead of them.
+				c.Procedure.Timeout = 15 * time.Minute
 			}, withDial())
 			id, state, reason := b.run(t, 30*time.Second)
 			if state != store.StateFinished {
@@ -157,6 +40,9 @@ func TestDialRun(t *testing.T) {
 			}
 			pts := b.points(t, id)
 			if len(pts) != 8 {
+				for _, ev := range eventsOf(b.events(t, id), "missed") {
+					t.Log(ev.Message)
+				}
 				t.Fatalf("%d points, want 8", len(pts))
 			}
 			for _, p := range pts {
