@@ -67,6 +67,9 @@ func LoadToken(path string) (string, error) {
 	if fi.Mode().Perm()&0o004 != 0 {
 		return "", fmt.Errorf("token file %s: readable by every user (mode %#o); chmod 0640 or 0600", path, fi.Mode().Perm())
 	}
+	if fi.Mode().Perm()&0o022 != 0 {
+		return "", fmt.Errorf("token file %s: writable by others (mode %#o), so anyone could set the token; chmod 0640 or 0600", path, fi.Mode().Perm())
+	}
 	data, err := os.ReadFile(path)
 	if err != nil {
 		return "", fmt.Errorf("token file: %w", err)

@@ -33,6 +33,12 @@ func (s *Server) handleEvents(w http.ResponseWriter, r *http.Request) {
 		writeProblem(w, http.StatusBadRequest, err.Error())
 		return
 	}
+	if n := s.viewers.Add(1); n > int64(s.o.MaxViewers) {
+		s.viewers.Add(-1)
+		writeProblem(w, http.StatusServiceUnavailable, fmt.Sprintf("too many event viewers: %d are open, the limit is %d; close one and try again", n-1, s.o.MaxViewers))
+		return
+	}
+	defer s.viewers.Add(-1)
 	live, cancel := s.o.Feed.Subscribe(s.o.StreamBuffer)
 	defer func() { cancel() }()
 	after, err := s.resolveStart(start)

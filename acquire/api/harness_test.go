@@ -188,6 +188,7 @@ type harnessOptions struct {
 	keepalive    time.Duration
 	streamBuffer int
 	maxBody      int64
+	maxViewers   int
 }
 
 func newHarness(t testing.TB, ho harnessOptions) *harness {
@@ -199,7 +200,7 @@ func newHarness(t testing.TB, ho harnessOptions) *harness {
 	}
 	b := &bench{st: st, feed: &feed{}}
 	srv, err := New(Options{Control: b, Records: st, Feed: b.feed, Render: b.render, Token: testToken,
-		Version: "test", Keepalive: ho.keepalive, StreamBuffer: ho.streamBuffer, MaxBody: ho.maxBody})
+		Version: "test", Keepalive: ho.keepalive, StreamBuffer: ho.streamBuffer, MaxBody: ho.maxBody, MaxViewers: ho.maxViewers})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -11,6 +11,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -25,6 +26,7 @@ const (
 	DefaultMaxBody      = 64 << 10
 	DefaultKeepalive    = 15 * time.Second
 	DefaultStreamBuffer = 256
+	DefaultMaxViewers   = 64
 )
 
 // Options wire a Server. Control, Records and Feed are required.
@@ -50,6 +52,15 @@ type Options struct {
 	Keepalive time.Duration
 	// StreamBuffer is each viewer's live buffer in events (default 256).
 	StreamBuffer int
+	// MaxViewers caps the event streams open at once (default 64); one
+	// more is refused with 503 and the reason.
+	MaxViewers int
+	// Hosts are further names a TCP caller may put in its Host header
+	// besides the loopback names and the listener's own address (the
+	// configured address, a host name of the bench PC). Any other Host is
+	// refused, so that a web page elsewhere cannot reach the API through
+	// DNS rebinding.
+	Hosts []string
 }
 
 // Access says how far callers on a listener are trusted.
@@ -83,6 +94,7 @@ type Server struct {
 	reg     *prometheus.Registry
 	stream  *streamMetrics
 	stopped chan struct{} // closed by Shutdown: ends event streams
+	viewers atomic.Int64  // event streams open now
 
 	mu      sync.Mutex
 	servers []*http.Server
@@ -110,6 +122,9 @@ func New(o Options) (*Server, error) {
 	if o.Keepalive <= 0 {
 		o.Keepalive = DefaultKeepalive
 	}
+	if o.MaxViewers <= 0 {
+		o.MaxViewers = DefaultMaxViewers
+	}
 	if o.StreamBuffer <= 0 {
 		o.StreamBuffer = DefaultStreamBuffer
 	}
@@ -124,8 +139,12 @@ func New(o Options) (*Server, error) {
 // Serve answers calls arriving on l with the given trust until Shutdown.
 // It returns nil after Shutdown.
 func (s *Server) Serve(l net.Listener, access Access) error {
+	h := s.Handler(access)
+	if access != Local {
+		h = s.hostGuard(l.Addr(), h)
+	}
 	hs := &http.Server{
-		Handler:           s.Handler(access),
+		Handler:           h,
 		ReadHeaderTimeout: 5 * time.Second,
 		ReadTimeout:       30 * time.Second,
 		WriteTimeout:      60 * time.Second, // event streams lift it for themselves
@@ -163,6 +182,31 @@ func (s *Server) Shutdown(ctx context.Context) error {
 		}
 	}
 	return errors.Join(errs...)
+}
+
+// hostGuard answers only calls whose Host header names this listener: a
+// loopback name, the listener's address or one of Options.Hosts.
+func (s *Server) hostGuard(addr net.Addr, next http.Handler) http.Handler {
+	allowed := map[string]bool{"localhost": true, "127.0.0.1": true, "::1": true}
+	if host, _, err := net.SplitHostPort(addr.String()); err == nil {
+		allowed[strings.ToLower(host)] = true
+	}
+	for _, h := range s.o.Hosts {
+		allowed[strings.ToLower(strings.Trim(h, "[]"))] = true
+	}
+	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		host := r.Host
+		if h, _, err := net.SplitHostPort(host); err == nil {
+			host = h
+		}
+		host = strings.ToLower(strings.Trim(host, "[]"))
+		if !allowed[host] {
+			s.log.Warn("call refused: Host header names another server", "host", r.Host, "remote", r.RemoteAddr)
+			writeProblem(w, http.StatusMisdirectedRequest, fmt.Sprintf("Host %q is not this daemon's address: use localhost or the configured address", r.Host))
+			return
+		}
+		next.ServeHTTP(w, r)
+	})
 }
 
 // Handler returns the routes guarded for callers with the given trust.

@@ -100,7 +100,7 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger) (err error
 	}
 	srv, err := api.New(api.Options{
 		Control: ctl, Records: b.store, Feed: busFeed{b.engine.Bus()}, Render: render,
-		Token: token, Version: version, Logger: log.With("component", "api"),
+		Token: token, Version: version, Logger: log.With("component", "api"), Hosts: listenHosts(cfg.Listen.TCP),
 		Ready: b.engine.Healthy,
 	})
 	if err != nil {
@@ -388,4 +388,14 @@ func (c *engineControl) probes() []systemd.Probe {
 		return ws.LastCommit
 	}})
 	return out
+}
+
+// listenHosts are the Host names a TCP caller may use besides loopback: the
+// configured listen address's host, when it names one.
+func listenHosts(addr string) []string {
+	host, _, err := net.SplitHostPort(addr)
+	if err != nil || host == "" {
+		return nil
+	}
+	return []string{host}
 }
