@@ -20,11 +20,17 @@ import (
 //	time    = signed(delta-of-delta ns; the first delta is from the key), in time widths
 //	value   = "0"    signed(digits − previous digits)         the decimal at the block's exponent
 //	        | "10"   exp(5 bits) signed(digits)                a finer exponent from here on
-//	        | "110"  Raw(64 bits)                              not a short decimal: the float itself
+//	        | "110"  Raw(64 bits)                              neither: the float itself
 //	        | "1110" unsigned(kind) text(message)              a failed read
+//	        | "1111" signed(bits32(Raw) − previous bits32)     a float32 value (register words), as ordered bits
 //	pa      = "0"                                              Pa = Raw × scale exactly
-//	        | "10"   signed(bits(Pa) − bits(prediction))       prediction = previous Pa + (Raw − previous Raw) × scale
+//	        | "10"   signed(bits(Pa) − bits(prediction))       prediction = previous Pa + (Raw − previous Raw) × slope
 //	        | "11"   scale(64 bits)                            a new scale, and Pa = Raw × scale exactly
+//
+// slope is (Pa − previous Pa) / (Raw − previous Raw) of the last two good
+// samples with different values, so an affine conversion (4–20 mA) is
+// predicted to within a few units in the last place.
+//
 //	wire    = "0" | "1" text(wire)                             the audit text, when kept
 //	text    = unsigned(length) bytes
 //	signed  = unsigned(zigzag)
@@ -40,9 +46,10 @@ import (
 // predicted from Raw by one scale per block and stored as the difference of
 // the bit patterns, so time, Raw and Pa read back bit-exactly.
 const (
-	blockV2   = 2
-	maxExp    = 22
-	trailerSz = 8
+	blockV2     = 2
+	maxExp      = 22 // 10^22 is the largest power of ten a float64 holds exactly
+	maxDecimals = 12 // the finest exponent a block moves to
+	trailerSz   = 8
 	// blockBytes is the size a block is filled to: two blocks with their
 	// element headers (16 bytes) and keys (8) fill a 4 KiB page after its
 	// 16-byte header, and rewriting the last block each commit stays cheap.
@@ -92,9 +99,41 @@ type coderState struct {
 	lastDelta int64
 	exp       int
 	digits    int64
+	f32       int64 // bits of the previous float32 value, as a signed ordered integer
 	scale     float64
+	slope     float64
 	prevPa    float64
 	prevRaw   float64
+	seen      bool // prevPa and prevRaw hold a good sample of this block
+}
+
+// goodSample moves the state past a good sample (encoder and decoder alike).
+func (st *coderState) goodSample(raw, pa float64) {
+	if raw != st.prevRaw {
+		if sl := (pa - st.prevPa) / (raw - st.prevRaw); !math.IsInf(sl, 0) && !math.IsNaN(sl) && sl != 0 {
+			st.slope = sl
+		}
+	}
+	st.prevPa, st.prevRaw, st.seen = pa, raw, true
+}
+
+// ordered32 maps float32 bits to integers that order like the floats, so
+// nearby values differ by a small number.
+func ordered32(b uint32) int64 {
+	if b&(1<<31) != 0 {
+		return -int64(b &^ (1 << 31))
+	}
+	return int64(b)
+}
+
+func unordered32(v int64) (uint32, bool) {
+	switch {
+	case v > math.MaxUint32>>1 || v < -(math.MaxUint32>>1):
+		return 0, false
+	case v < 0:
+		return uint32(-v) | 1<<31, true
+	}
+	return uint32(v), true
 }
 
 type blockWriter struct {
@@ -165,7 +204,18 @@ func (b *blockWriter) value(raw float64) {
 		st.digits = d
 		return
 	}
-	if k := shortestExp(raw); k > st.exp && k <= maxExp {
+	// Register words decoded as a float32 are stored as such (a decimal
+	// reply is seldom exactly a float32).
+	if f := float32(raw); float64(f) == raw && !(f == 0 && math.Signbit(raw)) {
+		o := ordered32(math.Float32bits(f))
+		w.write(0b1111, 4)
+		w.signed(o - st.f32)
+		st.f32 = o
+		return
+	}
+	// Instruments reply with a handful of decimals: a value whose shortest
+	// form needs more than maxDecimals takes the float escape.
+	if k := shortestExp(raw); k > st.exp && k <= maxDecimals {
 		if d, ok := decimalAt(raw, k); ok {
 			w.write(0b10, 2)
 			w.write(uint64(k), 5)
@@ -180,28 +230,41 @@ func (b *blockWriter) value(raw float64) {
 
 func (b *blockWriter) pa(raw, pa float64) {
 	w, st := &b.bits, &b.st
-	defer func() { st.prevPa, st.prevRaw = pa, raw }()
+	defer st.goodSample(raw, pa)
 	if same(raw*st.scale, pa) {
 		w.write(0, 1)
 		return
 	}
-	if s, ok := scaleFor(raw, pa); ok {
-		w.write(0b11, 2)
-		w.write(math.Float64bits(s), 64)
-		st.scale = s
-		return
+	if st.seen && nearRatio(raw, pa, st.prevRaw, st.prevPa) {
+		if s, ok := scaleFor(raw, pa); ok && same(st.prevRaw*s, st.prevPa) {
+			w.write(0b11, 2)
+			w.write(math.Float64bits(s), 64)
+			st.scale = s
+			return
+		}
 	}
 	w.write(0b10, 2)
 	w.signed(int64(math.Float64bits(pa) - math.Float64bits(st.predict(raw))))
 }
 
-func (st *coderState) predict(raw float64) float64 { return st.prevPa + (raw-st.prevRaw)*st.scale }
+// nearRatio tells whether two samples could share one exact scale factor:
+// their ratios pa/raw lie within a few units in the last place (an affine
+// conversion gives ratios far apart, and no search is worth its cost).
+func nearRatio(raw, pa, prevRaw, prevPa float64) bool {
+	a, b := pa/raw, prevPa/prevRaw
+	return math.Abs(a-b) <= 8*math.Abs(math.Nextafter(a, math.Inf(1))-a)
+}
+
+func (st *coderState) predict(raw float64) float64 { return st.prevPa + (raw-st.prevRaw)*st.slope }
 
 func same(a, b float64) bool { return math.Float64bits(a) == math.Float64bits(b) }
 
 // scaleFor looks for a factor s with raw × s == pa exactly near pa / raw,
 // preferring the one with the shortest decimal form (unit factors are round
 // numbers such as 1e5 for bar), so later samples are likely to match too.
+// The encoder takes it only when it reproduces the previous sample as well:
+// under an affine conversion some factor fits any one sample, and taking
+// each would cost 64 bits a sample.
 func scaleFor(raw, pa float64) (float64, bool) {
 	if raw == 0 || math.IsInf(raw, 0) || math.IsNaN(raw) {
 		return 0, false
@@ -280,7 +343,12 @@ func decodeBlockV2(key int64, b []byte, fn func(Sample) error) error {
 			smp.Kind = drivers.Kind(r.unsigned())
 			smp.Message = r.text()
 		default:
-			return bad("sample %d: unknown value code", i)
+			st.f32 += r.signed()
+			bits, ok := unordered32(st.f32)
+			if !ok {
+				return bad("sample %d: float32 value out of range", i)
+			}
+			smp.Raw = float64(math.Float32frombits(bits))
 		}
 		if !smp.Failed {
 			smp.RawUnit = unit
@@ -293,7 +361,7 @@ func decodeBlockV2(key int64, b []byte, fn func(Sample) error) error {
 				st.scale = math.Float64frombits(r.read(64))
 				smp.Pa = smp.Raw * st.scale
 			}
-			st.prevPa, st.prevRaw = smp.Pa, smp.Raw
+			st.goodSample(smp.Raw, smp.Pa)
 		}
 		if r.bit() == 1 {
 			smp.Wire = r.text()

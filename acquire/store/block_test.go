@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"errors"
 	"math"
+	"math/rand/v2"
 	"testing"
 	"time"
 
@@ -53,6 +54,16 @@ func TestBlockValuesBitExact(t *testing.T) {
 			{Time: at(-5), Raw: 1e22, Pa: 1e-300, RawUnit: "mA"},
 			{Time: at(7), Raw: 4.000001, Pa: (4.000001 - 4) / 16 * 1.6e6, RawUnit: "mA"}, // an affine scale
 		}},
+		{"float32 register values, 4–20 mA", func() []Sample {
+			var out []Sample
+			for i := range 200 {
+				ma := float64(float32(12 + 0.001*math.Sin(float64(i))))
+				out = append(out, Sample{Time: at(50 * i), Raw: ma, Pa: (ma - 4) / 16 * 1.6e6, RawUnit: "mA"})
+			}
+			out = append(out, Sample{Time: at(50 * 200), Raw: float64(float32(math.Inf(-1))), Pa: -1, RawUnit: "mA"},
+				Sample{Time: at(50 * 201), Raw: float64(float32(-3.5e-40)), Pa: 0, RawUnit: "mA"})
+			return out
+		}()},
 		{"failures between readings", []Sample{
 			{Time: at(0), Raw: 12, Pa: 12 * 6894.757293168361, RawUnit: "psi"},
 			{Time: at(50), Failed: true, Kind: drivers.KindTimeout, Message: "no reply within 500 ms", Wire: "?"},
@@ -125,4 +136,50 @@ func FuzzDecodeBlock(f *testing.F) {
 			t.Fatalf("%d samples from %d bytes", n, len(data))
 		}
 	})
+}
+
+// BenchmarkBlockEncoding reports the encoded size of three kinds of
+// stream, blocks only (no bbolt): the bench's reference (five decimals in
+// bar), its device (quantised to 0.01 bar), and a 4–20 mA transmitter read
+// as a float32 register pair with an affine conversion to Pa.
+func BenchmarkBlockEncoding(b *testing.B) {
+	g := &benchBench{rng: rand.New(rand.NewPCG(3, 4))}
+	var ref, dut, ma []Sample
+	for i := range 20_000 {
+		_, smp := g.sample(i)
+		if i%2 == 1 {
+			dut = append(dut, smp)
+			continue
+		}
+		ref = append(ref, smp)
+		cur := float64(float32(12 + 1e-3*g.rng.NormFloat64()))
+		ma = append(ma, Sample{Time: smp.Time, Raw: cur, Pa: (cur - 4) / 16 * 1.6e6, RawUnit: "mA"})
+	}
+	for _, tc := range []struct {
+		name string
+		smps []Sample
+	}{{"reference", ref}, {"device", dut}, {"float32-mA", ma}} {
+		b.Run(tc.name, func(b *testing.B) {
+			var bytes, n int
+			for b.Loop() {
+				bytes, n = encodeStream(tc.smps)
+			}
+			b.ReportMetric(float64(bytes)/float64(n), "block-bytes/sample")
+		})
+	}
+}
+
+// encodeStream packs samples into blocks as the writer does (no wire text)
+// and returns the bytes of all blocks and the sample count.
+func encodeStream(smps []Sample) (int, int) {
+	total := 0
+	blk := newBlock(smps[0].Time.UnixNano(), smps[0].RawUnit)
+	for _, smp := range smps {
+		if !blk.add(smp, false) {
+			total += len(blk.bytes())
+			blk = newBlock(smp.Time.UnixNano(), smp.RawUnit)
+			blk.add(smp, false)
+		}
+	}
+	return total + len(blk.bytes()), len(smps)
 }
