@@ -67,7 +67,7 @@ func defaults() map[string]any {
 		"procedure.on_timeout":        "skip",
 		"procedure.zero":              true,
 		"procedure.compare":           "set-by-reference",
-		"procedure.decision":          "simple",
+		"procedure.decision":          "", // no rule is assumed: see validateProcedure
 		"procedure.coverage":          "conventional",
 		"procedure.settle.window":     30 * time.Second,
 		"procedure.settle.min_count":  10,

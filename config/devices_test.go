@@ -47,6 +47,7 @@ func TestSixteenDevices(t *testing.T) {
 	var b strings.Builder
 	b.WriteString(`device: {upper: 16 bar, resolution: 0.01 bar, class: "1"}
 reference: {uncertainty: 0.01 %}
+procedure: {decision: simple}
 instruments:
   - {name: ref, role: reference, link: {kind: sim}, sim_part: reference}
 `)

@@ -29,7 +29,8 @@ func TestBaseIsClean(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(cfg.Warnings) != 0 {
+	// Its only warning: no decision rule is assumed.
+	if len(cfg.Warnings) != 1 || cfg.Warnings[0].Key != "procedure.decision" {
 		t.Fatalf("warnings: %v", cfg.Warnings)
 	}
 }
@@ -235,7 +236,7 @@ func TestEnvironmentProblemsNameTheVariable(t *testing.T) {
 func TestUnknownVariableIsAWarning(t *testing.T) {
 	t.Setenv("PLATEAU_SAFETY_MAX_PRESURE", "10 bar")
 	t.Setenv("PLATEAU_TOKEN", "secret") // read by the commands, not a key
-	cfg, err := Parse([]byte(base), "env.yaml")
+	cfg, err := Parse([]byte(base+"procedure:\n  decision: simple\n"), "env.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -357,7 +357,14 @@ func (c *Config) validateProcedure(p *Problems) {
 	oneOf(p, "procedure.mode", pr.Mode, modes)
 	oneOf(p, "procedure.on_timeout", pr.OnTimeout, onTimeouts)
 	oneOf(p, "procedure.compare", pr.Compare, compares)
-	oneOf(p, "procedure.decision", pr.Decision, decisions)
+	// No rule is assumed: ILAC-G8:09/2019 asks that the decision rule be
+	// agreed before measuring. Without one the file is usable (check,
+	// probe, analyze with a rule given) but no run starts.
+	if pr.Decision == "" {
+		p.warn("procedure.decision", "", "no decision rule is set, so no run will start: choose simple, guarded or four-state with the customer before measuring (ILAC-G8:09/2019)")
+	} else {
+		oneOf(p, "procedure.decision", pr.Decision, decisions)
+	}
 	oneOf(p, "procedure.coverage", pr.Coverage, []string{"conventional", "student-t"})
 	for _, dut := range c.Devices {
 		if pr.Mode == "free" && dut.Device.Kind == "dial" {
