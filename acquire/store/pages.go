@@ -298,8 +298,8 @@ func (w *walker) bucketPage(id uint64, path []string, depth int) error {
 				return fmt.Errorf("%s: page %d: key %d lies outside the page", what, id, i)
 			}
 			child := le.Uint64(b[e+8:])
-			if sampleLeaves(path) && w.bounded && depth+1 <= maxDepth {
-				if err := w.sampleChild(child, what); err != nil {
+			if sampleLeaves(path) && w.bounded {
+				if err := w.sampleChild(child, path, depth+1); err != nil {
 					return err
 				}
 				continue
@@ -318,7 +318,8 @@ func (w *walker) bucketPage(id uint64, path []string, depth int) error {
 
 // sampleChild checks one child of a sample bucket's branch page without
 // reading a leaf's contents: only its header.
-func (w *walker) sampleChild(id uint64, what string) error {
+func (w *walker) sampleChild(id uint64, path []string, depth int) error {
+	what := "bucket /" + joinPath(path)
 	if id < 2 || id >= w.hwm {
 		return fmt.Errorf("%s: page %d is outside the pages in use (2 to %d)", what, id, w.hwm-1)
 	}
@@ -328,7 +329,7 @@ func (w *walker) sampleChild(id uint64, what string) error {
 	}
 	le := binary.LittleEndian
 	if fl := le.Uint16(hdr[8:]); fl == flagBranch {
-		return w.bucketPage(id, []string{"runs", "?", "samples", "?"}, 1)
+		return w.bucketPage(id, path, depth)
 	}
 	over := uint64(le.Uint32(hdr[12:]))
 	switch {
