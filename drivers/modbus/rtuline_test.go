@@ -104,8 +104,9 @@ func startLine(tb testing.TB, units int) (string, *lineUnits) {
 
 // lineRound is one timed stretch of reads of every unit on the line.
 type lineRound struct {
-	perSecond float64
+	perSecond float64 // good reads
 	perUnit   []int
+	failed    int // reads that failed (a time-out on a loaded machine); the line carried them too
 }
 
 // driverRound reads units 1 … n through plateau's driver: one gauge per
@@ -125,6 +126,7 @@ func driverRound(tb testing.TB, dev string, units int, pause, d time.Duration) (
 	ctx, cancel := context.WithTimeout(context.Background(), d)
 	defer cancel()
 	counts := make([]int, units)
+	var failed atomic.Int64
 	var wg sync.WaitGroup
 	start := time.Now()
 	for i, g := range gauges {
@@ -135,9 +137,10 @@ func driverRound(tb testing.TB, dev string, units int, pause, d time.Duration) (
 				r, err := g.Read(ctx)
 				if err != nil {
 					if ctx.Err() == nil {
-						tb.Errorf("unit %d: %v", i+1, err)
+						failed.Add(1)
+						time.Sleep(10 * time.Millisecond) // as a poller waits after a failure
 					}
-					return
+					continue
 				}
 				if r.Raw != float64(i+1) {
 					tb.Errorf("unit %d read %v: another unit's reply", i+1, r.Raw)
@@ -154,7 +157,7 @@ func driverRound(tb testing.TB, dev string, units int, pause, d time.Duration) (
 		rates[i] = g.(drivers.RateReporter).ReadRate()
 		g.Close()
 	}
-	return lineRound{perSecond: float64(sum(counts)) / elapsed.Seconds(), perUnit: counts}, rates
+	return lineRound{perSecond: float64(sum(counts)) / elapsed.Seconds(), perUnit: counts, failed: int(failed.Load())}, rates
 }
 
 // bareRound reads units 1 … n in turn with the bare simonvetter/modbus
@@ -170,6 +173,7 @@ func bareRound(tb testing.TB, dev string, units int, d time.Duration) lineRound 
 	}
 	defer c.Close()
 	counts := make([]int, units)
+	failed := 0
 	start := time.Now()
 	for time.Since(start) < d {
 		for u := range units {
@@ -177,12 +181,13 @@ func bareRound(tb testing.TB, dev string, units int, d time.Duration) lineRound 
 				tb.Fatal(err)
 			}
 			if _, err := c.ReadRegisters(0, 2, mb.HOLDING_REGISTER); err != nil {
-				tb.Fatalf("bare client, unit %d: %v", u+1, err)
+				failed++
+				continue
 			}
 			counts[u]++
 		}
 	}
-	return lineRound{perSecond: float64(sum(counts)) / time.Since(start).Seconds(), perUnit: counts}
+	return lineRound{perSecond: float64(sum(counts)) / time.Since(start).Seconds(), perUnit: counts, failed: failed}
 }
 
 func sum(v []int) int {
@@ -208,21 +213,23 @@ func BenchmarkRTULine(b *testing.B) {
 	const units, rounds = 8, 3
 	const pause = 20 * time.Millisecond // a usual pause for RS-485 devices that are slow to release the line
 	dev, _ := startLine(b, units)
-	per := max(time.Duration(b.N)*time.Millisecond, 500*time.Millisecond) // b.N sets the length of a round
+	per := min(max(time.Duration(b.N)*time.Millisecond, 500*time.Millisecond), 5*time.Second) // b.N sets the length of a round
 	var drv, bare, fair, paused []float64
+	failed := 0
 	for i := range rounds {
-		var d lineRound
+		var d, c lineRound
 		if i%2 == 0 {
 			d, _ = driverRound(b, dev, units, 0, per)
-			bare = append(bare, bareRound(b, dev, units, per).perSecond)
+			c = bareRound(b, dev, units, per)
 		} else {
-			bare = append(bare, bareRound(b, dev, units, per).perSecond)
+			c = bareRound(b, dev, units, per)
 			d, _ = driverRound(b, dev, units, 0, per)
 		}
-		drv = append(drv, d.perSecond)
+		drv, bare = append(drv, d.perSecond), append(bare, c.perSecond)
 		fair = append(fair, float64(slices.Min(d.perUnit))/float64(slices.Max(d.perUnit)))
 		p, _ := driverRound(b, dev, units, pause, per)
 		paused = append(paused, p.perSecond)
+		failed += d.failed + c.failed + p.failed
 	}
 	b.ReportMetric(0, "ns/op")
 	b.ReportMetric(median(drv), "driver-reads/s")
@@ -231,6 +238,7 @@ func BenchmarkRTULine(b *testing.B) {
 	b.ReportMetric(median(fair), "fewest/most-per-unit")
 	b.ReportMetric(median(paused), "driver-reads/s-pause-20ms")
 	b.ReportMetric(LineReadsPerSecond(lineBaud, 2, pause), "wire-limit-reads/s-pause-20ms")
+	b.ReportMetric(float64(failed), "failed-reads")
 }
 
 // The benchmark's path as a short test: every unit answers, with its own
@@ -240,6 +248,9 @@ func TestRTULineTakesTurns(t *testing.T) {
 	const units = 8
 	dev, line := startLine(t, units)
 	r, rates := driverRound(t, dev, units, 0, 800*time.Millisecond)
+	if r.failed > 0 {
+		t.Errorf("%d reads failed on a line with every unit answering", r.failed)
+	}
 	var sumRates float64
 	for i, n := range r.perUnit {
 		if n == 0 {
