@@ -112,15 +112,11 @@ func (e *Engine) Start(label string) (store.RunID, error) {
 	if e.cfg.Procedure.Decision == "" {
 		return 0, errors.New("start: no decision rule: set procedure.decision to simple, guarded or four-state (ILAC-G8:09/2019 asks that the rule be agreed before measuring)")
 	}
-	unfinished, err := e.st.Unfinished()
-	if err != nil {
-		return 0, fmt.Errorf("start: %w", err)
+	run, err := e.st.CreateSoleRun(label, e.yaml, e.record)
+	var unfinished *store.UnfinishedError
+	if errors.As(err, &unfinished) {
+		return 0, fmt.Errorf("start: %w: the store holds the unfinished run %s (%s); end it with plateau stop, or restart the daemon to resume it", ErrBusy, unfinished.Run, unfinished.State)
 	}
-	if len(unfinished) > 0 {
-		u := unfinished[len(unfinished)-1]
-		return 0, fmt.Errorf("start: the store holds the unfinished run %s (%s): restart the daemon to resume it, or end it with plateau stop", u.ID, u.State)
-	}
-	run, err := e.st.CreateFrozenRun(label, e.yaml, e.record)
 	if err != nil {
 		return 0, fmt.Errorf("start: %w", err)
 	}
@@ -150,13 +146,28 @@ type stopRequest struct{ reason string }
 func (s *stopRequest) Error() string { return s.reason }
 
 // Stop ends the active run by an operator's decision; the source is vented.
+// With no active run, it ends a run the store still holds as unfinished (one
+// whose last state write failed), so that a new run can start.
 func (e *Engine) Stop(reason string) error {
-	r := e.runs.active()
-	if r == nil {
-		return ErrNoRun
-	}
 	if reason == "" {
 		reason = "stopped by operator"
+	}
+	r := e.runs.active()
+	if r == nil {
+		left, err := e.st.Unfinished()
+		if err != nil {
+			return fmt.Errorf("stop: %w", err)
+		}
+		if len(left) == 0 {
+			return ErrNoRun
+		}
+		for _, u := range left {
+			if _, err := e.st.SetState(u.ID, store.StateStopped, reason+" (it was left unfinished)"); err != nil {
+				return fmt.Errorf("stop %s: %w", u.ID, err)
+			}
+			e.emit(u.ID, slog.LevelWarn, "state", "", fmt.Sprintf("run %s stopped: %s (it was left unfinished)", u.ID, reason), map[string]string{"state": string(store.StateStopped)})
+		}
+		return nil
 	}
 	r.cancel(&stopRequest{reason})
 	<-r.done

@@ -55,7 +55,8 @@ type Instruments struct {
 
 // Store is what the engine keeps its record in.
 type Store interface {
-	CreateFrozenRun(label string, config, record []byte) (store.Run, error)
+	// CreateSoleRun refuses while any run is unfinished.
+	CreateSoleRun(label string, config, record []byte) (store.Run, error)
 	SetState(id store.RunID, state store.State, reason string) (store.Run, error)
 	SetCursor(id store.RunID, cursor []byte) (store.Run, error)
 	Unfinished() ([]store.Run, error)
@@ -166,7 +167,8 @@ func New(opt Options) (*Engine, error) {
 	rules := settleRules(cfg)
 	mk := func(inst Instrument, r settle.Rules, first poll.Observer) (*poll.Poller, error) {
 		p, err := poll.New(poll.Options{Name: inst.Name, Gauge: inst.Gauge, Interval: inst.Poll, Rules: r, Clock: opt.Clock,
-			Sink: e.samples, First: first, Log: opt.Log.With("instrument", inst.Name), Link: e.linkChanged})
+			Sink: e.samples, First: first, Log: opt.Log.With("instrument", inst.Name), Link: e.linkChanged,
+			ClockBack: e.clockStepped})
 		if err != nil {
 			return nil, fmt.Errorf("instrument %q: %w", inst.Name, err)
 		}
@@ -314,6 +316,16 @@ func (e *Engine) linkChanged(name string, down bool, err error) {
 		return
 	}
 	go e.emit(run, slog.LevelInfo, "link", name, name+": link restored", map[string]bool{"up": true})
+}
+
+// clockStepped reports a clock that stepped back; the instrument's window
+// started afresh, so no point pairs readings from both sides of the step.
+func (e *Engine) clockStepped(name string, by time.Duration) {
+	run := store.RunID(0)
+	if r := e.runs.active(); r != nil {
+		run = r.id
+	}
+	go e.emit(run, slog.LevelWarn, "clock", name, fmt.Sprintf("%s: the clock stepped back by %s; readings before the step are not paired with readings after it", name, by), nil)
 }
 
 func (e *Engine) fmtPa(pa float64) string {

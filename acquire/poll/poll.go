@@ -37,19 +37,22 @@ type Poller struct {
 	first    Observer
 	log      *slog.Logger
 
-	mu       sync.Mutex
-	det      *settle.Detector
-	last     drivers.Reading
-	lastErr  error
-	reads    uint64
-	failures map[drivers.Kind]uint64
-	beat     time.Time     // wall time of the last completed read attempt
-	done     time.Time     // clock time of the last completed read attempt
-	cycle    time.Duration // clock time between the last two completed attempts
-	since    time.Time     // clock time from which samples count (after a pressure change)
-	down     bool          // the link is down (for link lost / restored events)
-	waiting  string        // what an instrument read by a person is waiting for
-	link     func(name string, down bool, err error)
+	mu        sync.Mutex
+	det       *settle.Detector
+	last      drivers.Reading
+	lastErr   error
+	reads     uint64
+	failures  map[drivers.Kind]uint64
+	beat      time.Time     // wall time of the last completed read attempt
+	done      time.Time     // clock time of the last completed read attempt
+	cycle     time.Duration // clock time between the last two completed attempts
+	since     time.Time     // clock time from which samples count (after a pressure change)
+	down      bool          // the link is down (for link lost / restored events)
+	waiting   string        // what an instrument read by a person is waiting for
+	link      func(name string, down bool, err error)
+	clockBack func(name string, by time.Duration)
+	stamped   time.Time // time of the last reading, to notice a clock that steps back
+	unusable  warnLimit // "not usable for settling" warnings, at most one per interval
 }
 
 // Options wire a poller.
@@ -64,6 +67,10 @@ type Options struct {
 	Log      *slog.Logger
 	// Link is told when the instrument's link goes down and comes back.
 	Link func(name string, down bool, err error)
+	// ClockBack is told when a reading is stamped earlier than the one
+	// before it (the system clock stepped back); the settling window starts
+	// afresh, so readings from before and after are never paired.
+	ClockBack func(name string, by time.Duration)
 }
 
 // New prepares a poller; it polls once Run is called.
@@ -77,7 +84,7 @@ func New(o Options) (*Poller, error) {
 	}
 	p := &Poller{Name: o.Name, gauge: o.Gauge, interval: o.Interval, clk: o.Clock, sink: o.Sink, first: o.First,
 		log: o.Log, det: det, failures: map[drivers.Kind]uint64{}}
-	p.link = o.Link
+	p.link, p.clockBack = o.Link, o.ClockBack
 	return p, nil
 }
 
@@ -153,6 +160,13 @@ func (p *Poller) Record(r drivers.Reading, err error) (drivers.Reading, error) {
 	}
 	p.reads++
 	wasDown := p.down
+	var back time.Duration
+	if !p.stamped.IsZero() && r.Time.Before(p.stamped) {
+		back = p.stamped.Sub(r.Time)
+		p.det.Reset()
+		p.since = r.Time
+	}
+	p.stamped = r.Time
 	if err != nil {
 		p.lastErr = err
 		p.failures[drivers.KindOf(err)]++
@@ -162,7 +176,9 @@ func (p *Poller) Record(r drivers.Reading, err error) (drivers.Reading, error) {
 		p.last = r
 		if !r.Time.Before(p.since) {
 			if aerr := p.det.Add(r.Time, r.Pa); aerr != nil {
-				p.log.Warn("reading not usable for settling", "err", aerr)
+				if n, ok := p.unusable.allow(time.Now()); ok {
+					p.log.Warn("reading not usable for settling", "err", aerr, "suppressed", n)
+				}
 			}
 		}
 	}
@@ -171,7 +187,31 @@ func (p *Poller) Record(r drivers.Reading, err error) (drivers.Reading, error) {
 	if p.link != nil && down != wasDown {
 		p.link(p.Name, down, err)
 	}
+	if back > 0 && p.clockBack != nil {
+		p.clockBack(p.Name, back)
+	}
 	return r, err
+}
+
+// warnLimit lets one warning of a kind through per interval and counts the
+// ones it holds back, so a fault repeated at every poll does not flood the log.
+type warnLimit struct {
+	last       time.Time
+	suppressed int
+}
+
+const warnInterval = 10 * time.Second
+
+// allow reports whether a warning may be logged now, and how many were held
+// back since the last one.
+func (w *warnLimit) allow(now time.Time) (int, bool) {
+	if !w.last.IsZero() && now.Sub(w.last) < warnInterval {
+		w.suppressed++
+		return 0, false
+	}
+	n := w.suppressed
+	w.last, w.suppressed = now, 0
+	return n, true
 }
 
 type notFinite struct{}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"log/slog"
 	"os"
+	"time"
 
 	"plateau/acquire"
 	"plateau/acquire/store"
@@ -61,6 +62,16 @@ func openBench(ctx context.Context, cfg *config.Config, log *slog.Logger) (*benc
 		return nil, fmt.Errorf("open store: %w", err)
 	}
 	b.store = st
+	// Time within a run only moves forward: an accelerated clock resumes
+	// from the latest time the store holds.
+	if sc, ok := b.clock.(*clock.Scaled); ok {
+		last, err := st.LastTime()
+		if err != nil {
+			b.close()
+			return nil, fmt.Errorf("read the store's latest time: %w", err)
+		}
+		sc.NotBefore(last.Add(time.Millisecond))
+	}
 	// The file as used is kept with every run, for the record.
 	yaml, err := os.ReadFile(cfg.File)
 	if err != nil {

@@ -27,6 +27,7 @@ func (Wall) After(d time.Duration) <-chan time.Time { return time.After(d) }
 // factor such that poll intervals stay well above a network round trip.
 type Scaled struct {
 	Factor float64
+	mu     sync.RWMutex
 	start  time.Time
 	origin time.Time
 }
@@ -41,7 +42,21 @@ func NewScaled(factor float64) *Scaled {
 }
 
 func (s *Scaled) Now() time.Time {
+	s.mu.RLock()
+	defer s.mu.RUnlock()
 	return s.origin.Add(time.Duration(float64(time.Since(s.start)) * s.Factor))
+}
+
+// NotBefore moves the clock forward to t when it shows an earlier time, so
+// that a simulated bench restarted on a store written by a faster clock
+// never stamps a time before what is stored. It never moves backwards.
+func (s *Scaled) NotBefore(t time.Time) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	now := s.origin.Add(time.Duration(float64(time.Since(s.start)) * s.Factor))
+	if t.After(now) {
+		s.origin, s.start = t, time.Now()
+	}
 }
 
 func (s *Scaled) After(d time.Duration) <-chan time.Time {
