@@ -3,6 +3,7 @@ package modbus
 import (
 	"errors"
 	"io"
+	"os"
 	"testing"
 	"time"
 
@@ -34,14 +35,7 @@ func TestCRCCheckValues(t *testing.T) {
 // register with the frame a fault function makes.
 func fakeRTU(t *testing.T, replies ...func(req []byte) []byte) string {
 	t.Helper()
-	master, slave, err := pty.Open()
-	if err != nil {
-		t.Skipf("no pseudo-terminals: %v", err)
-	}
-	if _, err := term.MakeRaw(int(slave.Fd())); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { master.Close(); slave.Close() })
+	master, dev := rawPty(t)
 	go func() {
 		for _, reply := range replies {
 			req := make([]byte, 8)
@@ -56,7 +50,24 @@ func fakeRTU(t *testing.T, replies ...func(req []byte) []byte) string {
 			}
 		}
 	}()
-	return slave.Name()
+	return dev
+}
+
+// rawPty makes a pseudo-terminal pair in raw mode, so bytes pass unchanged:
+// the test plays the device on the master side, the driver opens the slave
+// by its name. The slave stays open too, so the master never reads EIO
+// while the driver has the port closed.
+func rawPty(tb testing.TB) (*os.File, string) {
+	tb.Helper()
+	master, slave, err := pty.Open()
+	if err != nil {
+		tb.Skipf("no pseudo-terminals: %v", err)
+	}
+	if _, err := term.MakeRaw(int(slave.Fd())); err != nil {
+		tb.Fatal(err)
+	}
+	tb.Cleanup(func() { master.Close(); slave.Close() })
+	return master, slave.Name()
 }
 
 // good answers 555 (REFERENCES §9.1 value) for every register asked.

@@ -15,9 +15,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/creack/pty"
 	mb "github.com/simonvetter/modbus"
-	"golang.org/x/term"
 
 	"plateau/config"
 	"plateau/drivers"
@@ -89,17 +87,10 @@ func (l *lineUnits) serve(master *os.File) {
 // the client side opens.
 func startLine(tb testing.TB, units int) (string, *lineUnits) {
 	tb.Helper()
-	master, slave, err := pty.Open()
-	if err != nil {
-		tb.Skipf("no pseudo-terminals: %v", err)
-	}
-	if _, err := term.MakeRaw(int(slave.Fd())); err != nil {
-		tb.Fatal(err)
-	}
-	tb.Cleanup(func() { master.Close(); slave.Close() })
+	master, dev := rawPty(tb)
 	l := &lineUnits{n: units, baud: lineBaud}
 	go l.serve(master)
-	return slave.Name(), l
+	return dev, l
 }
 
 // lineRound is one timed stretch of reads of every unit on the line.
