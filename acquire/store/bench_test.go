@@ -161,7 +161,27 @@ func readBackExact(tb testing.TB, s *Store, run RunID, n int, jitter time.Durati
 // bare bbolt, in this order, and reports both and their ratio.
 type dayFigures struct {
 	store, bare, readBack time.Duration
-	bytesPerSample        float64
+	bytesPerSample        float64 // the file's size (bbolt grows it in steps)
+	blockBytesPerSample   float64 // the sample blocks' own bytes
+}
+
+// storedBlockBytes sums the stored sample blocks of a run.
+func storedBlockBytes(tb testing.TB, s *Store, run RunID) int {
+	n := 0
+	err := s.view("sum blocks", func(tx *bolt.Tx) error {
+		rb, err := runBucket(tx, run)
+		if err != nil {
+			return err
+		}
+		smp := rb.Bucket(bucketSamples)
+		return smp.ForEachBucket(func(inst []byte) error {
+			return smp.Bucket(inst).ForEach(func(_, v []byte) error { n += len(v); return nil })
+		})
+	})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return n
 }
 
 func dayAgainstBare(tb testing.TB, n int, jitter time.Duration) dayFigures {
@@ -172,6 +192,7 @@ func dayAgainstBare(tb testing.TB, n int, jitter time.Duration) dayFigures {
 	if err := s.Check(); err != nil {
 		tb.Fatal(err)
 	}
+	f.blockBytesPerSample = float64(storedBlockBytes(tb, s, run)) / float64(n)
 	if err := s.Close(); err != nil {
 		tb.Fatal(err)
 	}
@@ -203,6 +224,7 @@ func benchDay(b *testing.B, n int, jitter time.Duration) {
 		b.ReportMetric(f.bare.Seconds()/f.store.Seconds(), "speed-vs-bare")
 		b.ReportMetric(f.readBack.Seconds(), "readback-s")
 		b.ReportMetric(f.bytesPerSample, "file-bytes/sample")
+		b.ReportMetric(f.blockBytesPerSample, "block-bytes/sample")
 	}
 }
 
@@ -280,7 +302,8 @@ func BenchmarkAddPoint(b *testing.B) {
 func TestBenchmarkBodies(t *testing.T) {
 	for _, jitter := range []time.Duration{0, 20 * time.Microsecond} {
 		f := dayAgainstBare(t, 20_000, jitter)
-		t.Logf("jitter %v: %.2f file bytes/sample (small files are mostly fixed overhead), %.2f × bare speed", jitter, f.bytesPerSample, f.bare.Seconds()/f.store.Seconds())
+		t.Logf("jitter %v: %.2f file bytes/sample (small files are mostly fixed overhead), %.2f block bytes/sample, %.2f × bare speed",
+			jitter, f.bytesPerSample, f.blockBytesPerSample, f.bare.Seconds()/f.store.Seconds())
 	}
 	for name, body := range map[string]func(*testing.B, int){"downsample": benchDownsample, "open check": benchOpenCheck} {
 		if r := testing.Benchmark(func(b *testing.B) { body(b, 20_000) }); r.N == 0 {

@@ -35,7 +35,7 @@ import (
 //	text    = unsigned(length) bytes
 //	signed  = unsigned(zigzag)
 //	unsigned= "0" (0) | "10" 4 bits | "110" 8 bits | "1110" 16 bits | "11110" 32 bits | "11111" 64 bits
-//	          (time widths: "10" 12 bits | "110" 20 bits | "1110" 32 bits | "1111" 64 bits)
+//	          (time widths: "10" 12 bits | "110" 16 | "1110" 20 | "11110" 24 | "111110" 32 | "111111" 64)
 //
 // A value is stored as the decimal the instrument most likely gave — the
 // integer digits d and exponent k with Raw == d / 10^k — only when that
@@ -422,7 +422,7 @@ func (w *bitWriter) write(v uint64, n uint) {
 // microseconds (tens of thousands of ns), values by a few digits.
 var (
 	valueWidths = []uint{4, 8, 16, 32, 64}
-	timeWidths  = []uint{12, 20, 32, 64}
+	timeWidths  = []uint{12, 16, 20, 24, 32, 64}
 )
 
 func (w *bitWriter) unsignedIn(u uint64, widths []uint) {
