@@ -7,12 +7,15 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"strconv"
 	"time"
 
 	"plateau/acquire/poll"
 	"plateau/acquire/procedure"
 	"plateau/acquire/store"
 	"plateau/analysis"
+	"plateau/analysis/units"
+	"plateau/config/record"
 	"plateau/drivers"
 )
 
@@ -216,15 +219,85 @@ func (e *Engine) Resume() error {
 	return nil
 }
 
-// Enter passes an operator's dial reading to the device under test.
-func (e *Engine) Enter(value float64, unit string) error {
+// Entry is an operator's reading of an analog dial.
+type Entry struct {
+	Value float64
+	Unit  string
+	// Confirmed: the operator has confirmed an entry that looked
+	// implausible (outside the range, far from the target).
+	Confirmed bool
+}
+
+// ErrNoStepWaiting refuses an entry when no step waits for one.
+var ErrNoStepWaiting = errors.New("no step is waiting for a dial reading")
+
+// ImplausibleError refuses an entry that looks wrong until it is confirmed.
+type ImplausibleError struct{ Why string }
+
+func (e *ImplausibleError) Error() string {
+	return "the entry looks wrong: " + e.Why + "; check the dial and enter it again, or confirm it"
+}
+
+// Enter passes an operator's dial reading to the device under test. It is
+// refused when no step waits for one, and, unless confirmed, when it lies
+// outside the device's range or further from the step's target than
+// procedure.entry_limit times the permissible error. Every entry taken,
+// including one a later entry supersedes, is in the record as an event.
+func (e *Engine) Enter(en Entry) error {
 	if e.enterer == nil {
 		return errors.New("the device under test is not read by an operator (link kind manual)")
 	}
-	if math.IsNaN(value) || math.IsInf(value, 0) {
+	if math.IsNaN(en.Value) || math.IsInf(en.Value, 0) {
 		return errors.New("the reading must be a finite number")
 	}
-	return e.enterer.Enter(value, unit, e.clk.Now())
+	u, err := units.Lookup(en.Unit)
+	if err != nil {
+		return fmt.Errorf("unit: %w", err)
+	}
+	st := e.dev.State()
+	r := e.runs.active()
+	if st.Waiting == "" || r == nil {
+		where := "no run is active"
+		if v, ok := e.runs.snapshot(); ok {
+			where = fmt.Sprintf("run %s is at %s", v.ID, v.Phase)
+		}
+		return fmt.Errorf("%w (%s); enter the reading when the run asks for it", ErrNoStepWaiting, where)
+	}
+	pa := u.ToPa(en.Value)
+	if !en.Confirmed {
+		if why := e.implausible(pa, st.WaitingForPa); why != "" {
+			return &ImplausibleError{Why: why}
+		}
+	}
+	if err := e.enterer.Enter(en.Value, en.Unit, e.clk.Now()); err != nil {
+		return err
+	}
+	note := ""
+	if en.Confirmed {
+		note = " (confirmed by the operator)"
+	}
+	e.emit(r.id, slog.LevelInfo, "entry", e.dev.Name, fmt.Sprintf("%s: dial read %s %s for %s%s", e.dev.Name,
+		strconv.FormatFloat(en.Value, 'f', -1, 64), u.Symbol, st.Waiting, note),
+		map[string]any{"value": en.Value, "unit": u.Symbol, "pa": pa, "target_pa": st.WaitingForPa, "confirmed": en.Confirmed})
+	return nil
+}
+
+// implausible says why a dial entry looks wrong, or "".
+func (e *Engine) implausible(pa, target float64) string {
+	d := e.cfg.Device
+	span := d.UpperPa - d.LowerPa
+	if pa < d.LowerPa-0.1*span || pa > d.UpperPa+0.1*span {
+		return fmt.Sprintf("%s is outside the dial's range %s … %s", e.fmtPa(pa), e.fmtPa(d.LowerPa), e.fmtPa(d.UpperPa))
+	}
+	limit := e.cfg.Procedure.EntryLimit
+	if limit <= 0 {
+		limit = 5
+	}
+	dev, _, _ := record.AnalysisInputs(e.cfg)
+	if mpe := dev.MPE(target); mpe > 0 && math.Abs(pa-target) > limit*mpe {
+		return fmt.Sprintf("%s is %s from the target %s, more than %g times the permissible error %s", e.fmtPa(pa), e.fmtPa(math.Abs(pa-target)), e.fmtPa(target), limit, e.fmtPa(mpe))
+	}
+	return ""
 }
 
 // Wait blocks until the active run (if any) has ended, and returns its final state.

@@ -148,6 +148,9 @@ type Procedure struct {
 	// DUT) or "set-by-device" (bring the DUT's pointer onto the mark, read the reference).
 	Compare  string `mapstructure:"compare"`
 	Decision string `mapstructure:"decision"` // simple | guarded | four-state (ILAC-G8:2019)
+	// EntryLimit: a dial entry further from the step's target than this
+	// many times the permissible error asks for confirmation (default 5).
+	EntryLimit float64 `mapstructure:"entry_limit"`
 	// Coverage: "conventional" (k = 2) or "student-t" (k from the effective degrees of freedom).
 	Coverage string `mapstructure:"coverage"`
 	Settle   Settle `mapstructure:"settle"`

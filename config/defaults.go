@@ -67,6 +67,7 @@ func defaults() map[string]any {
 		"procedure.on_timeout":        "skip",
 		"procedure.zero":              true,
 		"procedure.compare":           "set-by-reference",
+		"procedure.entry_limit":       5.0,
 		"procedure.decision":          "", // no rule is assumed: see validateProcedure
 		"procedure.coverage":          "conventional",
 		"procedure.settle.window":     30 * time.Second,

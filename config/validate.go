@@ -354,6 +354,9 @@ const maxPoints = 100
 
 func (c *Config) validateProcedure(p *Problems) {
 	pr := &c.Procedure
+	if pr.EntryLimit < 1 || pr.EntryLimit > 100 {
+		p.bad("procedure.entry_limit", fmt.Sprint(pr.EntryLimit), "must be from 1 to 100 (times the permissible error)")
+	}
 	oneOf(p, "procedure.mode", pr.Mode, modes)
 	oneOf(p, "procedure.on_timeout", pr.OnTimeout, onTimeouts)
 	oneOf(p, "procedure.compare", pr.Compare, compares)

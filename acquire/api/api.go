@@ -103,6 +103,9 @@ type StopRequest struct {
 type Entry struct {
 	Value float64 `json:"value"`
 	Unit  string  `json:"unit"` // a pressure unit symbol, e.g. "bar", "kPa", "psi"
+	// Confirm takes an entry that the daemon found implausible (outside
+	// the range, far from the target) after the operator checked it.
+	Confirm bool `json:"confirm,omitempty"`
 }
 
 // Started is the reply to a start call.

@@ -127,8 +127,9 @@ func (r StartRequest) validate() error {
 
 // entryBody tells a missing value from a reading of zero.
 type entryBody struct {
-	Value *float64 `json:"value"`
-	Unit  string   `json:"unit"`
+	Value   *float64 `json:"value"`
+	Unit    string   `json:"unit"`
+	Confirm bool     `json:"confirm"`
 }
 
 func (b entryBody) entry() (Entry, error) {
@@ -146,7 +147,7 @@ func (b entryBody) entry() (Entry, error) {
 	if len(errs) > 0 {
 		return Entry{}, errors.Join(errs...)
 	}
-	return Entry{Value: *b.Value, Unit: b.Unit}, nil
+	return Entry{Value: *b.Value, Unit: b.Unit, Confirm: b.Confirm}, nil
 }
 
 func writeJSON(w http.ResponseWriter, status int, v any) {

@@ -49,6 +49,7 @@ type Poller struct {
 	since     time.Time     // clock time from which samples count (after a pressure change)
 	down      bool          // the link is down (for link lost / restored events)
 	waiting   string        // what an instrument read by a person is waiting for
+	wantPa    float64       // the target of the step waiting for an entry
 	link      func(name string, down bool, err error)
 	clockBack func(name string, by time.Duration)
 	stamped   time.Time // time of the last reading, to notice a clock that steps back
@@ -234,10 +235,11 @@ func (p *Poller) Restart(from time.Time, target float64, hasTarget bool) {
 	}
 }
 
-// SetWaiting says what an instrument read by a person is waiting for ("" when nothing).
-func (p *Poller) SetWaiting(what string) {
+// SetWaiting says what an instrument read by a person is waiting for and
+// the target pressure of that step ("" when nothing).
+func (p *Poller) SetWaiting(what string, targetPa float64) {
 	p.mu.Lock()
-	p.waiting = what
+	p.waiting, p.wantPa = what, targetPa
 	p.mu.Unlock()
 }
 
@@ -259,6 +261,8 @@ type State struct {
 	// Waiting says what an instrument read by a person waits for; such an
 	// instrument is not down while it waits.
 	Waiting string `json:"waiting,omitempty"`
+	// WaitingForPa is the target of the step waiting for an entry.
+	WaitingForPa float64 `json:"waiting_for_pa,omitempty"`
 }
 
 // State returns a snapshot.
@@ -271,7 +275,7 @@ func (p *Poller) State() State {
 		f[k.String()] = n
 	}
 	s := State{Name: p.Name, Last: p.last, Reads: p.reads, Failures: f, Settle: st,
-		Settled: st.Settled, Why: st.Why, Window: st.Window, Beat: p.beat, Every: max(p.interval, p.cycle), Waiting: p.waiting}
+		Settled: st.Settled, Why: st.Why, Window: st.Window, Beat: p.beat, Every: max(p.interval, p.cycle), Waiting: p.waiting, WaitingForPa: p.wantPa}
 	if p.lastErr != nil {
 		s.LastErr = p.lastErr.Error()
 	}

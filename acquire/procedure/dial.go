@@ -75,8 +75,8 @@ func (p *Procedure) captureDial(ctx context.Context, s Step, note string) (analy
 // nextDialReading waits for a dial reading entered after asked. While it
 // waits, the dial is "waiting for an entry": that is not a failed read.
 func (p *Procedure) nextDialReading(ctx context.Context, s Step, asked, deadline time.Time) (drivers.Reading, error) {
-	p.Dial.SetWaiting(fmt.Sprintf("an entry for %s", s))
-	defer p.Dial.SetWaiting("")
+	p.Dial.SetWaiting(fmt.Sprintf("an entry for %s", s), s.TargetPa)
+	defer p.Dial.SetWaiting("", 0)
 	for {
 		rd, err := p.Dial.Read(ctx)
 		if ctx.Err() != nil {

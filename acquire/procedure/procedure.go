@@ -37,7 +37,7 @@ type Instrument interface {
 type Dial interface {
 	Instrument
 	Read(ctx context.Context) (drivers.Reading, error)
-	SetWaiting(what string)
+	SetWaiting(what string, targetPa float64)
 }
 
 // Record is where the procedure's results go. Point returns once the point

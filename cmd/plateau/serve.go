@@ -305,9 +305,10 @@ func conflict(err error) error {
 }
 
 func (c *engineControl) Enter(_ context.Context, e api.Entry) error {
-	if err := c.eng.Enter(e.Value, e.Unit); err != nil {
-		// The API has checked the value and unit; what is left is that
-		// this bench takes no operator readings.
+	if err := c.eng.Enter(acquire.Entry{Value: e.Value, Unit: e.Unit, Confirmed: e.Confirm}); err != nil {
+		// The API has checked the value and unit; what is left is the
+		// bench's state: no step waits, an entry needs confirming, or this
+		// bench takes no operator readings.
 		return api.AsConflict(err)
 	}
 	return nil
