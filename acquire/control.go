@@ -47,6 +47,9 @@ type Status struct {
 	Trip string `json:"trip,omitempty"`
 	// StoreFault is why the store cannot write; empty when it can.
 	StoreFault string `json:"store_fault,omitempty"`
+	// Expected is the least time the whole plan takes (holds, windows and
+	// dwells; settling adds to it).
+	Expected time.Duration `json:"expected_ns"`
 	// PointsCommitted counts points committed since the engine started.
 	PointsCommitted uint64 `json:"points_committed"`
 	// Last is the run that ended most recently in this process.
@@ -63,7 +66,7 @@ type LastRun struct {
 // Status reports the engine and its run. It never waits for a state write.
 func (e *Engine) Status() Status {
 	s := Status{State: "idle", Steps: len(e.steps), TotalPoints: procedure.CaptureCount(e.steps),
-		PointsCommitted: e.committedPoints.Load(), Polled: map[string]bool{}}
+		PointsCommitted: e.committedPoints.Load(), Polled: map[string]bool{}, Expected: e.ExpectedDuration()}
 	if v, ok := e.runs.snapshot(); ok {
 		s.Run, s.State, s.Reason, s.Since = v.ID.String(), string(v.State), v.Reason, v.Since
 		s.Step, s.Points, s.Phase, s.TargetPa = v.Step, v.Points, v.Phase, v.Target
@@ -111,6 +114,9 @@ func (e *Engine) Start(label string) (store.RunID, error) {
 	}
 	if exp := e.cfg.Reference.ExpiresAt; !exp.IsZero() && e.clk.Now().After(exp.Add(24*time.Hour)) {
 		return 0, fmt.Errorf("start: the reference's calibration expired on %s; recalibrate it or correct reference.expires", e.cfg.Reference.Expires)
+	}
+	if err := e.checkSpace(); err != nil {
+		return 0, fmt.Errorf("start: %w", err)
 	}
 	if e.cfg.Procedure.Decision == "" {
 		return 0, errors.New("start: no decision rule: set procedure.decision to simple, guarded or four-state (ILAC-G8:09/2019 asks that the rule be agreed before measuring)")

@@ -66,12 +66,17 @@ func (e *Engine) storeTrouble(err error) {
 func (e *Engine) watchStore(ctx context.Context) {
 	t := time.NewTicker(200 * time.Millisecond)
 	defer t.Stop()
-	probe := time.Time{}
+	probe, spaced := time.Time{}, time.Time{}
+	var warned store.RunID
 	for {
 		select {
 		case <-ctx.Done():
 			return
 		case <-t.C:
+		}
+		if time.Since(spaced) > 5*time.Second {
+			spaced = time.Now()
+			e.watchSpace(&warned)
 		}
 		ws := e.st.WriterStatus()
 		if ws.Err != nil {
