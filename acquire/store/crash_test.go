@@ -130,7 +130,7 @@ func TestCrashSafety(t *testing.T) {
 				t.Fatal("child never became ready")
 			}
 		}
-		time.Sleep(time.Duration(rng.IntN(60_000)) * time.Microsecond)
+		time.Sleep(time.Duration(5_000+rng.IntN(100_000)) * time.Microsecond)
 		cmd.Process.Signal(syscall.SIGKILL)
 		for l := range lines {
 			got = append(got, l)
@@ -193,7 +193,7 @@ func TestCrashSafety(t *testing.T) {
 		}
 		s.Close()
 	}
-	if len(reported) < kills {
+	if len(reported) < kills/2 { // each point waits for two fsyncs: its samples', then its own
 		t.Errorf("only %d points reported over %d kills: the child barely ran", len(reported), kills)
 	}
 	t.Logf("%d kills, %d committed points checked", kills, len(reported))
