@@ -248,7 +248,10 @@ func benchDownsample(b *testing.B, n int) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	defer s.Close()
+	defer func() {
+		s.Close()
+		checkFile(b, path)
+	}()
 	for b.Loop() {
 		bs, err := s.Downsample(run, benchInstruments[0], time.Time{}, time.Time{}, 1000)
 		if err != nil || len(bs) != 1000 {
@@ -279,6 +282,7 @@ func benchOpenCheck(b *testing.B, n int) {
 		b.StartTimer()
 	}
 	b.ReportMetric(full.Seconds()/float64(b.N), "full-check-s")
+	checkFile(b, path)
 }
 
 // BenchmarkAddPoint measures one committed point (one fsync'd Update).

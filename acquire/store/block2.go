@@ -42,9 +42,10 @@ import (
 // reproduces Raw bit for bit: |d| < 2^53 and 10^k ≤ 10^22 are exact, so the
 // division is correctly rounded (the fast path of decimal-to-binary
 // conversion, W. D. Clinger, "How to read floating point numbers
-// accurately", PLDI 1990). Everything else takes the float escape. Pa is
-// predicted from Raw by one scale per block and stored as the difference of
-// the bit patterns, so time, Raw and Pa read back bit-exactly.
+// accurately", PLDI 1990; cited from memory). A value that is exactly a
+// float32 is stored as its bits, anything else as the float64 itself. Pa
+// is exact from Raw × scale or stored as the difference of its bit pattern
+// from the prediction, so time, Raw and Pa read back bit-exactly (tested).
 const (
 	blockV2     = 2
 	maxExp      = 22 // 10^22 is the largest power of ten a float64 holds exactly
@@ -139,7 +140,6 @@ func unordered32(v int64) (uint32, bool) {
 type blockWriter struct {
 	key   int64
 	unit  string
-	head  int // bytes before the stream
 	bits  bitWriter
 	count uint32
 	st    coderState
@@ -150,7 +150,6 @@ func newBlock(key int64, unit string) blockWriter {
 	b.bits.buf = append(b.bits.buf, blockV2)
 	b.bits.buf = binary.AppendUvarint(b.bits.buf, uint64(len(unit)))
 	b.bits.buf = append(b.bits.buf, unit...)
-	b.head = len(b.bits.buf)
 	return b
 }
 

@@ -330,6 +330,7 @@ func TestSalvage(t *testing.T) {
 			}
 		})
 	}
+	checkFile(t, healthy)
 }
 
 // A bbolt file of another program is refused, not adopted.
@@ -355,6 +356,17 @@ func TestOpenRefusesOtherBoltFiles(t *testing.T) {
 	if hashFile(t, path) != before {
 		t.Error("refusing the file changed it")
 	}
+	db, err = bolt.Open(path, 0o600, &bolt.Options{ReadOnly: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	db.View(func(tx *bolt.Tx) error {
+		for err := range tx.Check() {
+			t.Errorf("consistency check: %v", err)
+		}
+		return nil
+	})
 }
 
 // FuzzOpenFile opens arbitrary bytes as a store — read-only with the full
