@@ -14,9 +14,9 @@ type spaceReporter interface {
 	FreeBytes() (uint64, error)
 }
 
-// bytesPerSample is what one stored sample may take, with a wide margin
-// over the compact encoding so that an estimate never promises too much.
-const bytesPerSample = 16
+// bytesPerSample is what one stored sample may take, with a margin (about
+// twice) over the compact encoding of realistic data.
+const bytesPerSample = 8
 
 // ExpectedDuration is the least time the plan takes: for every capture the
 // hold and one settling window, the top dwell, and the exercise dwells.

@@ -133,8 +133,9 @@ func TestFullDiskPausesAndResumes(t *testing.T) {
 	if err := os.Mkdir(disk, 0o755); err != nil {
 		t.Fatal(err)
 	}
-	// 64 KiB are left: enough to create the store, not for a whole run.
-	filler := mountSmallDisk(t, disk, 4<<20, 64<<10)
+	// 200 KiB are left: more than the start's estimate of what the run
+	// writes, less than the store file grows to as it doubles.
+	filler := mountSmallDisk(t, disk, 4<<20, 200<<10)
 	bin := plateauBinary(t)
 	cfgPath := simConfig(t, dir, "full")
 	text := strings.Replace(readFile(cfgPath), "path: "+filepath.Join(dir, "full.db"), "path: "+filepath.Join(disk, "full.db"), 1)
