@@ -267,44 +267,47 @@ func openBolt(path string, opt Options) (db *bolt.DB, err error) {
 	return db, err
 }
 
+// init reads the store's meta and runs in a read transaction, so opening an
+// existing store writes nothing (a store refused by the check after this
+// stays byte-identical); only a new file gets its buckets.
 func (s *Store) init(fresh bool) error {
-	if s.opt.ReadOnly {
-		return s.db.View(func(tx *bolt.Tx) error {
-			meta := tx.Bucket(bucketMeta)
-			if meta == nil || tx.Bucket(bucketRuns) == nil || tx.Bucket(bucketEvents) == nil {
-				return fmt.Errorf("no meta, runs or events bucket: %w", ErrWrongFile)
-			}
-			if err := s.setFormat(meta.Get(keyFormat)); err != nil {
-				return err
-			}
-			return s.loadRuns(tx)
-		})
-	}
-	return s.db.Update(func(tx *bolt.Tx) error {
+	create := false
+	err := s.db.View(func(tx *bolt.Tx) error {
 		meta := tx.Bucket(bucketMeta)
 		if meta == nil {
 			// A bbolt file with nothing in it is one whose creation was cut
-			// short before this transaction: nothing to lose, so take it.
-			if first, _ := tx.Cursor().First(); !fresh && first != nil {
+			// short before its buckets were made: nothing to lose, so take it.
+			if first, _ := tx.Cursor().First(); first != nil || (s.opt.ReadOnly && !fresh) {
 				return fmt.Errorf("a bbolt file without plateau's meta bucket: %w", ErrWrongFile)
 			}
-			var err error
-			if meta, err = tx.CreateBucket(bucketMeta); err != nil {
-				return err
-			}
-			if err := meta.Put(keyFormat, []byte(formatVersion)); err != nil {
-				return err
-			}
+			create = true
+			return nil
 		}
 		if err := s.setFormat(meta.Get(keyFormat)); err != nil {
 			return err
 		}
+		if tx.Bucket(bucketRuns) == nil || tx.Bucket(bucketEvents) == nil {
+			return fmt.Errorf("the runs or events bucket is missing: %w", ErrDamaged)
+		}
+		return s.loadRuns(tx)
+	})
+	if err != nil || !create {
+		return err
+	}
+	return s.db.Update(func(tx *bolt.Tx) error {
+		meta, err := tx.CreateBucket(bucketMeta)
+		if err != nil {
+			return err
+		}
+		if err := meta.Put(keyFormat, []byte(formatVersion)); err != nil {
+			return err
+		}
 		for _, name := range [][]byte{bucketRuns, bucketEvents} {
-			if _, err := tx.CreateBucketIfNotExists(name); err != nil {
+			if _, err := tx.CreateBucket(name); err != nil {
 				return err
 			}
 		}
-		return s.loadRuns(tx)
+		return s.setFormat([]byte(formatVersion))
 	})
 }
 

@@ -204,3 +204,73 @@ func TestSalvageCommand(t *testing.T) {
 		t.Fatal("salvage over an existing file")
 	}
 }
+
+// plateau serve, as a process, refuses a damaged, empty or foreign store
+// with the reason (and, for damage, the salvage command), never a panic,
+// and leaves the file as it was.
+func TestServeRefusesDamagedStore(t *testing.T) {
+	if testing.Short() {
+		t.Skip("starts the daemon")
+	}
+	bin := plateauBinary(t)
+	good := filepath.Join(t.TempDir(), "good.db")
+	writeStore(t, good)
+	orig, err := os.ReadFile(good)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name   string
+		damage func([]byte) []byte
+		want   string
+	}{
+		{"truncated", func(b []byte) []byte { return b[:len(b)/3] }, "truncated"},
+		{"a digit changed inside a point", func(b []byte) []byte {
+			b[bytes.LastIndex(b, []byte("123456.75"))+3] = '9'
+			return b
+		}, "checksum"},
+		{"meta page flipped", func(b []byte) []byte { b[40] ^= 0xFF; return b }, "meta page 0 is damaged"},
+		{"empty", func([]byte) []byte { return []byte{} }, "empty"},
+		{"text", func([]byte) []byte { return bytes.Repeat([]byte("text "), 1000) }, "not a plateau store"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			dir := t.TempDir()
+			cfg := simConfig(t, dir, "dmg")
+			path := filepath.Join(dir, "dmg.db")
+			if err := os.WriteFile(path, tc.damage(bytes.Clone(orig)), 0o600); err != nil {
+				t.Fatal(err)
+			}
+			before := sha256.Sum256(mustRead(t, path))
+			cmd := exec.Command(bin, "serve", "-c", cfg)
+			done := make(chan struct{})
+			timer := time.AfterFunc(60*time.Second, func() { cmd.Process.Kill(); close(done) })
+			out, err := cmd.CombinedOutput()
+			timer.Stop()
+			select {
+			case <-done:
+				t.Fatalf("serve kept running on a bad store:\n%s", out)
+			default:
+			}
+			text := string(out)
+			if err == nil || !strings.Contains(text, tc.want) || !strings.Contains(text, path) ||
+				strings.Contains(text, "panic") || strings.Contains(text, "goroutine ") {
+				t.Fatalf("serve: %v, want a refusal with %q and the file name\n%s", err, tc.want, out)
+			}
+			if tc.want != "empty" && tc.want != "not a plateau store" && !strings.Contains(text, "plateau salvage --store "+path) {
+				t.Errorf("serve does not name the salvage command:\n%s", out)
+			}
+			if sha256.Sum256(mustRead(t, path)) != before {
+				t.Error("serve changed the store it refused")
+			}
+		})
+	}
+}
+
+func mustRead(t *testing.T, path string) []byte {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b
+}
