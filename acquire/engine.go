@@ -231,6 +231,9 @@ func deviceRules(r settle.Rules, resolution float64) settle.Rules {
 	return r
 }
 
+// Ready is closed once Serve polls and has resumed any unfinished run.
+func (e *Engine) Ready() <-chan struct{} { return e.ready }
+
 // Bus is the live event feed.
 func (e *Engine) Bus() *Bus { return e.bus }
 

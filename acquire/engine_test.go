@@ -2,293 +2,293 @@ package acquire_test
 
 import (
 	"context"
+	"errors"
 	"math"
 	"path/filepath"
+	"strings"
+	"sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
 	"plateau/acquire"
+	"plateau/acquire/procedure"
 	"plateau/acquire/store"
-	"plateau/analysis"
 	"plateau/config"
 	"plateau/drivers"
-	_ "plateau/drivers/all"
 	"plateau/drivers/clock"
-	"plateau/drivers/sim"
+	"plateau/drivers/manual"
 )
 
-// testBench is a simulated rig over its real transports (Modbus TCP on
-// loopback, Modbus RTU and line instruments on pseudo-terminals) with an
-// engine and a store on it, all on one scaled clock.
-type testBench struct {
+// Engine tests on fake instruments: a first-order pressure source, a
+// reference that reads it and a device with a fixed error, on an
+// accelerated clock and a real store. The numbers are a scenario of our
+// own. Whole runs on the simulated bench over real transports are in
+// acquire/benchtest.
+
+const fakeYAML = `
+device: {upper: 16 bar, resolution: 0.001 bar, class: "1", unit: bar}
+reference: {uncertainty: 0.01 %}
+instruments:
+  - {name: ref, role: reference, unit: bar, poll: 100ms, link: {kind: sim}, sim_part: reference}
+  - {name: dut, role: device, unit: bar, poll: 100ms, link: {kind: sim}, sim_part: device}
+procedure:
+  points: [0 %, 50 %, 100 %]
+  cycles: 1
+  exercise: 0
+  hold: 1s
+  top_hold: 1s
+  timeout: 2m
+  decision: simple
+  settle: {window: 2s, min_count: 5, max_drift: 0.01 bar, max_spread: 0.01 bar, band: 1 %}
+safety:
+  silence: 5s
+`
+
+type fakeModel struct {
+	clk      clock.Clock
+	mu       sync.Mutex
+	from, to float64
+	since    time.Time
+	vents    atomic.Int32
+}
+
+func (m *fakeModel) pressure() float64 {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	x := m.clk.Now().Sub(m.since).Seconds() / 0.5
+	return m.to + (m.from-m.to)*math.Exp(-x)
+}
+
+func (m *fakeModel) move(to float64) {
+	p := m.pressure()
+	m.mu.Lock()
+	m.from, m.to, m.since = p, to, m.clk.Now()
+	m.mu.Unlock()
+}
+
+func (m *fakeModel) SetPoint(_ context.Context, pa float64) error { m.move(pa); return nil }
+func (m *fakeModel) Vent(context.Context) error                   { m.vents.Add(1); m.move(0); return nil }
+func (m *fakeModel) Close() error                                 { return nil }
+
+type fakeGauge struct {
+	m      *fakeModel
+	offset float64
+}
+
+func (g fakeGauge) Read(context.Context) (drivers.Reading, error) {
+	return drivers.Reading{Time: g.m.clk.Now(), Pa: g.m.pressure() + g.offset}, nil
+}
+func (fakeGauge) Close() error { return nil }
+
+const devOffset = 0.004e5 // the fake device reads 4 mbar high
+
+type fakeBench struct {
 	eng *acquire.Engine
 	st  *store.Store
-	rig *sim.Rig
+	m   *fakeModel
 	cfg *config.Config
-	clk clock.Clock
 }
 
-// benchOption adjusts what bench builds beyond the configuration.
-type benchOption func(*benchSetup)
-
-type benchSetup struct {
-	rigOpts []sim.Option
-	dial    bool
-	store   func(*store.Store) acquire.Store
-	ref     func(drivers.Gauge) drivers.Gauge
-}
-
-// withStore puts a fake in front of the real store.
-func withStore(f func(*store.Store) acquire.Store) benchOption {
-	return func(b *benchSetup) { b.store = f }
-}
-
-// withReference wraps the opened reference gauge.
-func withReference(f func(drivers.Gauge) drivers.Gauge) benchOption {
-	return func(b *benchSetup) { b.ref = f }
-}
-
-// withDial lets the rig's simulated operator read the dial.
-func withDial() benchOption { return func(b *benchSetup) { b.dial = true } }
-
-// withRig passes options to the simulated rig.
-func withRig(o ...sim.Option) benchOption {
-	return func(b *benchSetup) { b.rigOpts = append(b.rigOpts, o...) }
-}
-
-// bench loads sim.yaml, shortens the procedure, applies edit and starts the
-// simulated rig and an engine serving on it. Everything is stopped, and the
-// store checked for consistency, when the test ends.
-func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBench {
+func newFakeBench(t *testing.T, edit func(*config.Config), dev drivers.Gauge, wrap func(*store.Store) acquire.Store) *fakeBench {
 	t.Helper()
-	var setup benchSetup
-	for _, o := range opts {
-		o(&setup)
-	}
-	cfg, err := config.Load("../testdata/config/sim.yaml")
+	cfg, err := config.Parse([]byte(fakeYAML), "fake.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg.Procedure.PointsPa = []float64{0, 8e5, 16e5}
-	cfg.Procedure.Cycles = 2
-	cfg.Procedure.Exercise = 1
-	cfg.Procedure.ExerciseHold = 5 * time.Second
-	cfg.Procedure.TopHold = 5 * time.Second
-	cfg.Procedure.Hold = 3 * time.Second
-	cfg.Simulator.Speed = 40
 	if edit != nil {
 		edit(cfg)
 	}
-	clk := clock.NewScaled(cfg.Simulator.Speed)
-	ctx, cancel := context.WithCancel(context.Background())
-	rig, err := sim.New(cfg.Simulator, clk, setup.rigOpts...)
+	clk := clock.NewScaled(20)
+	m := &fakeModel{clk: clk, since: clk.Now()}
+	st, err := store.Open(filepath.Join(t.TempDir(), "fake.db"), store.Options{Clock: clk})
 	if err != nil {
-		cancel()
 		t.Fatal(err)
 	}
-	if _, err := rig.Start(ctx); err != nil {
-		cancel()
-		t.Fatal(err)
+	in := acquire.Instruments{
+		Reference: acquire.Instrument{Name: "ref", Gauge: fakeGauge{m: m}, Poll: 100 * time.Millisecond},
+		Device:    acquire.Instrument{Name: "dut", Gauge: fakeGauge{m: m, offset: devOffset}, Poll: 100 * time.Millisecond},
+		Source:    m,
 	}
-	st, err := store.Open(filepath.Join(t.TempDir(), "run.db"), store.Options{})
-	if err != nil {
-		cancel()
-		rig.Stop()
-		t.Fatal(err)
-	}
-	in, closeInstruments, err := acquire.Open(cfg, drivers.OpenEnv{Clock: clk}, rig)
-	if err != nil {
-		cancel()
-		rig.Stop()
-		st.Close()
-		t.Fatal(err)
-	}
-	if setup.ref != nil {
-		in.Reference.Gauge = setup.ref(in.Reference.Gauge)
+	if dev != nil {
+		in.Device = acquire.Instrument{Name: "dut", Gauge: dev, Poll: 100 * time.Millisecond, ByPerson: true}
 	}
 	var est acquire.Store = st
-	if setup.store != nil {
-		est = setup.store(st)
+	if wrap != nil {
+		est = wrap(st)
 	}
 	eng, err := acquire.New(acquire.Options{Config: cfg, Store: est, Clock: clk, Instruments: in})
 	if err != nil {
-		cancel()
-		closeInstruments()
-		rig.Stop()
-		st.Close()
 		t.Fatal(err)
 	}
+	ctx, cancel := context.WithCancel(context.Background())
 	served := make(chan struct{})
 	go func() { eng.Serve(ctx); close(served) }()
 	t.Cleanup(func() {
 		cancel()
 		<-served
-		closeInstruments()
-		rig.Stop()
-		path := st.Path()
-		if err := st.Close(); err != nil {
-			t.Errorf("store close: %v", err)
-		}
-		again, err := store.Open(path, store.Options{})
-		if err != nil {
-			t.Fatalf("reopen: %v", err)
-		}
-		if err := again.Check(); err != nil {
+		if err := st.Check(); err != nil {
 			t.Errorf("store check: %v", err)
 		}
-		again.Close()
+		st.Close()
 	})
-	// Serve must have started before Start.
-	for i := 0; i < 100; i++ {
-		if eng.Status().Instruments[0].Reads > 0 {
-			break
-		}
-		time.Sleep(20 * time.Millisecond)
+	select {
+	case <-eng.Ready():
+	case <-time.After(5 * time.Second):
+		t.Fatal("the engine did not start serving")
 	}
-	return &testBench{eng: eng, st: st, rig: rig, cfg: cfg, clk: clk}
+	return &fakeBench{eng: eng, st: st, m: m, cfg: cfg}
 }
 
-// run starts a run and waits (at most limit of wall time) for it to end.
-func (b *testBench) run(t *testing.T, limit time.Duration) (store.RunID, store.State, string) {
+func waitUntil(t *testing.T, limit time.Duration, what string, cond func() bool) {
 	t.Helper()
-	id, err := b.eng.Start(t.Name())
+	deadline := time.Now().Add(limit)
+	for !cond() {
+		if time.Now().After(deadline) {
+			t.Fatalf("%s: not within %s", what, limit)
+		}
+		time.Sleep(5 * time.Millisecond)
+	}
+}
+
+func (b *fakeBench) waitEnd(t *testing.T) (store.State, string) {
+	t.Helper()
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	st, why := b.eng.Wait(ctx)
+	if st == "" {
+		t.Fatalf("run still going: %+v", b.eng.Status())
+	}
+	return st, why
+}
+
+// A whole plan on fake instruments: every point captured once, each error
+// the device's own, the source vented at the end.
+func TestEngineRunsAPlan(t *testing.T) {
+	t.Parallel()
+	b := newFakeBench(t, nil, nil, nil)
+	id, err := b.eng.Start("plan")
 	if err != nil {
 		t.Fatal(err)
 	}
-	state, reason := b.wait(t, limit)
-	return id, state, reason
-}
-
-// wait waits for the active run to end and returns its final state.
-func (b *testBench) wait(t *testing.T, limit time.Duration) (store.State, string) {
-	t.Helper()
-	ctx, cancel := context.WithTimeout(context.Background(), limit)
-	defer cancel()
-	state, reason := b.eng.Wait(ctx)
-	if state == "" {
-		b.logInstruments(t)
-		st := b.eng.Status()
-		t.Logf("status: %s %s (%s) step %d/%d phase %q trip %q store %q", st.Run, st.State, st.Reason, st.Step+1, st.Steps, st.Phase, st.Trip, st.StoreFault)
-		if evs, err := b.st.Events(0, 0); err == nil {
-			for _, ev := range evs[max(0, len(evs)-8):] {
-				t.Logf("event %d %s %s: %s", ev.ID, ev.Type, ev.Instrument, ev.Message)
-			}
-		}
-		t.Fatalf("run still going after %s: %s", limit, reason)
+	if st, why := b.waitEnd(t); st != store.StateFinished {
+		t.Fatalf("run ended %s: %s", st, why)
 	}
-	return state, reason
-}
-
-func (b *testBench) logInstruments(t *testing.T) {
-	t.Helper()
-	for _, in := range b.eng.Status().Instruments {
-		t.Logf("%s: reads %d failures %v last error %s", in.Name, in.Reads, in.Failures, in.LastErr)
-	}
-}
-
-// points returns the run's captured points once the run has ended.
-func (b *testBench) points(t *testing.T, id store.RunID) []analysis.Point {
-	t.Helper()
 	pts, err := b.st.Points(id)
 	if err != nil {
 		t.Fatal(err)
 	}
-	return pts
-}
-
-// events returns every stored event of the run.
-func (b *testBench) events(t *testing.T, id store.RunID) []store.Event {
-	t.Helper()
-	var out []store.Event
-	var since uint64
-	for {
-		evs, err := b.st.Events(since, 1000)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if len(evs) == 0 {
-			return out
-		}
-		for _, ev := range evs {
-			if ev.Run == id {
-				out = append(out, ev)
-			}
-		}
-		since = evs[len(evs)-1].ID
-	}
-}
-
-// eventsOf returns the run's events of one type.
-func eventsOf(evs []store.Event, typ string) []store.Event {
-	var out []store.Event
-	for _, ev := range evs {
-		if ev.Type == typ {
-			out = append(out, ev)
-		}
-	}
-	return out
-}
-
-// checkErrors compares each captured measurement point's error of
-// indication with the simulator's model: the device's systematic error on
-// the branch of the point's direction minus the reference's own error,
-// within tol. At the turning points (the bottom of an ascending series, the
-// top of a descending one) the pressure has not moved in the series'
-// direction yet, so friction may still hold the pointer on the side of the
-// previous motion: either branch is physical there.
-func checkErrors(t *testing.T, rig *sim.Rig, pts []analysis.Point, top int, tol float64) {
-	t.Helper()
-	for _, p := range pts {
-		if p.Kind != analysis.Measurement {
-			continue
-		}
-		got := p.DUT.Mean - p.Reference.Mean
-		want := rig.DeviceError(p.Reference.Mean, p.Direction) - rig.ReferenceError(p.Reference.Mean)
-		turning := (p.Direction == analysis.Ascending && p.Index == 0) || (p.Direction == analysis.Descending && p.Index == top)
-		if turning {
-			other := analysis.Ascending
-			if p.Direction == analysis.Ascending {
-				other = analysis.Descending
-			}
-			alt := rig.DeviceError(p.Reference.Mean, other) - rig.ReferenceError(p.Reference.Mean)
-			if math.Abs(got-alt) < math.Abs(got-want) {
-				want = alt
-			}
-		}
-		if math.Abs(got-want) > tol {
-			t.Errorf("cycle %d %s point %d: error %.0f Pa, simulator says %.0f Pa", p.Cycle, p.Direction, p.Index, got, want)
-		}
-	}
-}
-
-// A full procedure over real transports on an accelerated clock: every
-// planned point is captured and the device's error at each point agrees with
-// the simulator's configured zero, span, non-linearity and friction within
-// its noise and resolution.
-func TestFullProcedureAgainstSimulator(t *testing.T) {
-	if testing.Short() {
-		t.Skip("runs a whole procedure")
-	}
-	t.Parallel()
-	b := bench(t, nil)
-	id, state, reason := b.run(t, 60*time.Second)
-	if state != store.StateFinished {
-		b.logInstruments(t)
-		t.Fatalf("run ended %q: %s", state, reason)
-	}
-	pts := b.points(t, id)
-	if want := 2 * (1 + 3 + 3 + 1); len(pts) != want {
+	if want := procedure.CaptureCount(procedure.Plan(b.cfg.Procedure, 0)); len(pts) != want {
 		t.Fatalf("%d points, want %d", len(pts), want)
 	}
-	// Resolution 0.01 bar of the device plus its noise: a point's error may
-	// differ from the model's by about one digit.
-	checkErrors(t, b.rig, pts, 2, 0.012e5)
 	for _, p := range pts {
-		if p.Reference.Count < 3 || p.DUT.Count < 3 {
-			t.Errorf("point %+v: windows too small", p)
+		if e := p.DUT.Mean - p.Reference.Mean; math.Abs(e-devOffset) > 5 {
+			t.Errorf("%s: error %.1f Pa, the device's own is %.1f Pa", procedure.PointKey(p), e, devOffset)
 		}
-		if p.DUT.End.Sub(p.DUT.Start) < 9*time.Second {
-			t.Errorf("point %+v: window shorter than the settle window", p)
+	}
+	if b.m.vents.Load() == 0 {
+		t.Error("the source was not vented at the end")
+	}
+	if st := b.eng.Status(); st.PointsCommitted < uint64(len(pts)) || st.Last == nil || st.Last.State != string(store.StateFinished) {
+		t.Errorf("status after the run: %+v", st)
+	}
+}
+
+// putFails makes sample writes fail while on.
+type putFails struct {
+	acquire.Store
+	on atomic.Bool
+}
+
+func (p *putFails) Put(run store.RunID, instrument string, smp store.Sample) error {
+	if p.on.Load() {
+		return errors.New("no space left on device (injected)")
+	}
+	return p.Store.Put(run, instrument, smp)
+}
+
+// A store that cannot take samples pauses the run with the reason and
+// vents; a resume is refused until it writes again, then the run finishes
+// and no point lacks its samples.
+func TestEngineStoreFaultPausesTheRun(t *testing.T) {
+	t.Parallel()
+	fake := &putFails{}
+	b := newFakeBench(t, nil, nil, func(st *store.Store) acquire.Store { fake.Store = st; return fake })
+	if _, err := b.eng.Start("store fault"); err != nil {
+		t.Fatal(err)
+	}
+	waitUntil(t, 10*time.Second, "first point", func() bool { return b.eng.Status().Points > 0 })
+	vents := b.m.vents.Load()
+	fake.on.Store(true)
+	waitUntil(t, 10*time.Second, "paused", func() bool { return b.eng.Status().State == string(store.StatePaused) })
+	st := b.eng.Status()
+	if !strings.Contains(st.Reason, "store cannot write") || st.StoreFault == "" {
+		t.Fatalf("paused for %q (store fault %q)", st.Reason, st.StoreFault)
+	}
+	waitUntil(t, 5*time.Second, "vented", func() bool { return b.m.vents.Load() > vents })
+	if err := b.eng.Resume(); err == nil {
+		t.Fatal("resumed while the store still fails")
+	}
+	fake.on.Store(false)
+	waitUntil(t, 10*time.Second, "store writes again", func() bool { return b.eng.Healthy() == nil })
+	if err := b.eng.Resume(); err != nil {
+		t.Fatal(err)
+	}
+	if st, why := b.waitEnd(t); st != store.StateFinished {
+		t.Fatalf("run ended %s: %s", st, why)
+	}
+}
+
+// Dial entries: refused with the reason when no step waits; an entry far
+// from the target needs confirming; a run read by an operator completes.
+func TestEngineDialEntries(t *testing.T) {
+	t.Parallel()
+	dial, err := manual.New("dut", "bar")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b := newFakeBench(t, func(c *config.Config) { c.Device.Kind = "dial"; c.Device.ResolutionPa = 0.01e5 }, dial, nil)
+	if err := b.eng.Enter(acquire.Entry{Value: 1, Unit: "bar"}); !errors.Is(err, acquire.ErrNoStepWaiting) {
+		t.Fatalf("entry with no run: %v", err)
+	}
+	if _, err := b.eng.Start("dial"); err != nil {
+		t.Fatal(err)
+	}
+	checked := false
+	done := make(chan struct{})
+	go func() { b.eng.Wait(context.Background()); close(done) }()
+	for {
+		select {
+		case <-done:
+			if st := b.eng.Status(); st.Last == nil || st.Last.State != string(store.StateFinished) {
+				t.Fatalf("run ended: %+v", st.Last)
+			}
+			if !checked {
+				t.Error("no implausible entry was tried")
+			}
+			return
+		case <-time.After(20 * time.Millisecond):
+		}
+		var want string
+		var target float64
+		for _, in := range b.eng.Status().Instruments {
+			if in.Name == "dut" {
+				want, target = in.Waiting, in.WaitingForPa
+			}
+		}
+		if want == "" {
+			continue
+		}
+		if !checked {
+			var imp *acquire.ImplausibleError
+			if err := b.eng.Enter(acquire.Entry{Value: target/1e5 + 5, Unit: "bar"}); !errors.As(err, &imp) {
+				t.Fatalf("an entry 5 bar off the target: %v, want a request to confirm", err)
+			}
+			checked = true
+		}
+		reading := math.Round((b.m.pressure()+devOffset)/0.01e5) * 0.01 // the operator reads to the division
+		if err := b.eng.Enter(acquire.Entry{Value: reading, Unit: "bar"}); err != nil && !errors.Is(err, acquire.ErrNoStepWaiting) {
+			t.Fatal(err)
 		}
 	}
 }

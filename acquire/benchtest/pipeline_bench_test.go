@@ -1,4 +1,4 @@
-package acquire_test
+package benchtest
 
 import (
 	"context"
@@ -26,7 +26,7 @@ func cpuTime() time.Duration {
 // sample. It reports the CPU time of this process (client, detector, store
 // writer and the in-process simulator serving the request) per sample.
 func BenchmarkPipeline(b *testing.B) {
-	cfg, err := config.Load("../testdata/config/sim.yaml")
+	cfg, err := config.Load("../../testdata/config/sim.yaml")
 	if err != nil {
 		b.Fatal(err)
 	}

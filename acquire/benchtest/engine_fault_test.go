@@ -1,4 +1,4 @@
-package acquire_test
+package benchtest
 
 import (
 	"fmt"
