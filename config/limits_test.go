@@ -233,6 +233,16 @@ func TestEnvironmentProblemsNameTheVariable(t *testing.T) {
 	}
 }
 
+// A list from the environment: a bad entry names the variable too.
+func TestEnvironmentListEntry(t *testing.T) {
+	t.Setenv("PLATEAU_PROCEDURE_POINTS", "0 %, 50 %, 200 %")
+	_, err := Parse([]byte(base+"procedure:\n  points: [0 %, 100 %]\n"), "env.yaml")
+	want := `environment PLATEAU_PROCEDURE_POINTS="200 %" (procedure.points[2]): must be from 0 % to 100 % of span`
+	if err == nil || !strings.Contains(err.Error(), want) {
+		t.Fatalf("want %q, got %v", want, err)
+	}
+}
+
 func TestUnknownVariableIsAWarning(t *testing.T) {
 	t.Setenv("PLATEAU_SAFETY_MAX_PRESURE", "10 bar")
 	t.Setenv("PLATEAU_TOKEN", "secret") // read by the commands, not a key

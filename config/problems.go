@@ -158,8 +158,13 @@ func (p *Problems) add(q Problem) {
 		}
 	}
 	q.File = p.File
-	if env, ok := p.env[k]; ok && q.Env == "" {
-		q.Env, q.Line, q.Value = env, 0, p.envVal[k]
+	for a := k; a != "" && q.Env == ""; a = parentKey(a) {
+		if env, ok := p.env[a]; ok { // the value, or the list it is in, came from the environment
+			q.Env, q.Line = env, 0
+			if q.Value == "" || a == k {
+				q.Value = p.envVal[a]
+			}
+		}
 	}
 	if p.seen[q] {
 		return // a shared value judged once for each device that uses it
