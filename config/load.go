@@ -222,12 +222,16 @@ func walkMapping(n *yaml.Node, t reflect.Type, path string, p *Problems, out map
 			continue
 		}
 		seen[name] = k.Line
-		p.lines[strings.ToLower(key)] = k.Line
 		ft, ok := fields[name]
 		if !ok {
-			p.add(Problem{Line: k.Line, Key: key, Msg: keys.unknown(name)})
+			if p.full() {
+				p.count(false) // only counted: no suggestion worked out for it
+			} else {
+				p.add(Problem{Line: k.Line, Key: key, Msg: keys.unknown(name)})
+			}
 			continue
 		}
+		p.lines[strings.ToLower(key)] = k.Line
 		if v := walk(val, ft, key, p); v != nil {
 			out[name] = v
 		}

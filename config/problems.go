@@ -169,15 +169,22 @@ func (p *Problems) add(q Problem) {
 	if p.seen[q] {
 		return // a shared value judged once for each device that uses it
 	}
-	if len(p.List) >= maxKept {
-		p.dropped++
-		if !q.Warning {
-			p.droppedErrors++
-		}
+	if p.full() {
+		p.count(q.Warning)
 		return
 	}
 	p.seen[q] = true
 	p.List = append(p.List, q)
+}
+
+// full says no more problems are kept, only counted.
+func (p *Problems) full() bool { return len(p.List) >= maxKept }
+
+func (p *Problems) count(warning bool) {
+	p.dropped++
+	if !warning {
+		p.droppedErrors++
+	}
 }
 
 // keyLess orders key paths with list indices by number: points[2]
