@@ -315,3 +315,30 @@ func TestBenchmarkBodies(t *testing.T) {
 		}
 	}
 }
+
+// BenchmarkLastTime asks for the latest stored time of a store holding a
+// day of two instruments and 100 000 events (read errors, say).
+func BenchmarkLastTime(b *testing.B) {
+	path, run := dayStore(b, dayOfTwo/24)
+	s, err := Open(path, Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	for i := range 100_000 {
+		if err := s.QueueEvent(Event{Run: run, Time: t0.Add(time.Duration(i) * time.Second), Type: "read_error", Message: "no reply within 500 ms"}, nil); err != nil {
+			b.Fatal(err)
+		}
+	}
+	if err := s.Flush(); err != nil {
+		b.Fatal(err)
+	}
+	defer func() {
+		s.Close()
+		checkFile(b, path)
+	}()
+	for b.Loop() {
+		if _, err := s.LastTime(); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
