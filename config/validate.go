@@ -205,7 +205,11 @@ func (c *Config) validateReference(p *Problems) {
 			p.bad("reference.lower", r.Lower, "the reference cannot cover %s down to %s", who, d.Lower)
 		}
 		if d.Oxygen && r.OilFilled {
-			p.bad("reference.oil_filled", "true", "an oxygen-service device must not be connected to an oil-filled reference or comparator")
+			what := "an oxygen-service device"
+			if len(c.Devices) > 1 {
+				what = dut.name() + " is for oxygen service: it"
+			}
+			p.bad("reference.oil_filled", "true", "%s must not be connected to an oil-filled reference or comparator", what)
 		}
 	}
 	if !r.ExpiresAt.IsZero() && expiredOn(r.ExpiresAt, time.Now()) {
