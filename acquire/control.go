@@ -458,7 +458,7 @@ func (rr *runRecorder) Captured() ([]analysis.Point, error) { return rr.e.st.Poi
 // point is never stored without the samples behind it.
 func (rr *runRecorder) Point(p analysis.Point) error {
 	e := rr.e
-	if err := e.samples.flush(context.Background(), 30*time.Second); err != nil {
+	if err := e.samples.flush(); err != nil {
 		e.storeTrouble(err)
 		return fmt.Errorf("the samples of %s could not be stored: %w", describePoint(p), err)
 	}

@@ -1,7 +1,6 @@
 package acquire
 
 import (
-	"context"
 	"errors"
 	"fmt"
 	"sync"
@@ -13,38 +12,45 @@ import (
 )
 
 // recorder takes samples from the pollers without ever making them wait
-// and hands them to the store on a goroutine of its own. When the store
-// falls so far behind that the hand-off is full, the samples that do not
-// fit are counted, not queued, and the store is reported as unable to keep
-// up: the run is paused and vented, so no point is ever captured over
-// samples that were not kept.
+// and hands them to the store in batches from a goroutine of its own (one
+// wake-up per batch, not per sample). When the store falls so far behind
+// that the hand-off is full, the samples that do not fit are counted, not
+// queued, and the store is reported as unable to keep up: the run is
+// paused and vented, so no point is ever captured over samples that were
+// not kept.
 type recorder struct {
 	st      Store
-	ch      chan recorderItem
+	limit   int // samples the hand-off holds at most
 	trouble func(error)
 
 	current atomic.Uint64 // the run samples belong to; 0 when none
 	lost    atomic.Uint64 // samples that did not fit the hand-off
-	once    sync.Once
-	closed  atomic.Bool
-	mu      sync.RWMutex // guards ch against close while sending
+
+	mu      sync.Mutex
+	pending []recorderItem
+	closed  bool
+	wake    chan struct{} // a batch is worth writing now
+	done    chan struct{} // the loop has ended
+
+	putMu sync.Mutex // held while a batch goes to the store, so flushes keep order
 }
 
 type recorderItem struct {
 	run        store.RunID
 	instrument string
 	sample     store.Sample
-	flushed    chan error // a barrier: reply once everything before it is committed
 }
 
+// recorderBatch is how many waiting samples wake the loop before its tick.
+const recorderBatch = 256
+
 func newRecorder(st Store, buffer int, trouble func(error)) *recorder {
-	r := &recorder{st: st, ch: make(chan recorderItem, buffer), trouble: trouble}
-	return r
+	return &recorder{st: st, limit: buffer, trouble: trouble, wake: make(chan struct{}, 1), done: make(chan struct{})}
 }
 
 func (r *recorder) setRun(id store.RunID) { r.current.Store(uint64(id)) }
 
-// Sample implements poll.Sink: it never waits.
+// Sample implements poll.Sink: it never waits for the store.
 func (r *recorder) Sample(instrument string, rd drivers.Reading, err error) {
 	run := store.RunID(r.current.Load())
 	if run == 0 {
@@ -54,26 +60,59 @@ func (r *recorder) Sample(instrument string, rd drivers.Reading, err error) {
 	if err != nil {
 		smp = store.Sample{Time: rd.Time, Wire: rd.Wire, Failed: true, Kind: drivers.KindOf(err), Message: err.Error()}
 	}
-	r.mu.RLock()
-	defer r.mu.RUnlock()
-	if r.closed.Load() {
+	r.mu.Lock()
+	if r.closed {
+		r.mu.Unlock()
 		return
 	}
-	select {
-	case r.ch <- recorderItem{run: run, instrument: instrument, sample: smp}:
-	default:
+	if len(r.pending) >= r.limit {
+		r.mu.Unlock()
 		if r.lost.Add(1) == 1 {
-			go r.trouble(fmt.Errorf("the store is not keeping up: %d samples wait for it", cap(r.ch)))
+			go r.trouble(fmt.Errorf("the store is not keeping up: %d samples wait for it", r.limit))
+		}
+		return
+	}
+	r.pending = append(r.pending, recorderItem{run: run, instrument: instrument, sample: smp})
+	n := len(r.pending)
+	r.mu.Unlock()
+	if n == recorderBatch {
+		select {
+		case r.wake <- struct{}{}:
+		default:
 		}
 	}
 }
 
+// loop writes the waiting samples every tick, or sooner when a batch is
+// full, until close.
 func (r *recorder) loop() {
-	for it := range r.ch {
-		if it.flushed != nil {
-			it.flushed <- r.st.Flush()
-			continue
+	defer close(r.done)
+	t := time.NewTicker(50 * time.Millisecond)
+	defer t.Stop()
+	for {
+		select {
+		case <-t.C:
+		case <-r.wake:
 		}
+		r.mu.Lock()
+		closed := r.closed
+		r.mu.Unlock()
+		r.putPending()
+		if closed {
+			return
+		}
+	}
+}
+
+// putPending hands every waiting sample to the store, in order.
+func (r *recorder) putPending() {
+	r.putMu.Lock()
+	defer r.putMu.Unlock()
+	r.mu.Lock()
+	batch := r.pending
+	r.pending = make([]recorderItem, 0, max(recorderBatch, len(batch)))
+	r.mu.Unlock()
+	for _, it := range batch {
 		// A sample racing the end of its run is refused by the store; it
 		// belongs to no run, so that is not a fault.
 		if err := r.st.Put(it.run, it.instrument, it.sample); err != nil && !errors.Is(err, store.ErrRunEnded) {
@@ -83,45 +122,31 @@ func (r *recorder) loop() {
 }
 
 // flush returns once every sample handed over before it is committed, or
-// with the commit error. It waits at most timeout for room in the hand-off.
-func (r *recorder) flush(ctx context.Context, timeout time.Duration) error {
+// with the commit error.
+func (r *recorder) flush() error {
 	if n := r.lost.Load(); n > 0 {
 		return fmt.Errorf("%d samples could not be handed to the store", n)
 	}
-	ch := make(chan error, 1)
-	r.mu.RLock()
-	if r.closed.Load() {
-		r.mu.RUnlock()
-		return errors.New("the sample recorder has stopped")
-	}
-	select {
-	case r.ch <- recorderItem{flushed: ch}:
-	case <-ctx.Done():
-		r.mu.RUnlock()
-		return ctx.Err()
-	case <-time.After(timeout):
-		r.mu.RUnlock()
-		return errors.New("the store did not take the samples in time")
-	}
-	r.mu.RUnlock()
-	select {
-	case err := <-ch:
-		return err
-	case <-ctx.Done():
-		return ctx.Err()
-	}
+	r.putPending()
+	return r.st.Flush()
 }
 
 // clearLost forgets the samples lost during a store fault once a person
 // resumes: the points captured after that use fresh windows.
 func (r *recorder) clearLost() uint64 { return r.lost.Swap(0) }
 
-// close stops the goroutine after the samples handed over are written.
+// close writes what is waiting and stops the loop.
 func (r *recorder) close() {
-	r.once.Do(func() {
-		r.mu.Lock()
-		r.closed.Store(true)
-		close(r.ch)
-		r.mu.Unlock()
-	})
+	r.mu.Lock()
+	already := r.closed
+	r.closed = true
+	r.mu.Unlock()
+	if already {
+		return
+	}
+	select {
+	case r.wake <- struct{}{}:
+	default:
+	}
+	<-r.done
 }

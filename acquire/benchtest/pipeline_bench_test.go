@@ -69,7 +69,11 @@ func BenchmarkPipeline(b *testing.B) {
 		if err == nil {
 			det.Add(r.Time, r.Pa)
 		}
-		if err := st.AddSample(run.ID, inst.Name, r, err); err != nil {
+		smp := store.Sample{Time: r.Time, Pa: r.Pa, Raw: r.Raw, RawUnit: r.RawUnit, Wire: r.Wire}
+		if err != nil {
+			smp = store.Sample{Time: r.Time, Failed: true, Kind: drivers.KindOf(err), Message: err.Error()}
+		}
+		if err := st.Put(run.ID, inst.Name, smp); err != nil {
 			b.Fatal(err)
 		}
 	}
