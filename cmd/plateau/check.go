@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"strconv"
 	"strings"
 	"time"
@@ -23,9 +22,6 @@ func init() { register(newCheckCmd) }
 // check itself failing (1, e.g. the file cannot be read).
 const checkFound = 2
 
-// exitProcess ends the process; main's error path always gives status 1.
-var exitProcess = os.Exit
-
 func newCheckCmd() *cobra.Command {
 	return &cobra.Command{
 		Use:   "check",
@@ -43,8 +39,7 @@ the file cannot be read at all.`,
 			cfg, err := config.Load(configPath)
 			if p, ok := config.AsProblems(err); ok {
 				fmt.Fprintln(out, p.Error())
-				exitProcess(checkFound)
-				return nil
+				return exitStatus{checkFound}
 			}
 			if err != nil {
 				return err
@@ -59,7 +54,7 @@ the file cannot be read at all.`,
 			}
 			describe(out, cfg)
 			if len(cfg.Warnings) > 0 {
-				exitProcess(checkFound)
+				return exitStatus{checkFound}
 			}
 			return nil
 		},

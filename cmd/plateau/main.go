@@ -4,6 +4,7 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"log"
 	"log/slog"
@@ -71,7 +72,17 @@ func main() {
 	log.SetFlags(0)
 	log.SetOutput(libraryLog{})
 	if err := newRoot().Execute(); err != nil {
+		var st exitStatus
+		if errors.As(err, &st) {
+			os.Exit(st.code) // the command has said what it found
+		}
 		fmt.Fprintln(os.Stderr, "plateau:", err)
 		os.Exit(1)
 	}
 }
+
+// exitStatus ends the program with its code and no further message: the
+// command has already printed what it found (check's status 2, say).
+type exitStatus struct{ code int }
+
+func (e exitStatus) Error() string { return fmt.Sprintf("exit status %d", e.code) }
