@@ -20,7 +20,8 @@ type statusCollector struct {
 	status func(context.Context) Status
 
 	reads, readErrors, lastValue, lastRead, up, settled *prometheus.Desc
-	points, progress, runState                          *prometheus.Desc
+	points, progress, runState, lastRunState            *prometheus.Desc
+	tripped, storeFault                                 *prometheus.Desc
 }
 
 var runStates = []store.State{store.StatePending, store.StateRunning, store.StatePaused,
@@ -29,21 +30,25 @@ var runStates = []store.State{store.StatePending, store.StateRunning, store.Stat
 func newStatusCollector(status func(context.Context) Status) *statusCollector {
 	inst := []string{"instrument"}
 	return &statusCollector{
-		status:     status,
-		reads:      prometheus.NewDesc("plateau_instrument_reads_total", "Read attempts per instrument since the daemon started, good or failed.", inst, nil),
-		readErrors: prometheus.NewDesc("plateau_instrument_read_errors_total", "Failed reads per instrument and reason (timeout, link_down, bad_reply, out_of_range, overload).", []string{"instrument", "kind"}, nil),
-		lastValue:  prometheus.NewDesc("plateau_instrument_last_value_pascals", "The instrument's last good reading in pascal.", inst, nil),
-		lastRead:   prometheus.NewDesc("plateau_instrument_last_read_timestamp_seconds", "When the instrument's last good reading was taken (Unix time).", inst, nil),
-		up:         prometheus.NewDesc("plateau_instrument_up", "1 when the instrument's last read succeeded.", inst, nil),
-		settled:    prometheus.NewDesc("plateau_instrument_settled", "1 while the instrument's readings hold steady by the settle rule.", inst, nil),
-		points:     prometheus.NewDesc("plateau_points_captured_total", "Comparison points captured since the daemon started.", nil, nil),
-		progress:   prometheus.NewDesc("plateau_run_progress_ratio", "Share of the current run's planned points captured (0 when idle).", nil, nil),
-		runState:   prometheus.NewDesc("plateau_run_state", "1 for the current run's state, 0 for the others; all 0 when idle.", []string{"state"}, nil),
+		status:       status,
+		reads:        prometheus.NewDesc("plateau_instrument_reads_total", "Read attempts per instrument since the daemon started, good or failed.", inst, nil),
+		readErrors:   prometheus.NewDesc("plateau_instrument_read_errors_total", "Failed reads per instrument and reason (timeout, link_down, bad_reply, out_of_range, overload).", []string{"instrument", "kind"}, nil),
+		lastValue:    prometheus.NewDesc("plateau_instrument_last_value_pascals", "The instrument's last good reading in pascal.", inst, nil),
+		lastRead:     prometheus.NewDesc("plateau_instrument_last_read_timestamp_seconds", "When the instrument's last good reading was taken (Unix time).", inst, nil),
+		up:           prometheus.NewDesc("plateau_instrument_up", "1 when the instrument's last read succeeded.", inst, nil),
+		settled:      prometheus.NewDesc("plateau_instrument_settled", "1 while the instrument's readings hold steady by the settle rule.", inst, nil),
+		points:       prometheus.NewDesc("plateau_points_captured_total", "Comparison points captured since the daemon started.", nil, nil),
+		progress:     prometheus.NewDesc("plateau_run_progress_ratio", "Share of the current run's planned points captured (0 when idle).", nil, nil),
+		runState:     prometheus.NewDesc("plateau_run_state", "1 for the current run's state, 0 for the others; all 0 when idle.", []string{"state"}, nil),
+		lastRunState: prometheus.NewDesc("plateau_last_run_state", "1 for the state the last run of this daemon ended in (finished, failed, stopped), 0 for the others; absent until a run has ended.", []string{"state"}, nil),
+		tripped:      prometheus.NewDesc("plateau_safety_tripped", "1 while the safety guard is latched: no setpoint is sent until a person resumes or starts a run.", nil, nil),
+		storeFault:   prometheus.NewDesc("plateau_store_fault", "1 while the store cannot write.", nil, nil),
 	}
 }
 
 func (c *statusCollector) Describe(ch chan<- *prometheus.Desc) {
-	for _, d := range []*prometheus.Desc{c.reads, c.readErrors, c.lastValue, c.lastRead, c.up, c.settled, c.points, c.progress, c.runState} {
+	for _, d := range []*prometheus.Desc{c.reads, c.readErrors, c.lastValue, c.lastRead, c.up, c.settled, c.points, c.progress,
+		c.runState, c.lastRunState, c.tripped, c.storeFault} {
 		ch <- d
 	}
 }
@@ -69,6 +74,61 @@ func (c *statusCollector) Collect(ch chan<- prometheus.Metric) {
 	for _, s := range runStates {
 		ch <- prometheus.MustNewConstMetric(c.runState, prometheus.GaugeValue, boolValue(st.Run != nil && st.Run.State == s), string(s))
 	}
+	if st.Last != nil {
+		for _, s := range endStates {
+			ch <- prometheus.MustNewConstMetric(c.lastRunState, prometheus.GaugeValue, boolValue(st.Last.State == string(s)), string(s))
+		}
+	}
+	ch <- prometheus.MustNewConstMetric(c.tripped, prometheus.GaugeValue, boolValue(st.Trip != ""))
+	ch <- prometheus.MustNewConstMetric(c.storeFault, prometheus.GaugeValue, boolValue(st.StoreFault != ""))
+}
+
+// endStates are the states a run ends in.
+var endStates = []store.State{store.StateFinished, store.StateFailed, store.StateStopped}
+
+// commitWatcher is what the store-commit metrics need; *store.Store has it.
+type commitWatcher interface {
+	WriterStatus() store.WriterStatus
+}
+
+// storeCollector reports the store writer's progress, so an alert can
+// tell a store that stopped committing from one that is merely quiet.
+type storeCollector struct {
+	w                                  commitWatcher
+	lastCommit, committed, failed, due *prometheus.Desc
+}
+
+// registerStoreMetrics adds the store writer's metrics to reg when the
+// records come from a store that reports its writer (*store.Store does).
+func registerStoreMetrics(reg prometheus.Registerer, rec Records) {
+	w, ok := rec.(commitWatcher)
+	if !ok {
+		return
+	}
+	reg.MustRegister(&storeCollector{
+		w:          w,
+		lastCommit: prometheus.NewDesc("plateau_store_last_commit_timestamp_seconds", "When the store last committed a batch of samples and events (Unix time, acquisition clock); absent before the first commit.", nil, nil),
+		committed:  prometheus.NewDesc("plateau_store_committed_total", "Samples and queued events committed since the daemon started.", nil, nil),
+		failed:     prometheus.NewDesc("plateau_store_commit_failures_total", "Failed store commits since the daemon started (each is retried).", nil, nil),
+		due:        prometheus.NewDesc("plateau_store_uncommitted", "Items taken for writing and not yet committed.", nil, nil),
+	})
+}
+
+func (c *storeCollector) Describe(ch chan<- *prometheus.Desc) {
+	ch <- c.lastCommit
+	ch <- c.committed
+	ch <- c.failed
+	ch <- c.due
+}
+
+func (c *storeCollector) Collect(ch chan<- prometheus.Metric) {
+	ws := c.w.WriterStatus()
+	if !ws.LastCommit.IsZero() {
+		ch <- prometheus.MustNewConstMetric(c.lastCommit, prometheus.GaugeValue, float64(ws.LastCommit.UnixNano())/1e9)
+	}
+	ch <- prometheus.MustNewConstMetric(c.committed, prometheus.CounterValue, float64(ws.Committed))
+	ch <- prometheus.MustNewConstMetric(c.failed, prometheus.CounterValue, float64(ws.Failures))
+	ch <- prometheus.MustNewConstMetric(c.due, prometheus.GaugeValue, float64(ws.Pending))
 }
 
 func boolValue(b bool) float64 {

@@ -1,0 +1,150 @@
+package api
+
+import (
+	"context"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+	"github.com/prometheus/client_golang/prometheus/testutil"
+
+	"plateau/acquire/store"
+	"plateau/drivers"
+)
+
+// TestAlertMetrics checks the series the alerting rules in
+// systemd/prometheus/alerts.yml read, for the states a bench can be in.
+func TestAlertMetrics(t *testing.T) {
+	running := &RunInfo{ID: "r000002", State: store.StateRunning}
+	for _, c := range []struct {
+		name string
+		st   Status
+		want string
+	}{
+		{"idle, never ran", Status{}, `
+plateau_safety_tripped 0
+plateau_store_fault 0
+`},
+		{"last run failed, idle", Status{Last: &LastRun{ID: "r000001", State: "failed", Reason: "reference lost"}}, `
+plateau_last_run_state{state="failed"} 1
+plateau_last_run_state{state="finished"} 0
+plateau_last_run_state{state="stopped"} 0
+plateau_safety_tripped 0
+plateau_store_fault 0
+`},
+		{"tripped with a store fault while running", Status{Run: running, Trip: "reference above safety.max_pressure", StoreFault: "disk full",
+			Last: &LastRun{ID: "r000001", State: "finished"}}, `
+plateau_last_run_state{state="failed"} 0
+plateau_last_run_state{state="finished"} 1
+plateau_last_run_state{state="stopped"} 0
+plateau_safety_tripped 1
+plateau_store_fault 1
+`},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			col := newStatusCollector(func(context.Context) Status { return c.st })
+			err := testutil.CollectAndCompare(col, strings.NewReader(help+c.want),
+				"plateau_last_run_state", "plateau_safety_tripped", "plateau_store_fault")
+			if err != nil {
+				t.Fatal(err)
+			}
+			running := testutil.ToFloat64(gaugeVecValue(t, col, "plateau_run_state", "running"))
+			if want := boolValue(c.st.Run != nil); running != want {
+				t.Fatalf("plateau_run_state{state=running} = %g, want %g", running, want)
+			}
+		})
+	}
+}
+
+const help = `
+# HELP plateau_last_run_state 1 for the state the last run of this daemon ended in (finished, failed, stopped), 0 for the others; absent until a run has ended.
+# TYPE plateau_last_run_state gauge
+# HELP plateau_safety_tripped 1 while the safety guard is latched: no setpoint is sent until a person resumes or starts a run.
+# TYPE plateau_safety_tripped gauge
+# HELP plateau_store_fault 1 while the store cannot write.
+# TYPE plateau_store_fault gauge
+`
+
+// gaugeVecValue picks one labelled series out of a collector as a
+// collector of its own, for testutil.ToFloat64.
+func gaugeVecValue(t *testing.T, c prometheus.Collector, name, state string) prometheus.Collector {
+	t.Helper()
+	reg := prometheus.NewPedanticRegistry()
+	reg.MustRegister(c)
+	fams, err := reg.Gather()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range fams {
+		if f.GetName() != name {
+			continue
+		}
+		for _, m := range f.GetMetric() {
+			for _, l := range m.GetLabel() {
+				if l.GetName() == "state" && l.GetValue() == state {
+					g := prometheus.NewGauge(prometheus.GaugeOpts{Name: name})
+					g.Set(m.GetGauge().GetValue())
+					return g
+				}
+			}
+		}
+	}
+	t.Fatalf("no %s{state=%q}", name, state)
+	return nil
+}
+
+// TestStoreCommitMetrics reads the writer's metrics off a real store: no
+// commit time before the first commit, then the commit's time and count.
+func TestStoreCommitMetrics(t *testing.T) {
+	st, err := store.Open(filepath.Join(t.TempDir(), "plateau.db"), store.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	reg := prometheus.NewPedanticRegistry()
+	registerStoreMetrics(reg, st)
+	if n, err := testutil.GatherAndCount(reg, "plateau_store_last_commit_timestamp_seconds"); err != nil || n != 0 {
+		t.Fatalf("before any commit: %d commit-time series, %v", n, err)
+	}
+	run, err := st.CreateRun("metrics", []byte("procedure: {}\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	before := time.Now()
+	for i := range 10 {
+		r := drivers.Reading{Time: before.Add(time.Duration(i) * time.Millisecond), Pa: 1e5, Raw: 1, RawUnit: "bar"}
+		if err := st.Put(run.ID, "ref", store.SampleOf(r, nil)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := st.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	fams, err := reg.Gather()
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := map[string]float64{}
+	for _, f := range fams {
+		m := f.GetMetric()[0]
+		got[f.GetName()] = m.GetGauge().GetValue() + m.GetCounter().GetValue()
+	}
+	if at := got["plateau_store_last_commit_timestamp_seconds"]; at < float64(before.Unix())-1 || at > float64(time.Now().Unix())+1 {
+		t.Errorf("last commit at %g, want about %d", at, before.Unix())
+	}
+	if got["plateau_store_committed_total"] < 10 || got["plateau_store_commit_failures_total"] != 0 {
+		t.Errorf("writer metrics %v", got)
+	}
+
+	// Records without a writer add nothing.
+	other := prometheus.NewPedanticRegistry()
+	registerStoreMetrics(other, recordsOnly{st})
+	if n, _ := testutil.GatherAndCount(other); n != 0 {
+		t.Errorf("records without a writer exported %d series", n)
+	}
+}
+
+// recordsOnly hides the store's writer.
+type recordsOnly struct{ Records }
