@@ -228,7 +228,6 @@ func (s *Server) Handler(access Access) http.Handler {
 	read("GET /api/v1/runs/{id}/points", s.handlePoints)
 	read("GET /api/v1/runs/{id}/report", s.handleReport)
 	read("GET /api/v1/events", s.handleEvents)
-	read("GET /api/v1/backup", s.handleBackup)
 	read("GET /api/v1/runs/{id}/samples", s.handleSamples)
 	read("GET /api/v1/units", s.handleUnits)
 	read("GET /{$}", s.handlePage)
