@@ -301,3 +301,57 @@ func TestBusCloseFailsWaiters(t *testing.T) {
 		}
 	}
 }
+
+// Many requests, urgent and ordinary, many of them cancelled while they
+// wait: never two on the line at once, every call returns, and the line is
+// free at the end (a hand-off to a waiter that just gave up is not lost).
+func TestBusStress(t *testing.T) {
+	b := NewBus(100 * time.Microsecond)
+	var inside, ran, gaveUp atomic.Int32
+	var wg sync.WaitGroup
+	for g := range 40 {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range 100 {
+				ctx, cancel := context.WithTimeout(context.Background(), time.Duration((g*7+i*13)%400)*time.Microsecond)
+				acquire := b.Acquire
+				if (g+i)%17 == 0 {
+					acquire = b.AcquireUrgent
+				}
+				if err := acquire(ctx); err != nil {
+					if !errors.Is(err, context.DeadlineExceeded) {
+						t.Errorf("acquire: %v", err)
+					}
+					gaveUp.Add(1)
+					cancel()
+					continue
+				}
+				if inside.Add(1) != 1 {
+					t.Error("two requests on the line at once")
+				}
+				time.Sleep(20 * time.Microsecond)
+				inside.Add(-1)
+				ran.Add(1)
+				b.Release()
+				cancel()
+			}
+		}()
+	}
+	wg.Wait()
+	if ran.Load()+gaveUp.Load() != 4000 || ran.Load() == 0 || gaveUp.Load() == 0 {
+		t.Errorf("ran %d, gave up %d, of 4000", ran.Load(), gaveUp.Load())
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), time.Second)
+	defer cancel()
+	if err := b.Do(ctx, func() error { return nil }); err != nil {
+		t.Fatalf("the line was not free at the end: %v", err)
+	}
+	closed := make(chan struct{})
+	go func() { b.Close(); close(closed) }()
+	select {
+	case <-closed:
+	case <-time.After(5 * time.Second):
+		t.Fatal("Close hangs: the line is still held")
+	}
+}
