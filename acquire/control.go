@@ -112,8 +112,8 @@ func (e *Engine) Start(label string) (store.RunID, error) {
 	if err := e.Healthy(); err != nil {
 		return 0, fmt.Errorf("start: the store cannot write: %v", err)
 	}
-	if exp := e.cfg.Reference.ExpiresAt; !exp.IsZero() && e.clk.Now().After(exp.Add(24*time.Hour)) {
-		return 0, fmt.Errorf("start: the reference's calibration expired on %s; recalibrate it or correct reference.expires", e.cfg.Reference.Expires)
+	if err := e.cfg.ReferenceExpired(e.clk.Now()); err != nil {
+		return 0, fmt.Errorf("start: %w", err)
 	}
 	if err := e.checkSpace(); err != nil {
 		return 0, fmt.Errorf("start: %w", err)

@@ -15,7 +15,7 @@ import (
 
 func init() { register(newDemoCmd) }
 
-// demoConfig is an invented scenario: a 0–16 bar process gauge of class 0.6
+// demoConfig is an invented scenario: a 0–16 bar process gauge of class 1
 // compared with a simulated reference transducer, the pressure set by a
 // simulated controller, all on an accelerated clock.
 const demoConfig = `# plateau demo: an invented 0–16 bar process gauge on the simulated bench.
@@ -35,7 +35,7 @@ device:
   lower: 0 bar
   upper: 16 bar
   resolution: 0.01 bar
-  class: "0.6"
+  class: "1"
   medium: nitrogen
 reference:
   id: SIM-REF-20

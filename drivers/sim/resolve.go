@@ -66,6 +66,9 @@ func (r *Rig) Resolve(inst config.Instrument) (config.Instrument, error) {
 		case KindDial:
 			out.Link = config.Link{Kind: config.LinkManual}
 			out.Unit = r.p.devUnit.Symbol
+			if err := config.CompleteInstrument(&out); err != nil {
+				return inst, fmt.Errorf("instrument %q: %w", inst.Name, err)
+			}
 			return out, nil
 		case KindTransmitter:
 			out.Unit, line = "mA", ep.DeviceLine
@@ -104,6 +107,11 @@ func (r *Rig) Resolve(inst config.Instrument) (config.Instrument, error) {
 		return bad("sim_via %q: want %s, %s or %s", via, config.LinkModbusTCP, config.LinkModbusRTU, config.LinkSerial)
 	}
 	out.Link = link
+	// The simulator's instruments get the same defaults and resolved values
+	// as the file's: no driver has defaults of its own.
+	if err := config.CompleteInstrument(&out); err != nil {
+		return inst, fmt.Errorf("instrument %q: %w", inst.Name, err)
+	}
 	return out, nil
 }
 
