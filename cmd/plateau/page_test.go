@@ -163,7 +163,8 @@ func TestLivePageFollowsARun(t *testing.T) {
 	run("open the browser", chromedp.Navigate("about:blank"))
 	console.follow(tab)
 	run("open the page", chromedp.Navigate(url), chromedp.WaitVisible(chromedp.CSS("#instruments tbody tr")))
-	inPage[bool](t, tab, `window.loadedOnce = true`)
+	// Resource timing records every status call, to check the pace below.
+	inPage[bool](t, tab, `performance.setResourceTimingBufferSize(100000), window.loadedOnce = true`)
 	first := inPage[string](t, tab, `(document.querySelector('#instruments tr[data-name="ref"] .reading') || {}).textContent || ""`)
 	waitPage("the reference's reading changes", fmt.Sprintf(`(document.querySelector('#instruments tr[data-name="ref"] .reading') || {}).textContent !== %q`, first), 10*time.Second)
 	if errs := console.all(); len(errs) > 0 {
@@ -276,6 +277,18 @@ func TestLivePageFollowsARun(t *testing.T) {
 	if !inPage[bool](t, tab, `window.loadedOnce === true`) {
 		t.Fatal("the page was reloaded")
 	}
+	// The status is asked for a full second after each answer, never faster.
+	gaps := inPage[[]float64](t, tab, `(() => {
+		const ts = performance.getEntriesByType("resource").filter(e => e.name.endsWith("/api/v1/status")).map(e => e.startTime);
+		return ts.slice(1).map((x, i) => x - ts[i]);
+	})()`)
+	if len(gaps) < 10 {
+		t.Fatalf("the page asked for the status %d times during the run", len(gaps)+1)
+	}
+	if fastest := slices.Min(gaps); fastest < 995 {
+		t.Fatalf("the page asked for the status twice within %.0f ms", fastest)
+	}
+	t.Logf("%d status calls, %.0f ms apart at the least", len(gaps)+1, slices.Min(gaps))
 	waitPage("the verdict", `document.getElementById("verdict").textContent.startsWith("Verdict: ")`, 15*time.Second)
 	waitPage("links to the reports", `document.querySelectorAll('#reports a[href*="/api/v1/runs/r000001/report?format="]').length === 3`, 5*time.Second)
 	waitPage("the band of permissible error", `errorChart.data[3].some(v => v !== null)`, 15*time.Second)
@@ -299,6 +312,8 @@ func TestLivePageFollowsARun(t *testing.T) {
 		// anything from the page's own code is not.
 		if !strings.Contains(e, "ERR_CONNECTION_REFUSED") && !strings.Contains(e, "Failed to load resource") {
 			t.Errorf("page error: %s", e)
+		} else {
+			t.Logf("while the daemon was away: %s", e)
 		}
 	}
 	stopDaemon(t, d)

@@ -35,6 +35,7 @@ const state = {
   overviewAt: 0,
   events: [],
   source: null,
+  topPa: 1e5,           // the largest pressure seen, for the number of decimals
 };
 
 // ---- helpers ----------------------------------------------------------
@@ -53,13 +54,18 @@ function el(tag, attrs, ...kids) {
 function unit() { return (state.status && state.status.unit) || "Pa"; }
 function toUnit(pa, u) { const f = state.unitsPa[u || unit()]; return f ? pa / f : pa; }
 
-// fmt shows a pressure in the device's unit with five significant digits,
-// enough for a 0.01 % reference on any range.
+// fmt shows a pressure in the device's unit with a fixed number of
+// decimals: six significant digits at the largest pressure seen, so that
+// readings, targets and errors line up and a 0.01 % reference still shows
+// its last digit.
 function fmt(pa, u) {
   if (pa === null || pa === undefined || !isFinite(pa)) return "—";
-  const v = toUnit(pa, u);
-  return (Math.abs(v) < 1e-12 ? 0 : Number(v.toPrecision(5))).toString() + " " + (u || unit());
+  const top = Math.max(toUnit(state.topPa, u), 1e-9);
+  const decimals = Math.min(8, Math.max(0, 5 - Math.floor(Math.log10(top))));
+  return toUnit(pa, u).toFixed(decimals) + " " + (u || unit());
 }
+
+function seenPa(pa) { if (isFinite(pa)) state.topPa = Math.max(state.topPa, Math.abs(pa)); }
 
 function clock(t) { return t ? new Date(t).toLocaleTimeString() : "—"; }
 
@@ -115,6 +121,7 @@ function addPoint(p, fresh) {
   const key = pointKey(p);
   if (state.points.has(key)) return false; // a resumed stream or a refetch: already shown
   state.points.set(key, { point: p, fresh });
+  seenPa(p.nominal_pa); seenPa(p.reference.mean_pa);
   while (state.points.size > POINTS_MAX) state.points.delete(state.points.keys().next().value);
   return true;
 }
@@ -197,6 +204,7 @@ function onEvent(ev) {
         state.steps.set(d.step, { text: ev.message.replace(/^step \d+\/\d+: /, ""), target: d.target_pa });
         state.currentStep = d.step;
         state.targetPa = d.target_pa;
+        seenPa(d.target_pa);
         const m = /^step \d+\/(\d+)/.exec(ev.message);
         if (m) state.stepCount = Number(m[1]);
         while (state.steps.size > POINTS_MAX) state.steps.delete(state.steps.keys().next().value);
@@ -207,7 +215,7 @@ function onEvent(ev) {
       if (typeof d.step === "number") { state.missed.set(d.step, ev.message); renderPlan(); renderPoints(); }
       break;
     case "state":
-      if (d.state) { state.runState = d.state; renderPlan(); if (ended.has(d.state)) { state.reportAt = 0; fetchReport(); } }
+      if (d.state) { state.runState = d.state; renderPlan(); if (ended.has(d.state)) { state.reportAt = 0; fetchReport(); state.overviewAt = Date.now(); drawOverview(); } }
       break;
   }
 }
@@ -272,11 +280,11 @@ async function pollStatus() {
 function onStatus(st) {
   $("version").textContent = st.version;
   const run = st.run ? st.run.id : st.last ? st.last.id : null;
-  if (run && run !== state.run) { switchRun(run); refetchRun(); }
+  if (run && run !== state.run) { switchRun(run); refetchRun(); backfillTrace(run, st); }
   if (st.run) state.runState = st.run.state; else if (st.last && st.last.id === state.run) state.runState = st.last.state;
   for (const inst of st.instruments) {
     state.roles.set(inst.name, inst.role);
-    if (inst.last_at) pushTrace(inst.name, Date.parse(inst.last_at) / 1000, inst.last_pa);
+    if (inst.last_at) { pushTrace(inst.name, Date.parse(inst.last_at) / 1000, inst.last_pa); seenPa(inst.last_pa); }
   }
   renderHeader(st);
   renderInstruments(st);
@@ -395,9 +403,46 @@ function pushTrace(name, t, pa) {
   if (drop > 0) { tr.t.splice(0, drop); tr.pa.splice(0, drop); }
 }
 
+// backfillTrace fills the trace with the last minutes the store holds, so
+// a page opened mid-run shows them at once: one samples call per
+// instrument, a bucket a second. Readings the status brought meanwhile are
+// kept after the stored ones.
+async function backfillTrace(run, st) {
+  for (const inst of st.instruments) {
+    if (inst.role === "source" || !inst.last_at) continue;
+    const to = new Date(inst.last_at);
+    const from = new Date(to.getTime() - TRACE_SECONDS * 1000);
+    let rep;
+    try {
+      rep = await getJSON("/api/v1/runs/" + run + "/samples?instrument=" + encodeURIComponent(inst.name) +
+        "&from=" + from.toISOString() + "&to=" + to.toISOString() + "&buckets=" + TRACE_SECONDS);
+    } catch (e) {
+      continue; // nothing stored yet for this run
+    }
+    if (run !== state.run) return;
+    const stored = rep.buckets.filter((b) => b.count > 0);
+    if (!stored.length) continue;
+    const old = state.trace.get(inst.name) || { t: [], pa: [] };
+    const first = Date.parse(stored[0].start) / 1000, last = Date.parse(stored[stored.length - 1].start) / 1000;
+    const tr = { t: [], pa: [] };
+    const keep = (t, pa) => { tr.t.push(t); tr.pa.push(pa); };
+    old.t.forEach((t, i) => { if (t < first) keep(t, old.pa[i]); });
+    for (const b of stored) keep(Date.parse(b.start) / 1000, b.mean_pa);
+    old.t.forEach((t, i) => { if (t > last) keep(t, old.pa[i]); });
+    state.trace.set(inst.name, tr);
+  }
+  drawTrace();
+}
+
 let traceChart = null, errorChart = null, overviewChart = null;
 
 function chartWidth(id) { return Math.max(300, $(id).clientWidth - 4); }
+
+// fit keeps a chart as wide as its box, which can change as the page fills.
+function fit(chart, id) {
+  const w = chartWidth(id);
+  if (chart && Math.abs(chart.width - w) > 8) chart.setSize({ width: w, height: chart.height });
+}
 
 // traceData merges the instruments' times into one x axis, as the chart
 // library wants, with gaps where an instrument has no reading.
@@ -433,6 +478,7 @@ function drawTrace() {
     traceChart.key = key;
   } else {
     traceChart.setData(data);
+    fit(traceChart, "trace");
   }
 }
 
@@ -494,6 +540,7 @@ function drawErrors() {
     errorChart.key = key;
   } else {
     errorChart.setData(data);
+    fit(errorChart, "errors");
   }
   $("errors").dataset.points = String(data[0].length);
 }
@@ -524,6 +571,7 @@ async function drawOverview() {
     }, data, $("overview"));
   } else {
     overviewChart.setData(data);
+    fit(overviewChart, "overview");
   }
 }
 
@@ -582,9 +630,7 @@ async function main() {
   follow();
   setTimeout(pollStatus, STATUS_EVERY_MS);
   window.addEventListener("resize", () => {
-    for (const [c, id] of [[traceChart, "trace"], [errorChart, "errors"], [overviewChart, "overview"]]) {
-      if (c) c.setSize({ width: chartWidth(id), height: c.height });
-    }
+    for (const [c, id] of [[traceChart, "trace"], [errorChart, "errors"], [overviewChart, "overview"]]) fit(c, id);
   });
 }
 
