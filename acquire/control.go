@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"math"
 	"strconv"
+	"strings"
 	"time"
 
 	"plateau/acquire/poll"
@@ -82,7 +83,7 @@ func (e *Engine) Status() Status {
 	}
 	for _, p := range e.pollers() {
 		s.Instruments = append(s.Instruments, p.State())
-		s.Polled[p.Name] = !(p == e.dev && e.byPerson)
+		s.Polled[p.Name] = !e.readByPerson(p)
 	}
 	return s
 }
@@ -227,8 +228,10 @@ func (e *Engine) Resume() error {
 
 // Entry is an operator's reading of an analog dial.
 type Entry struct {
-	Value float64
-	Unit  string
+	// Device names the dial when the run has several; empty for the only one.
+	Device string
+	Value  float64
+	Unit   string
 	// Confirmed: the operator has confirmed an entry that looked
 	// implausible (outside the range, far from the target).
 	Confirmed bool
@@ -250,8 +253,9 @@ func (e *ImplausibleError) Error() string {
 // procedure.entry_limit times the permissible error. Every entry taken,
 // including one a later entry supersedes, is in the record as an event.
 func (e *Engine) Enter(en Entry) error {
-	if e.enterer == nil {
-		return errors.New("the device under test is not read by an operator (link kind manual)")
+	d, err := e.dialFor(en.Device)
+	if err != nil {
+		return err
 	}
 	if math.IsNaN(en.Value) || math.IsInf(en.Value, 0) {
 		return errors.New("the reading must be a finite number")
@@ -260,7 +264,7 @@ func (e *Engine) Enter(en Entry) error {
 	if err != nil {
 		return fmt.Errorf("unit: %w", err)
 	}
-	st := e.dev.State()
+	st := d.poll.State()
 	r := e.runs.active()
 	if st.Waiting == "" || r == nil {
 		where := "no run is active"
@@ -275,17 +279,44 @@ func (e *Engine) Enter(en Entry) error {
 			return &ImplausibleError{Why: why}
 		}
 	}
-	if err := e.enterer.Enter(en.Value, en.Unit, e.clk.Now()); err != nil {
+	if err := d.enterer.Enter(en.Value, en.Unit, e.clk.Now()); err != nil {
 		return err
 	}
 	note := ""
 	if en.Confirmed {
 		note = " (confirmed by the operator)"
 	}
-	e.emit(r.id, slog.LevelInfo, "entry", e.dev.Name, fmt.Sprintf("%s: dial read %s %s for %s%s", e.dev.Name,
+	e.emit(r.id, slog.LevelInfo, "entry", d.poll.Name, fmt.Sprintf("%s: dial read %s %s for %s%s", d.poll.Name,
 		strconv.FormatFloat(en.Value, 'f', -1, 64), u.Symbol, st.Waiting, note),
 		map[string]any{"value": en.Value, "unit": u.Symbol, "pa": pa, "target_pa": st.WaitingForPa, "confirmed": en.Confirmed})
 	return nil
+}
+
+// dialFor finds the dial an entry is for: the named one, or the only one.
+func (e *Engine) dialFor(name string) (*device, error) {
+	var dials []*device
+	for _, d := range e.devs {
+		if d.enterer == nil {
+			continue
+		}
+		if name != "" && d.poll.Name == name {
+			return d, nil
+		}
+		dials = append(dials, d)
+	}
+	switch {
+	case name != "":
+		return nil, fmt.Errorf("no dial read by an operator is named %q", name)
+	case len(dials) == 0:
+		return nil, errors.New("no device under test is read by an operator (link kind manual)")
+	case len(dials) > 1:
+		names := make([]string, len(dials))
+		for i, d := range dials {
+			names[i] = d.poll.Name
+		}
+		return nil, fmt.Errorf("this run has several dials (%s): say which one the reading is for", strings.Join(names, ", "))
+	}
+	return dials[0], nil
 }
 
 // implausible says why a dial entry looks wrong, or "".
@@ -431,7 +462,7 @@ func (e *Engine) procedure(r *activeRun) *procedure.Procedure {
 			ExerciseHold: cfg.Procedure.ExerciseHold, Timeout: cfg.Procedure.Timeout,
 			OnTimeout: procedure.OnTimeout(cfg.Procedure.OnTimeout), Compare: procedure.Compare(cfg.Procedure.Compare),
 		},
-		Ref: e.ref, Dev: e.dev, Rec: &runRecorder{e: e, r: r}, Gate: r.gate,
+		Ref: e.ref, Rec: &runRecorder{e: e, r: r}, Gate: r.gate,
 		Clock: e.clk, Tick: e.tick(), Format: e.fmtPa, Log: e.log.With("run", r.id.String()),
 	}
 	if e.source != nil {
@@ -440,8 +471,12 @@ func (e *Engine) procedure(r *activeRun) *procedure.Procedure {
 			p.Reacher = rc
 		}
 	}
-	if e.byPerson {
-		p.Dial = e.dev
+	for _, d := range e.devs {
+		pd := procedure.Device{Label: d.label, Inst: d.poll}
+		if d.byPerson {
+			pd.Dial = d.poll
+		}
+		p.Devices = append(p.Devices, pd)
 	}
 	return p
 }

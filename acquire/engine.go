@@ -43,12 +43,15 @@ type Instrument struct {
 	// ByPerson: the device is read by a person (an analog dial), once per
 	// point, instead of being polled.
 	ByPerson bool
+	// ResolutionPa is a device's resolution: its settle rule allows a
+	// flicker of one digit.
+	ResolutionPa float64
 }
 
 // Instruments are the opened instruments of a bench.
 type Instruments struct {
 	Reference Instrument
-	Device    Instrument
+	Devices   []Instrument   // the devices under test, compared with the reference together
 	Others    []Instrument   // recorded only (ambient sensors)
 	Source    drivers.Source // nil when a person sets the pressure
 }
@@ -102,12 +105,11 @@ type Engine struct {
 	steps    []procedure.Step
 	plan     string // fingerprint of the plan, kept in each run's cursor
 
-	ref, dev *poll.Poller
-	others   []*poll.Poller
-	byPerson bool // the device is read by a person
-	enterer  Enterer
-	source   drivers.Source
-	guard    *safety.Guard
+	ref    *poll.Poller
+	devs   []*device
+	others []*poll.Poller
+	source drivers.Source
+	guard  *safety.Guard
 
 	samples *recorder
 	runs    lifecycle
@@ -118,6 +120,24 @@ type Engine struct {
 	serveCtx context.Context
 	ready    chan struct{} // closed once Serve has resumed any unfinished run
 	started  atomic.Bool
+}
+
+// device is one device under test on the bench.
+type device struct {
+	poll     *poll.Poller
+	label    string // names its points when the run has several devices
+	byPerson bool   // read by a person, once per point
+	enterer  Enterer
+}
+
+// readByPerson says whether p is a device read by a person (no poll loop).
+func (e *Engine) readByPerson(p *poll.Poller) bool {
+	for _, d := range e.devs {
+		if d.poll == p {
+			return d.byPerson
+		}
+	}
+	return false
 }
 
 // Enterer takes an operator's reading of an analog dial.
@@ -131,8 +151,11 @@ func New(opt Options) (*Engine, error) {
 		return nil, errors.New("engine: config and store are required")
 	}
 	in := opt.Instruments
-	if in.Reference.Gauge == nil || in.Device.Gauge == nil {
+	if in.Reference.Gauge == nil || len(in.Devices) == 0 {
 		return nil, errors.New("engine: a reference and a device under test are required")
+	}
+	if len(in.Devices) > 1 && procedure.Compare(opt.Config.Procedure.Compare) == procedure.SetByDevice {
+		return nil, errors.New("engine: set-by-device brings one pointer onto its mark: it works with one device under test, not several; use set-by-reference")
 	}
 	if opt.Clock == nil {
 		opt.Clock = clock.Wall{}
@@ -145,7 +168,7 @@ func New(opt Options) (*Engine, error) {
 	}
 	cfg := opt.Config
 	e := &Engine{cfg: cfg, yaml: opt.ConfigYAML, record: opt.Record, identity: opt.Identity, st: opt.Store,
-		clk: opt.Clock, log: opt.Log, bus: NewBus(), source: in.Source, byPerson: in.Device.ByPerson,
+		clk: opt.Clock, log: opt.Log, bus: NewBus(), source: in.Source,
 		ready: make(chan struct{})}
 	if procedure.Mode(cfg.Procedure.Mode) == procedure.Planned {
 		e.steps = procedure.Plan(cfg.Procedure, cfg.Device.LowerPa)
@@ -178,11 +201,23 @@ func New(opt Options) (*Engine, error) {
 	if e.ref, err = mk(in.Reference, rules, e.guard.Observe); err != nil {
 		return nil, err
 	}
-	if e.dev, err = mk(in.Device, deviceRules(rules, cfg.Device.ResolutionPa), nil); err != nil {
-		return nil, err
-	}
-	if m, ok := in.Device.Gauge.(Enterer); ok {
-		e.enterer = m
+	for _, d := range in.Devices {
+		res := d.ResolutionPa
+		if res == 0 {
+			res = cfg.Device.ResolutionPa
+		}
+		p, err := mk(d, deviceRules(rules, res), nil)
+		if err != nil {
+			return nil, err
+		}
+		dv := &device{poll: p, byPerson: d.ByPerson}
+		if len(in.Devices) > 1 {
+			dv.label = d.Name // several devices: each point names its device
+		}
+		if m, ok := d.Gauge.(Enterer); ok {
+			dv.enterer = m
+		}
+		e.devs = append(e.devs, dv)
 	}
 	for _, o := range in.Others {
 		p, err := mk(o, rules, nil)
@@ -258,7 +293,7 @@ func (e *Engine) Serve(ctx context.Context) error {
 	spawn(func() { e.guard.Run(ctx, e.tick()) })
 	spawn(func() { e.watchStore(ctx) })
 	for _, p := range e.pollers() {
-		if p == e.dev && e.byPerson {
+		if e.readByPerson(p) {
 			continue // read once per point, not polled
 		}
 		spawn(func() { p.Run(ctx) })
@@ -277,12 +312,20 @@ func (e *Engine) Serve(ctx context.Context) error {
 }
 
 func (e *Engine) pollers() []*poll.Poller {
-	return append([]*poll.Poller{e.ref, e.dev}, e.others...)
+	out := []*poll.Poller{e.ref}
+	for _, d := range e.devs {
+		out = append(out, d.poll)
+	}
+	return append(out, e.others...)
 }
 
 // tick is how often the procedure looks at the detectors.
 func (e *Engine) tick() time.Duration {
-	return min(e.ref.Interval(), e.dev.Interval())
+	t := e.ref.Interval()
+	for _, d := range e.devs {
+		t = min(t, d.poll.Interval())
+	}
+	return t
 }
 
 // emit commits an event to the store, then publishes it. An event the

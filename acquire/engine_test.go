@@ -3,6 +3,7 @@ package acquire_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"path/filepath"
 	"strings"
@@ -92,6 +93,16 @@ type fakeBench struct {
 
 func newFakeBench(t *testing.T, edit func(*config.Config), dev drivers.Gauge, wrap func(*store.Store) acquire.Store) *fakeBench {
 	t.Helper()
+	return newFakeBenchOf(t, edit, wrap, func(m *fakeModel) []acquire.Instrument {
+		if dev != nil {
+			return []acquire.Instrument{{Name: "dut", Gauge: dev, Poll: 100 * time.Millisecond, ByPerson: true}}
+		}
+		return []acquire.Instrument{{Name: "dut", Gauge: fakeGauge{m: m, offset: devOffset}, Poll: 100 * time.Millisecond}}
+	})
+}
+
+func newFakeBenchOf(t *testing.T, edit func(*config.Config), wrap func(*store.Store) acquire.Store, devices func(*fakeModel) []acquire.Instrument) *fakeBench {
+	t.Helper()
 	cfg, err := config.Parse([]byte(fakeYAML), "fake.yaml")
 	if err != nil {
 		t.Fatal(err)
@@ -107,11 +118,8 @@ func newFakeBench(t *testing.T, edit func(*config.Config), dev drivers.Gauge, wr
 	}
 	in := acquire.Instruments{
 		Reference: acquire.Instrument{Name: "ref", Gauge: fakeGauge{m: m}, Poll: 100 * time.Millisecond},
-		Device:    acquire.Instrument{Name: "dut", Gauge: fakeGauge{m: m, offset: devOffset}, Poll: 100 * time.Millisecond},
+		Devices:   devices(m),
 		Source:    m,
-	}
-	if dev != nil {
-		in.Device = acquire.Instrument{Name: "dut", Gauge: dev, Poll: 100 * time.Millisecond, ByPerson: true}
 	}
 	var est acquire.Store = st
 	if wrap != nil {
@@ -290,5 +298,82 @@ func TestEngineDialEntries(t *testing.T) {
 		if err := b.eng.Enter(acquire.Entry{Value: reading, Unit: "bar"}); err != nil && !errors.Is(err, acquire.ErrNoStepWaiting) {
 			t.Fatal(err)
 		}
+	}
+}
+
+// fallible is a fake device whose link can be cut.
+type fallible struct {
+	fakeGauge
+	cut *atomic.Bool
+}
+
+func (f fallible) Read(ctx context.Context) (drivers.Reading, error) {
+	if f.cut.Load() {
+		return drivers.Reading{}, drivers.Fail("d4", drivers.KindLinkDown, errors.New("cable pulled (injected)"))
+	}
+	return f.fakeGauge.Read(ctx)
+}
+
+// Four devices on one manifold with different errors: each gets its own
+// point at every step, with its own error; one whose link is cut mid-run
+// is marked missed from then on and the others complete.
+func TestEngineSeveralDevices(t *testing.T) {
+	t.Parallel()
+	offsets := []float64{0.002e5, -0.003e5, 0.006e5, 0.001e5}
+	cut := &atomic.Bool{}
+	b := newFakeBenchOf(t, nil, nil, func(m *fakeModel) []acquire.Instrument {
+		var out []acquire.Instrument
+		for i, off := range offsets {
+			name := fmt.Sprintf("d%d", i+1)
+			var g drivers.Gauge = fakeGauge{m: m, offset: off}
+			if i == 3 {
+				g = fallible{fakeGauge{m: m, offset: off}, cut}
+			}
+			out = append(out, acquire.Instrument{Name: name, Gauge: g, Poll: 100 * time.Millisecond, ResolutionPa: 100})
+		}
+		return out
+	})
+	id, err := b.eng.Start("four devices")
+	if err != nil {
+		t.Fatal(err)
+	}
+	waitUntil(t, 20*time.Second, "a few steps", func() bool { return b.eng.Status().Step >= 3 })
+	cut.Store(true)
+	if st, why := b.waitEnd(t); st != store.StateFinished {
+		t.Fatalf("run ended %s: %s", st, why)
+	}
+	pts, err := b.st.Points(id)
+	if err != nil {
+		t.Fatal(err)
+	}
+	steps := procedure.CaptureCount(procedure.Plan(b.cfg.Procedure, 0))
+	per := map[string]int{}
+	for _, p := range pts {
+		per[p.Device]++
+		i := int(p.Device[1] - '1')
+		if e := p.DUT.Mean - p.Reference.Mean; math.Abs(e-offsets[i]) > 5 {
+			t.Errorf("%s %s: error %.1f Pa, its own is %.1f Pa", p.Device, procedure.PointKey(p), e, offsets[i])
+		}
+	}
+	for _, d := range []string{"d1", "d2", "d3"} {
+		if per[d] != steps {
+			t.Errorf("%s: %d points, want %d", d, per[d], steps)
+		}
+	}
+	if per["d4"] == 0 || per["d4"] >= steps {
+		t.Errorf("d4: %d points, want some before the cut and none after", per["d4"])
+	}
+	missed := 0
+	evs, _ := b.st.Events(0, 10000)
+	for _, ev := range evs {
+		if ev.Type == "missed" {
+			if ev.Instrument != "d4" {
+				t.Errorf("missed event for %q: %s", ev.Instrument, ev.Message)
+			}
+			missed++
+		}
+	}
+	if missed != steps-per["d4"] {
+		t.Errorf("%d missed events for d4, want %d", missed, steps-per["d4"])
 	}
 }

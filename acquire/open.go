@@ -64,19 +64,20 @@ func Open(cfg *config.Config, env drivers.OpenEnv, rig Simulated) (Instruments, 
 				return fail(err)
 			}
 			one.Gauge = g
-			one.ByPerson = inst.Role == config.RoleDevice && (inst.Link.Kind == config.LinkManual || cfg.Device.Kind == deviceKindDial)
+			one.ByPerson = inst.Role == config.RoleDevice && (inst.Link.Kind == config.LinkManual || deviceOf(cfg, inst.Name).Kind == deviceKindDial)
 		}
 		closers = append(closers, one.Gauge.Close)
 		switch inst.Role {
 		case config.RoleReference:
 			in.Reference = one
 		case config.RoleDevice:
-			in.Device = one
+			one.ResolutionPa = deviceOf(cfg, inst.Name).ResolutionPa
+			in.Devices = append(in.Devices, one)
 		default:
 			in.Others = append(in.Others, one)
 		}
 	}
-	if in.Reference.Gauge == nil || in.Device.Gauge == nil {
+	if in.Reference.Gauge == nil || len(in.Devices) == 0 {
 		return fail(errors.New("a reference and a device under test are required"))
 	}
 	return in, closeAll, nil
@@ -90,4 +91,15 @@ func simulatedDial(inst config.Instrument, rig Simulated) drivers.Gauge {
 		return nil
 	}
 	return rig.DialReader()
+}
+
+// deviceOf is the resolved description of the device under test read by
+// the named instrument (the top-level device section when there is one).
+func deviceOf(cfg *config.Config, instrument string) config.Device {
+	for _, d := range cfg.Devices {
+		if d.Instrument == instrument {
+			return d.Device
+		}
+	}
+	return cfg.Device
 }

@@ -47,4 +47,7 @@ type Point struct {
 	Reference Window    `json:"reference"`      // reference standard, Pa, before head correction
 	DUT       Window    `json:"dut"`            // device under test, Pa
 	Note      string    `json:"note,omitempty"` // e.g. "approached from the wrong side"
+	// Device names the device under test the point belongs to when a run
+	// calibrates several at once; empty for a run with one device.
+	Device string `json:"device,omitempty"`
 }

@@ -53,8 +53,10 @@ type Feed interface {
 	Subscribe(buffer int) (events <-chan store.Event, cancel func())
 }
 
-// RenderFunc writes a run's report in format "json", "csv" or "html".
-type RenderFunc func(format string, w io.Writer, runID string) error
+// RenderFunc writes a run's report in format "json", "csv" or "html"; device
+// selects one device of a run that calibrated several ("" for all, or the
+// only one).
+type RenderFunc func(format string, w io.Writer, runID, device string) error
 
 // Errors that Control and RenderFunc may wrap so the API answers with the
 // right status; any other error is a 500 with no detail sent.

@@ -151,7 +151,7 @@ func (b *bench) Enter(_ context.Context, e Entry) error {
 
 // render stands in for the report package: it writes the run's points in
 // the asked format, so the endpoint's plumbing is what the test checks.
-func (b *bench) render(format string, w io.Writer, runID string) error {
+func (b *bench) render(format string, w io.Writer, runID, _ string) error {
 	id, err := store.ParseRunID(runID)
 	if err != nil {
 		return err

@@ -228,6 +228,7 @@ func (s *Server) Handler(access Access) http.Handler {
 	read("GET /api/v1/runs/{id}/points", s.handlePoints)
 	read("GET /api/v1/runs/{id}/report", s.handleReport)
 	read("GET /api/v1/events", s.handleEvents)
+	read("GET /api/v1/backup", s.handleBackup)
 	read("GET /api/v1/runs/{id}/samples", s.handleSamples)
 	read("GET /api/v1/units", s.handleUnits)
 	read("GET /{$}", s.handlePage)
@@ -419,7 +420,8 @@ func (s *Server) handleReport(w http.ResponseWriter, r *http.Request) {
 	}
 	// Render to memory first, so a failure still gets a proper status.
 	var buf bytes.Buffer
-	if err := s.o.Render(format, &buf, id.String()); err != nil {
+	device := r.URL.Query().Get("device")
+	if err := s.o.Render(format, &buf, id.String(), device); err != nil {
 		s.fail(w, fmt.Errorf("report %s as %s: %w", id, format, err))
 		return
 	}

@@ -17,7 +17,7 @@ import (
 // the dial was read. In set-by-device mode the pointer must stand on the
 // scale mark: an entry off the mark is refused, and with a pressure source
 // the setpoint is corrected by the difference and the dial read again.
-func (p *Procedure) captureDial(ctx context.Context, s Step, note string) (analysis.Point, error) {
+func (p *Procedure) captureDial(ctx context.Context, s Step, d Device, note string) (analysis.Point, error) {
 	// Zero readings are taken vented: there is no mark to set the pointer on.
 	onMark := p.Settings.Compare == SetByDevice && s.PointKind == analysis.Measurement
 	deadline := p.Clock.Now().Add(p.Settings.Timeout)
@@ -25,12 +25,12 @@ func (p *Procedure) captureDial(ctx context.Context, s Step, note string) (analy
 	if onMark {
 		how = "bring the pointer exactly onto the mark, then enter the mark's value"
 	}
-	name := p.Dial.State().Name
+	name := d.Dial.State().Name
 	for adjust := 0; ; adjust++ {
 		asked := p.Clock.Now()
 		p.Rec.Event(slog.LevelInfo, "enter", name,
 			fmt.Sprintf("%s: %s (target %s)", s, how, p.format(s.TargetPa)), map[string]float64{"target_pa": s.TargetPa})
-		rd, err := p.nextDialReading(ctx, s, asked, deadline)
+		rd, err := p.nextDialReading(ctx, d.Dial, s, asked, deadline)
 		if err != nil {
 			return analysis.Point{}, err
 		}
@@ -74,11 +74,11 @@ func (p *Procedure) captureDial(ctx context.Context, s Step, note string) (analy
 
 // nextDialReading waits for a dial reading entered after asked. While it
 // waits, the dial is "waiting for an entry": that is not a failed read.
-func (p *Procedure) nextDialReading(ctx context.Context, s Step, asked, deadline time.Time) (drivers.Reading, error) {
-	p.Dial.SetWaiting(fmt.Sprintf("an entry for %s", s), s.TargetPa)
-	defer p.Dial.SetWaiting("", 0)
+func (p *Procedure) nextDialReading(ctx context.Context, dial Dial, s Step, asked, deadline time.Time) (drivers.Reading, error) {
+	dial.SetWaiting(fmt.Sprintf("an entry for %s", s), s.TargetPa)
+	defer dial.SetWaiting("", 0)
 	for {
-		rd, err := p.Dial.Read(ctx)
+		rd, err := dial.Read(ctx)
 		if ctx.Err() != nil {
 			return drivers.Reading{}, ctx.Err()
 		}
@@ -107,16 +107,21 @@ func (p *Procedure) free(ctx context.Context) error {
 	}
 	last, have := 0.0, false
 	dir := analysis.Ascending
-	n := len(existing)
-	if n > 0 {
-		last, have, dir = existing[n-1].Reference.Mean, true, existing[n-1].Direction
+	n := 0 // plateaus so far: every device's point of one plateau has its index
+	for _, pt := range existing {
+		n = max(n, pt.Index+1)
+	}
+	if k := len(existing); k > 0 {
+		last, have, dir = existing[k-1].Reference.Mean, true, existing[k-1].Direction
 	}
 	p.Rec.Progress(0, n, 0, "free run")
 	p.Rec.Event(slog.LevelInfo, "step", "", "free run: every plateau both instruments hold for a full window becomes a point", nil)
 	restart := func() {
 		now := p.Clock.Now()
 		p.Ref.Restart(now, 0, false)
-		p.Dev.Restart(now, 0, false)
+		for _, d := range p.Devices {
+			d.Inst.Restart(now, 0, false)
+		}
 	}
 	restart()
 	for {
@@ -130,8 +135,22 @@ func (p *Procedure) free(ctx context.Context) error {
 			}
 			return err
 		}
-		rs, ds := p.Ref.State(), p.Dev.State()
-		if !poll.Paired(rs, ds, p.Clock.Now(), p.Tick) {
+		rs, now := p.Ref.State(), p.Clock.Now()
+		// Every device that answers must be settled with the reference;
+		// one whose link is down does not hold up the others.
+		var pairs []analysis.Window
+		var who []Device
+		waiting := false
+		for _, d := range p.Devices {
+			ds := d.Inst.State()
+			switch {
+			case poll.Paired(rs, ds, now, p.Tick):
+				pairs, who = append(pairs, ds.Window), append(who, d)
+			case ds.LastErr == "":
+				waiting = true
+			}
+		}
+		if waiting || len(pairs) == 0 {
 			continue
 		}
 		at := rs.Window.Mean
@@ -145,10 +164,12 @@ func (p *Procedure) free(ctx context.Context) error {
 				dir = analysis.Descending
 			}
 		}
-		pt := analysis.Point{Cycle: 1, Direction: dir, Kind: analysis.Measurement, Index: n,
-			Nominal: at, Reference: rs.Window, DUT: ds.Window}
-		if err := p.Rec.Point(pt); err != nil {
-			return err
+		for i, d := range who {
+			pt := analysis.Point{Cycle: 1, Direction: dir, Kind: analysis.Measurement, Index: n,
+				Nominal: at, Reference: rs.Window, DUT: pairs[i], Device: d.Label}
+			if err := p.Rec.Point(pt); err != nil {
+				return err
+			}
 		}
 		n++
 		last, have = at, true

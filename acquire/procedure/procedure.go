@@ -96,8 +96,7 @@ type Procedure struct {
 	Source   Source  // nil: a person sets the pressure
 	Reacher  Reacher // nil: the controller says nothing of reaching
 	Ref      Instrument
-	Dev      Instrument
-	Dial     Dial // non-nil when the device is read by a person; Dev is then the same
+	Devices  []Device // the devices under test, compared with Ref at every step
 	Rec      Record
 	Gate     Gate
 	Clock    clock.Clock
@@ -107,6 +106,25 @@ type Procedure struct {
 
 	setpoint float64 // the last pressure asked for
 }
+
+// Device is one device under test as the procedure sees it.
+type Device struct {
+	// Label names the device in its points and messages; empty when the
+	// run calibrates one device (its points then carry no name, as before).
+	Label string
+	Inst  Instrument
+	Dial  Dial // non-nil when a person reads it; Inst is then the same
+}
+
+func (d Device) name() string {
+	if d.Label != "" {
+		return d.Label
+	}
+	return "the device under test"
+}
+
+// doneKey identifies a captured point of one device.
+func doneKey(device, key string) string { return device + "|" + key }
 
 // Missed says why a point could not be captured.
 type Missed struct{ Why string }
@@ -139,7 +157,7 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 	}
 	done := map[string]bool{}
 	for _, pt := range existing {
-		done[PointKey(pt)] = true
+		done[doneKey(pt.Device, PointKey(pt))] = true
 	}
 	points := len(existing)
 	p.Rec.Progress(from, points, 0, "")
@@ -148,7 +166,7 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 		if err := p.Rec.Cursor(i); err != nil {
 			return err
 		}
-		if s.Kind == StepCapture && done[s.Key()] {
+		if s.Kind == StepCapture && len(p.pending(s, done)) == 0 {
 			continue // captured before a restart
 		}
 		for {
@@ -158,24 +176,26 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 			p.Rec.Progress(i, points, s.TargetPa, s.String())
 			p.Rec.Event(slog.LevelInfo, "step", "", fmt.Sprintf("step %d/%d: %s, target %s", i+1, len(p.Steps), s, p.format(s.TargetPa)),
 				map[string]any{"step": i, "target_pa": s.TargetPa})
-			err := p.step(ctx, s)
-			if errors.Is(err, errPaused) || (err != nil && ctx.Err() == nil && p.Gate.Paused()) {
-				continue // do the step again once the run goes on
-			}
 			var missed *Missed
+			var err error
+			if s.Kind == StepExercise {
+				err = p.exercise(ctx, s)
+			} else {
+				missed, err = p.captureAll(ctx, s, i, done, &points)
+			}
+			if errors.Is(err, errPaused) || (err != nil && ctx.Err() == nil && p.Gate.Paused()) {
+				continue // do the step again, for what it still lacks, once the run goes on
+			}
 			if errors.As(err, &missed) {
+				// An exercise step that cannot reach its pressure.
 				p.Rec.Event(slog.LevelWarn, "missed", "", fmt.Sprintf("%s: %s", s, missed.Why), map[string]any{"step": i})
-				if p.Settings.OnTimeout == Stop {
-					return fmt.Errorf("%s not captured: %s", s, missed.Why)
-				}
-				break
+				err, missed = nil, nil
 			}
 			if err != nil {
 				return err
 			}
-			if s.Kind == StepCapture {
-				done[s.Key()] = true
-				points++
+			if missed != nil && p.Settings.OnTimeout == Stop {
+				return fmt.Errorf("%s not captured: %s", s, missed.Why)
 			}
 			break
 		}
@@ -183,15 +203,15 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 	return p.Rec.Cursor(len(p.Steps))
 }
 
-func (p *Procedure) step(ctx context.Context, s Step) error {
-	if s.Kind == StepExercise {
-		return p.exercise(ctx, s)
+// pending lists the devices that still lack their point of step s.
+func (p *Procedure) pending(s Step, done map[string]bool) []Device {
+	var out []Device
+	for _, d := range p.Devices {
+		if !done[doneKey(d.Label, s.Key())] {
+			out = append(out, d)
+		}
 	}
-	pt, err := p.capture(ctx, s)
-	if err != nil {
-		return err
-	}
-	return p.Rec.Point(pt)
+	return out
 }
 
 // PointKey matches Step.Key for a captured point.
@@ -346,16 +366,44 @@ func (p *Procedure) exercise(ctx context.Context, s Step) error {
 	return p.sleep(ctx, p.Settings.Hold)
 }
 
-// capture brings the pressure to the step's target from the step's side and
-// waits until the reference and the device are settled over the same window
-// after the hold time.
-func (p *Procedure) capture(ctx context.Context, s Step) (analysis.Point, error) {
+// captureAll brings the pressure to the step's target from the step's side
+// and, once the reference has settled after the hold, gives each device its
+// own point as soon as it and the reference are settled over shared windows
+// (the reference is shared). The step is done when every device has its
+// point or has run out of time; a device that times out, or whose link is
+// down, is marked missed and the others go on. It returns the first miss.
+func (p *Procedure) captureAll(ctx context.Context, s Step, step int, done map[string]bool, points *int) (*Missed, error) {
 	target := s.TargetPa
 	up := s.Direction == analysis.Ascending
 	note := ""
+	var first *Missed
+	miss := func(d Device, why string) {
+		if first == nil {
+			first = &Missed{why}
+		}
+		msg := fmt.Sprintf("%s: %s", s, why)
+		if d.Label != "" {
+			msg = fmt.Sprintf("%s: %s: %s", s, d.Label, why)
+		}
+		p.Rec.Event(slog.LevelWarn, "missed", d.Label, msg, map[string]any{"step": step, "device": d.Label})
+		done[doneKey(d.Label, s.Key())] = true // nothing more to wait for at this step
+	}
+	commit := func(d Device, pt analysis.Point) error {
+		pt.Device = d.Label
+		if err := p.Rec.Point(pt); err != nil {
+			return err
+		}
+		done[doneKey(d.Label, s.Key())] = true
+		*points++
+		return nil
+	}
 	for attempt := 0; ; attempt++ {
+		pending := p.pending(s, done)
+		if len(pending) == 0 {
+			return first, nil
+		}
 		if err := p.approach(ctx, s, attempt > 0); err != nil {
-			return analysis.Point{}, err
+			return first, err
 		}
 		changed := p.Clock.Now()
 		hold := p.Settings.Hold
@@ -364,13 +412,22 @@ func (p *Procedure) capture(ctx context.Context, s Step) (analysis.Point, error)
 		}
 		// The hold is a wait before reading: only samples taken after it
 		// can enter a settling window.
-		p.Ref.Restart(changed.Add(hold), target, true)
-		p.Dev.Restart(changed.Add(hold), 0, false)
+		counted := changed.Add(hold)
+		p.Ref.Restart(counted, target, true)
+		var polled, dials []Device
+		for _, d := range pending {
+			if d.Dial != nil {
+				dials = append(dials, d)
+				continue
+			}
+			d.Inst.Restart(counted, 0, false)
+			polled = append(polled, d)
+		}
 		deadline := changed.Add(p.Settings.Timeout + hold)
-		retry := false
-		for !retry {
+		retry, ready := false, false
+		for !retry && (len(polled) > 0 || !ready) {
 			if err := p.sleep(ctx, p.Tick); err != nil {
-				return analysis.Point{}, err
+				return first, err
 			}
 			rs := p.Ref.State()
 			if wrongSide(rs.Window, target, p.band(), up) && s.PointKind == analysis.Measurement {
@@ -383,27 +440,87 @@ func (p *Procedure) capture(ctx context.Context, s Step) (analysis.Point, error)
 				note = "approached from the wrong side"
 			}
 			now := p.Clock.Now()
-			if now.Sub(changed) >= hold && rs.Settled && rs.Live(now, p.Tick) && (s.PointKind != analysis.Measurement || p.reached(ctx)) {
-				if p.Dial != nil {
-					return p.captureDial(ctx, s, note)
+			ready = now.Sub(changed) >= hold && rs.Settled && rs.Live(now, p.Tick) && (s.PointKind != analysis.Measurement || p.reached(ctx))
+			if ready {
+				var left []Device
+				for _, d := range polled {
+					ds := d.Inst.State()
+					if poll.Paired(rs, ds, now, p.Tick) {
+						if err := commit(d, analysis.Point{Cycle: s.Cycle, Direction: s.Direction, Kind: s.PointKind, Index: s.Index,
+							Nominal: target, Reference: rs.Window, DUT: ds.Window, Note: note}); err != nil {
+							return first, err
+						}
+						continue
+					}
+					// A device whose link is down while the reference is
+					// ready and the others are served does not hold up the run.
+					if down(ds, counted) && len(polled) > 1 && othersDone(polled, d, done, s) {
+						miss(d, "no reading from it: "+ds.LastErr)
+						continue
+					}
+					left = append(left, d)
 				}
-				ds := p.Dev.State()
-				if poll.Paired(rs, ds, now, p.Tick) {
-					return analysis.Point{Cycle: s.Cycle, Direction: s.Direction, Kind: s.PointKind, Index: s.Index,
-						Nominal: target, Reference: rs.Window, DUT: ds.Window, Note: note}, nil
-				}
+				polled = left
 			}
 			if now.After(deadline) {
-				why := "the reference did not settle"
-				if rs.Settled {
-					why = "the device under test did not settle: " + p.Dev.State().Why
-				} else if rs.Why != "" {
-					why += ": " + rs.Why
+				for _, d := range polled {
+					why := "the reference did not settle"
+					if rs.Settled {
+						why = d.name() + " did not settle: " + orDown(d.Inst.State())
+					} else if rs.Why != "" {
+						why += ": " + rs.Why
+					}
+					miss(d, fmt.Sprintf("not settled within %s (%s)", p.Settings.Timeout, why))
 				}
-				return analysis.Point{}, &Missed{fmt.Sprintf("not settled within %s (%s)", p.Settings.Timeout, why)}
+				polled = nil
+				if !ready {
+					for _, d := range dials {
+						miss(d, fmt.Sprintf("the reference did not settle within %s", p.Settings.Timeout))
+					}
+					return first, nil
+				}
 			}
 		}
+		if retry {
+			continue
+		}
+		for _, d := range dials {
+			pt, err := p.captureDial(ctx, s, d, note)
+			var m *Missed
+			if errors.As(err, &m) {
+				miss(d, m.Why)
+				continue
+			}
+			if err != nil {
+				return first, err
+			}
+			if err := commit(d, pt); err != nil {
+				return first, err
+			}
+		}
+		return first, nil
 	}
+}
+
+// down says whether an instrument has given no good reading since from.
+func down(st poll.State, from time.Time) bool {
+	return st.LastErr != "" && st.Last.Time.Before(from)
+}
+
+func othersDone(polled []Device, d Device, done map[string]bool, s Step) bool {
+	for _, o := range polled {
+		if o.Label != d.Label && !done[doneKey(o.Label, s.Key())] {
+			return false
+		}
+	}
+	return true
+}
+
+func orDown(st poll.State) string {
+	if st.LastErr != "" {
+		return st.LastErr
+	}
+	return st.Why
 }
 
 func side(up bool) string {

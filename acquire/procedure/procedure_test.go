@@ -209,7 +209,7 @@ func newFixture(t *testing.T, ctx context.Context, devNoise float64, edit func(*
 		Steps: Plan(planOf([]float64{0, 8 * bar, 16 * bar}, 1), 0),
 		Settings: Settings{LowerPa: 0, UpperPa: 16 * bar, ResolutionPa: 0.001 * bar, Hold: 2 * time.Second, TopHold: 5 * time.Second,
 			ExerciseHold: 5 * time.Second, Timeout: 60 * time.Second, OnTimeout: Skip, Compare: SetByReference},
-		Source: f.rig, Ref: ref, Dev: dev, Rec: f.rec, Gate: f.gate, Clock: clock.Wall{}, Tick: 100 * time.Millisecond,
+		Source: f.rig, Ref: ref, Devices: []Device{{Inst: dev}}, Rec: f.rec, Gate: f.gate, Clock: clock.Wall{}, Tick: 100 * time.Millisecond,
 	}
 	return f
 }

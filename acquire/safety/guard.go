@@ -218,7 +218,8 @@ func (g *Guard) handleTrip(ctx context.Context) {
 	}
 	wait := 100 * time.Millisecond
 	for attempt := 1; ; attempt++ {
-		vctx, cancel := context.WithTimeout(ctx, g.opt.VentTimeout)
+		// The vent must go out even when the daemon is shutting down.
+		vctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), g.opt.VentTimeout)
 		err := g.src.Vent(vctx)
 		cancel()
 		if err == nil {

@@ -20,7 +20,7 @@ type pointRecord struct {
 	Point  analysis.Point `json:"point"`
 }
 
-// pointKey is deterministic in (cycle, kind, direction, index), so an engine
+// pointKey is deterministic in (cycle, kind, direction, index, device), so an engine
 // that restarts and captures the same step again finds the earlier point.
 // Strings are length-prefixed so no two field combinations share a key.
 func pointKey(p analysis.Point) ([]byte, error) {
@@ -34,13 +34,19 @@ func pointKey(p analysis.Point) ([]byte, error) {
 		return nil, bad("index out of range")
 	case p.Kind == "":
 		return nil, bad("kind is empty")
-	case len(p.Kind) > 255 || len(p.Direction) > 255:
-		return nil, bad("kind or direction longer than 255 bytes")
+	case len(p.Kind) > 255 || len(p.Direction) > 255 || len(p.Device) > 255:
+		return nil, bad("kind, direction or device longer than 255 bytes")
 	}
 	k := binary.BigEndian.AppendUint32(nil, uint32(p.Cycle))
 	k = append(append(k, byte(len(p.Kind))), p.Kind...)
 	k = append(append(k, byte(len(p.Direction))), p.Direction...)
-	return binary.BigEndian.AppendUint32(k, uint32(p.Index)), nil
+	k = binary.BigEndian.AppendUint32(k, uint32(p.Index))
+	// Several devices in one run: the device is part of the identity. A
+	// point of a run with one device has no suffix, as before.
+	if p.Device != "" {
+		k = append(append(k, byte(len(p.Device))), p.Device...)
+	}
+	return k, nil
 }
 
 // AddPoint commits a captured point before it returns. The point's identity
@@ -178,8 +184,16 @@ func pointName(k []byte) string {
 	c := field(4)
 	kind, dir := str(), str()
 	i := field(4)
+	dev := ""
+	if len(r) > 0 {
+		dev = str()
+	}
 	if c == nil || i == nil || len(r) != 0 {
 		return fmt.Sprintf("key %x", k)
 	}
-	return fmt.Sprintf("cycle %d %s %s index %d", binary.BigEndian.Uint32(c), dir, kind, binary.BigEndian.Uint32(i))
+	name := fmt.Sprintf("cycle %d %s %s index %d", binary.BigEndian.Uint32(c), dir, kind, binary.BigEndian.Uint32(i))
+	if dev != "" {
+		name += " of " + dev
+	}
+	return name
 }

@@ -33,13 +33,50 @@ type Run struct {
 	// Procedure is the resolved procedure the run followed, so that its
 	// planned points can be told from the captured ones.
 	Procedure config.Procedure `json:"procedure"`
+	// Devices describes each device under test when the run calibrates
+	// several at once (their points carry the instrument's name); empty
+	// for a run with one, which the fields above describe.
+	Devices []DeviceRecord `json:"devices,omitempty"`
+}
+
+// DeviceRecord is the frozen description of one of several devices.
+type DeviceRecord struct {
+	Instrument string             `json:"instrument"`
+	Device     analysis.Device    `json:"device"`
+	Reference  analysis.Reference `json:"reference"` // with this device's head correction
+	Info       report.Info        `json:"info"`
+	Unit       string             `json:"unit"`
+}
+
+// ForDevice is the record of one device of the run, as a run of its own:
+// instrument "" (or the only device) gives the run's own record.
+func (r Run) ForDevice(instrument string) (Run, bool) {
+	if len(r.Devices) == 0 {
+		return r, instrument == ""
+	}
+	for _, d := range r.Devices {
+		if d.Instrument == instrument {
+			one := r
+			one.Device, one.Reference, one.Info, one.Unit, one.Devices = d.Device, d.Reference, d.Info, d.Unit, nil
+			return one, true
+		}
+	}
+	return Run{}, false
 }
 
 // Of builds the record of a run from a loaded configuration.
 func Of(cfg *config.Config) Run {
 	dev, ref, opt := AnalysisInputs(cfg)
-	return Run{Version: Version, Device: dev, Reference: ref, Options: opt, Info: Info(cfg), Unit: cfg.Device.Unit,
+	run := Run{Version: Version, Device: dev, Reference: ref, Options: opt, Info: Info(cfg), Unit: cfg.Device.Unit,
 		Procedure: cfg.Procedure}
+	if len(cfg.Devices) > 1 {
+		for _, d := range cfg.Devices {
+			dev, ref, _ := inputsFor(cfg, d.Device, d.HeightM)
+			info := infoFor(cfg, d.Device)
+			run.Devices = append(run.Devices, DeviceRecord{Instrument: d.Instrument, Device: dev, Reference: ref, Info: info, Unit: d.Device.Unit})
+		}
+	}
+	return run
 }
 
 // Encode is the stored form of the record.
@@ -77,16 +114,27 @@ func (r Run) ReportInfo() report.Info {
 // so that a resumed run can tell whether the bench still holds the same
 // instruments.
 func Identity(cfg *config.Config) string {
-	d, r := cfg.Device, cfg.Reference
+	r := cfg.Reference
 	h := sha256.New()
-	fmt.Fprintf(h, "device|%s|%s|%s|%s|%s|%s|%s\n", d.ID, d.Manufacturer, d.Model, d.Serial, d.Lower, d.Upper, d.Unit)
+	devices := []config.Device{cfg.Device}
+	if len(cfg.Devices) > 1 {
+		devices = devices[:0]
+		for _, d := range cfg.Devices {
+			devices = append(devices, d.Device)
+		}
+	}
+	for _, d := range devices {
+		fmt.Fprintf(h, "device|%s|%s|%s|%s|%s|%s|%s\n", d.ID, d.Manufacturer, d.Model, d.Serial, d.Lower, d.Upper, d.Unit)
+	}
 	fmt.Fprintf(h, "reference|%s|%s|%s|%s\n", r.ID, r.Model, r.Serial, r.Certificate)
 	return hex.EncodeToString(h.Sum(nil)[:12])
 }
 
 // Info describes the bench of a configuration for a report.
-func Info(cfg *config.Config) report.Info {
-	d, r := cfg.Device, cfg.Reference
+func Info(cfg *config.Config) report.Info { return infoFor(cfg, cfg.Device) }
+
+func infoFor(cfg *config.Config, d config.Device) report.Info {
+	r := cfg.Reference
 	info := report.Info{
 		Device:    report.DeviceIdentity{ID: d.ID, Manufacturer: d.Manufacturer, Model: d.Model, Serial: d.Serial},
 		Reference: report.ReferenceIdentity{ID: r.ID, Model: r.Model, Serial: r.Serial, Certificate: r.Certificate, Expires: r.ExpiresAt},
@@ -104,7 +152,11 @@ func Info(cfg *config.Config) report.Info {
 // AnalysisInputs turns the configuration into the analysis's descriptions of
 // the device, the reference and the evaluation options.
 func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, analysis.Options) {
-	d := cfg.Device
+	return inputsFor(cfg, cfg.Device, cfg.Head.DeviceHeight)
+}
+
+// inputsFor is AnalysisInputs for one device under test mounted at height.
+func inputsFor(cfg *config.Config, d config.Device, height float64) (analysis.Device, analysis.Reference, analysis.Options) {
 	dev := analysis.Device{LowerPa: d.LowerPa, UpperPa: d.UpperPa, ResolutionPa: d.ResolutionPa, Unit: d.Unit,
 		TempCoefficient: d.TemperatureCoefficient, ReferenceTemperatureC: d.ReferenceTemperature}
 	switch {
@@ -128,10 +180,10 @@ func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, an
 		StabilityFloorPa:          cfg.Reference.StabilityFloorPa,
 		ResolutionPa:              cfg.Reference.ResolutionPa,
 	}
-	if h.ReferenceHeight != h.DeviceHeight || h.HeightUncertainty != 0 || h.DensityUncertainty != 0 {
+	if h.ReferenceHeight != height || h.HeightUncertainty != 0 || h.DensityUncertainty != 0 {
 		ref.Head = analysis.HeadCorrection{
 			FluidDensity: h.FluidDensity, AirDensity: h.AmbientDensity, Gravity: h.Gravity,
-			ZRef: h.ReferenceHeight, ZDUT: h.DeviceHeight,
+			ZRef: h.ReferenceHeight, ZDUT: height,
 			HeightHalfWidth: h.HeightUncertainty, DensityHalfWidth: h.DensityUncertainty,
 		}
 		if h.GasMolarMass > 0 {
