@@ -333,15 +333,20 @@ func TestPointKeysDistinct(t *testing.T) {
 		for _, k := range []analysis.PointKind{"a", "ab", "b", "measure"} {
 			for _, d := range []analysis.Direction{"", "b", "ba", "up"} {
 				for _, i := range []int{0, 1, 65536} {
-					p := analysis.Point{Cycle: c, Kind: k, Direction: d, Index: i}
-					key, err := pointKey(p)
-					if err != nil {
-						t.Fatal(err)
+					for _, dev := range []string{"", "a", "pt-1", "pt-10"} {
+						p := analysis.Point{Cycle: c, Kind: k, Direction: d, Index: i, Device: dev}
+						key, err := pointKey(p)
+						if err != nil {
+							t.Fatal(err)
+						}
+						if q, dup := seen[string(key)]; dup {
+							t.Fatalf("%+v and %+v share key %x", p, q, key)
+						}
+						if name := pointName(key); dev != "" && !strings.HasSuffix(name, " of "+dev) {
+							t.Errorf("key of %+v reads back as %q", p, name)
+						}
+						seen[string(key)] = p
 					}
-					if q, dup := seen[string(key)]; dup {
-						t.Fatalf("%+v and %+v share key %x", p, q, key)
-					}
-					seen[string(key)] = p
 				}
 			}
 		}
