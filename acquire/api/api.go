@@ -103,8 +103,10 @@ type StopRequest struct {
 
 // Entry is an operator's reading of an analog dial at the current step.
 type Entry struct {
-	Value float64 `json:"value"`
-	Unit  string  `json:"unit"` // a pressure unit symbol, e.g. "bar", "kPa", "psi"
+	// Device names the dial when the run has several; empty for the only one.
+	Device string  `json:"device,omitempty"`
+	Value  float64 `json:"value"`
+	Unit   string  `json:"unit"` // a pressure unit symbol, e.g. "bar", "kPa", "psi"
 	// Confirm takes an entry that the daemon found implausible (outside
 	// the range, far from the target) after the operator checked it.
 	Confirm bool `json:"confirm,omitempty"`
@@ -165,6 +167,10 @@ type InstrumentInfo struct {
 	LastAt    time.Time         `json:"last_at,omitzero"`
 	Settled   bool              `json:"settled"`
 	LastError string            `json:"last_error,omitempty"`
+	// ReadsPerSecond is the rate it actually gets (several devices on one
+	// line share it), next to what its poll interval asks.
+	ReadsPerSecond float64 `json:"reads_per_second,omitempty"`
+	AskedPerSecond float64 `json:"asked_per_second,omitempty"`
 }
 
 // RunInfo describes a run in lists and status.

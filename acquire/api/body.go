@@ -127,6 +127,7 @@ func (r StartRequest) validate() error {
 
 // entryBody tells a missing value from a reading of zero.
 type entryBody struct {
+	Device  string   `json:"device"`
 	Value   *float64 `json:"value"`
 	Unit    string   `json:"unit"`
 	Confirm bool     `json:"confirm"`
@@ -147,7 +148,7 @@ func (b entryBody) entry() (Entry, error) {
 	if len(errs) > 0 {
 		return Entry{}, errors.Join(errs...)
 	}
-	return Entry{Value: *b.Value, Unit: b.Unit, Confirm: b.Confirm}, nil
+	return Entry{Device: b.Device, Value: *b.Value, Unit: b.Unit, Confirm: b.Confirm}, nil
 }
 
 func writeJSON(w http.ResponseWriter, status int, v any) {

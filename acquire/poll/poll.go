@@ -263,6 +263,11 @@ type State struct {
 	Waiting string `json:"waiting,omitempty"`
 	// WaitingForPa is the target of the step waiting for an entry.
 	WaitingForPa float64 `json:"waiting_for_pa,omitempty"`
+	// ReadsPerSecond is the rate the instrument actually reads at (on a
+	// shared line it can be less than its poll interval asks), when its
+	// driver measures it; Asked is what the poll interval asks.
+	ReadsPerSecond float64 `json:"reads_per_second,omitempty"`
+	Asked          float64 `json:"asked_per_second,omitempty"`
 }
 
 // State returns a snapshot.
@@ -278,6 +283,12 @@ func (p *Poller) State() State {
 		Settled: st.Settled, Why: st.Why, Window: st.Window, Beat: p.beat, Every: max(p.interval, p.cycle), Waiting: p.waiting, WaitingForPa: p.wantPa}
 	if p.lastErr != nil {
 		s.LastErr = p.lastErr.Error()
+	}
+	if rr, ok := p.gauge.(drivers.RateReporter); ok {
+		s.ReadsPerSecond = rr.ReadRate().PerSecond
+	}
+	if p.interval > 0 {
+		s.Asked = float64(time.Second) / float64(p.interval)
 	}
 	return s
 }

@@ -272,7 +272,7 @@ func (c *engineControl) Status(context.Context) api.Status {
 		out.Instruments = append(out.Instruments, api.InstrumentInfo{
 			Name: p.Name, Role: roles[p.Name], Up: up,
 			Reads: p.Reads, Errors: p.Failures, LastPa: p.Last.Pa, LastAt: p.Last.Time,
-			Settled: p.Settled, LastError: p.LastErr,
+			Settled: p.Settled, LastError: p.LastErr, ReadsPerSecond: p.ReadsPerSecond, AskedPerSecond: p.Asked,
 		})
 	}
 	return out
@@ -305,7 +305,7 @@ func conflict(err error) error {
 }
 
 func (c *engineControl) Enter(_ context.Context, e api.Entry) error {
-	if err := c.eng.Enter(acquire.Entry{Value: e.Value, Unit: e.Unit, Confirmed: e.Confirm}); err != nil {
+	if err := c.eng.Enter(acquire.Entry{Device: e.Device, Value: e.Value, Unit: e.Unit, Confirmed: e.Confirm}); err != nil {
 		// The API has checked the value and unit; what is left is the
 		// bench's state: no step waits, an entry needs confirming, or this
 		// bench takes no operator readings.
