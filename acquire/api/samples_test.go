@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"net/http/httptest"
 	"net/url"
 	"strings"
 	"testing"
@@ -198,4 +199,35 @@ func BenchmarkSamplesDay(b *testing.B) {
 			b.Fatalf("%d buckets, %v", len(got.Buckets), err)
 		}
 	}
+}
+
+// FuzzSampleQuery feeds the samples call's query parser any query string:
+// it never panics, and what it accepts is a usable request.
+func FuzzSampleQuery(f *testing.F) {
+	for _, seed := range []string{
+		"instrument=ref&buckets=600",
+		"instrument=ref&from=2026-03-01T22:00:00Z&to=2026-03-02T06:00:00.5Z",
+		"instrument=&buckets=-1&from=x",
+		"instrument=dut&buckets=99999999999999999999",
+		"buckets=1e3&to=2026-03-01T22:00:00+01:00",
+	} {
+		f.Add(seed)
+	}
+	f.Fuzz(func(t *testing.T, raw string) {
+		r := httptest.NewRequest("GET", "/api/v1/runs/r1/samples", nil)
+		r.URL.RawQuery = raw
+		q, err := parseSampleQuery(r)
+		if err != nil {
+			if !errors.Is(err, ErrInvalid) {
+				t.Fatalf("%q: refusal %v is not marked invalid (400)", raw, err)
+			}
+			return
+		}
+		if q.instrument == "" || q.buckets < 1 || q.buckets > store.MaxBuckets {
+			t.Fatalf("%q accepted as %+v", raw, q)
+		}
+		if !q.from.IsZero() && !q.to.IsZero() && q.to.Before(q.from) {
+			t.Fatalf("%q accepted with to before from: %+v", raw, q)
+		}
+	})
 }

@@ -239,6 +239,37 @@ func TestLivePageFollowsARun(t *testing.T) {
 	d = startDaemon(t, ctx, bin, cfgPath, filepath.Join(dir, "second.log"))
 	waitReady(t, ctx, c)
 	waitPage("the page follows the daemon again", `document.getElementById("link").textContent === "live"`, 15*time.Second)
+	// A page opened now, mid-run, shows the last minutes and the points
+	// so far at once, from the store.
+	late, cancelLate := chromedp.NewContext(tab)
+	lateConsole := &pageConsole{}
+	run2 := func(what string, actions ...chromedp.Action[chromedp.Void]) {
+		t.Helper()
+		if err := chromedp.Do(late, actions...); err != nil {
+			t.Fatalf("%s: %v", what, err)
+		}
+	}
+	run2("open a second tab", chromedp.Navigate("about:blank"))
+	lateConsole.follow(late)
+	run2("open the page mid-run", chromedp.Navigate(url), chromedp.WaitVisible(chromedp.CSS("#instruments tbody tr")))
+	deadline := time.Now().Add(5 * time.Second)
+	for {
+		traced, _ := chromedp.Run(late, chromedp.Evaluate[int](`traceChart ? traceChart.data[0].length : 0`))
+		rows, _ := chromedp.Run(late, chromedp.Evaluate[int](`document.querySelectorAll('#points tbody tr[data-key]').length`))
+		if traced > 30 && rows >= len(seen) {
+			t.Logf("a page opened mid-run: %d trace samples, %d points at once", traced, rows)
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("a page opened mid-run shows %d trace samples and %d points (want > 30 and %d)", traced, rows, len(seen))
+		}
+		time.Sleep(100 * time.Millisecond)
+	}
+	if errs := lateConsole.all(); len(errs) > 0 {
+		t.Fatalf("the page opened mid-run has console errors:\n%s", strings.Join(errs, "\n"))
+	}
+	cancelLate()
+
 	for {
 		ev := nextPoint(60 * time.Second)
 		if seen[pointKeyOf(t, ev)] {

@@ -33,8 +33,7 @@ const state = {
   result: null,         // the report's result once it could be worked out
   reportAt: 0,
   overviewAt: 0,
-  events: [],
-  source: null,
+  latestKey: "",        // the point captured last while the page watched
   topPa: 1e5,           // the largest pressure seen, for the number of decimals
 };
 
@@ -120,7 +119,8 @@ function pointKey(p) { return [p.cycle, p.direction, p.kind, p.index].join("/");
 function addPoint(p, fresh) {
   const key = pointKey(p);
   if (state.points.has(key)) return false; // a resumed stream or a refetch: already shown
-  state.points.set(key, { point: p, fresh });
+  state.points.set(key, p);
+  if (fresh) state.latestKey = key;
   seenPa(p.nominal_pa); seenPa(p.reference.mean_pa);
   while (state.points.size > POINTS_MAX) state.points.delete(state.points.keys().next().value);
   return true;
@@ -130,10 +130,12 @@ function renderPoints() {
   const body = $("points").querySelector("tbody");
   const rows = [];
   let n = 0;
-  for (const { point: p, fresh } of state.points.values()) {
+  // In capture order, whichever way a point arrived (stream or refetch).
+  const byTime = [...state.points].sort((x, y) => Date.parse(x[1].reference.end) - Date.parse(y[1].reference.end));
+  for (const [key, p] of byTime) {
     n++;
     const err = p.dut.mean_pa - p.reference.mean_pa;
-    const tr = el("tr", { "data-key": pointKey(p), class: fresh ? "fresh" : "" },
+    const tr = el("tr", { "data-key": key, class: key === state.latestKey ? "fresh" : "" },
       el("td", {}, n), el("td", {}, p.cycle), el("td", {}, seriesName(p)),
       el("td", { class: "num" }, fmt(p.nominal_pa)), el("td", { class: "num" }, fmt(p.reference.mean_pa)),
       el("td", { class: "num" }, fmt(p.dut.mean_pa)), el("td", { class: "num" }, fmt(err)),
@@ -181,8 +183,6 @@ function renderPlan() {
 
 function onEvent(ev) {
   state.lastEventId = ev.id;
-  state.events.push(ev);
-  if (state.events.length > EVENTS_MAX) state.events.splice(0, state.events.length - EVENTS_MAX);
   const li = el("li", { value: ev.id, class: String(ev.level) }, clock(ev.time) + "  " + ev.message);
   const list = $("events");
   list.prepend(li);
@@ -191,8 +191,12 @@ function onEvent(ev) {
   if (!ev.run) return;
   const run = runName(ev.run);
   if (run !== state.run) {
+    // Run ids grow: an event of a later run means a new run began; one of
+    // an earlier run (from the tail read at opening) is for the log only.
+    if (state.run && run < state.run) return;
     if (ev.type !== "state" && ev.type !== "step") return;
-    switchRun(run); // a new run began
+    switchRun(run);
+    refetchRun();
   }
   const d = ev.data || {};
   switch (ev.type) {
@@ -239,7 +243,6 @@ function switchRun(id) {
 function follow() {
   const url = state.lastEventId === null ? "/api/v1/events?tail=200" : "/api/v1/events?since=" + state.lastEventId;
   const es = new EventSource(url);
-  state.source = es;
   es.onopen = () => { setLink(true); refetchRun(); };
   es.onmessage = (m) => {
     let ev;
@@ -489,7 +492,7 @@ function drawTraceMarks(u) {
   ctx.save();
   ctx.fillStyle = "rgba(47,125,79,0.15)";
   const [x0, x1] = [u.scales.x.min, u.scales.x.max];
-  for (const { point: p } of state.points.values()) {
+  for (const p of state.points.values()) {
     const a = Date.parse(p.reference.start) / 1000, b = Date.parse(p.reference.end) / 1000;
     if (!(b >= x0 && a <= x1)) continue;
     const pa = u.valToPos(Math.max(a, x0), "x", true), pb = u.valToPos(Math.min(b, x1), "x", true);
@@ -508,7 +511,7 @@ function drawTraceMarks(u) {
 // errorData puts the points in ascending reference order, rising and
 // falling as two series, and the permissible error per nominal as bands.
 function errorData() {
-  const pts = [...state.points.values()].map((v) => v.point).filter((p) => p.kind === "measure")
+  const pts = [...state.points.values()].filter((p) => p.kind === "measure")
     .sort((a, b) => a.reference.mean_pa - b.reference.mean_pa);
   const xs = pts.map((p) => toUnit(p.reference.mean_pa));
   const err = (p) => toUnit(p.dut.mean_pa - p.reference.mean_pa);
