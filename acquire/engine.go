@@ -116,6 +116,7 @@ type Engine struct {
 
 	committedPoints atomic.Uint64
 	storeFault      atomic.Pointer[string] // why the store cannot write, nil when it can
+	faultAt         atomic.Int64           // wall time (unix ns) the fault was seen
 
 	serveCtx context.Context
 	ready    chan struct{} // closed once Serve has resumed any unfinished run

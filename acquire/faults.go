@@ -51,6 +51,7 @@ func (e *Engine) storeTrouble(err error) {
 	if !e.storeFault.CompareAndSwap(nil, &msg) {
 		return
 	}
+	e.faultAt.Store(time.Now().UnixNano())
 	e.log.Error("the store cannot write", "err", err)
 	// Hold the procedure at once, before the guard's report arrives: the
 	// step that could not be stored is done again after the resume.
@@ -83,7 +84,10 @@ func (e *Engine) watchStore(ctx context.Context) {
 			e.storeTrouble(ws.Err)
 			continue
 		}
-		if e.storeFault.Load() == nil || ws.Pending > 0 || time.Since(probe) < 2*time.Second {
+		// A fault is probed again no sooner than two seconds after it was
+		// seen, and then every two seconds.
+		if e.storeFault.Load() == nil || ws.Pending > 0 || time.Since(probe) < 2*time.Second ||
+			time.Since(time.Unix(0, e.faultAt.Load())) < 2*time.Second {
 			continue
 		}
 		// Try a real write: an event saying the store works again.
