@@ -2,52 +2,62 @@ package main
 
 import (
 	"fmt"
-	"math"
 	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"plateau/acquire/api"
-	"plateau/analysis/units"
 )
 
 func init() { register(newEnterCmd) }
 
 func newEnterCmd() *cobra.Command {
+	var confirm bool
 	cmd := &cobra.Command{
 		Use:   "enter VALUE [UNIT]",
 		Short: "Enter the reading of an analog dial for the current step",
 		Long: `enter hands the daemon the value you read off the dial of the device under
 test when the run asks for it ('plateau tail' shows the request). Without a
-unit the reading is taken in the device's configured unit.`,
+unit the reading is taken in the device's configured unit. A decimal comma
+(4,02) and negative readings (-0.1) are fine.
+
+The daemon refuses a reading when no step waits for one, and a reading that
+looks wrong (outside the dial's range, or far from the step's target) until
+you give it again with --confirm.`,
 		Example: `  plateau enter 4.02
-  plateau enter 4.02 bar
-  plateau enter 58.5psi`,
-		Args: cobra.RangeArgs(1, 2),
+  plateau enter 4,02 bar
+  plateau enter -0.1
+  plateau enter 58.5psi
+  plateau enter --confirm 17.2`,
+		Args: cobra.ArbitraryArgs, // counted in RunE, once flags are parsed
+		// Flags are parsed in RunE, after the readings are set aside:
+		// "-0.1" is a reading, not a flag.
+		DisableFlagParsing: true,
 	}
 	df := addDaemonFlags(cmd)
-	cmd.RunE = func(cmd *cobra.Command, args []string) error {
-		c, err := df.client(cmd)
+	cmd.Flags().BoolVar(&confirm, "confirm", false, "take a reading the daemon found implausible")
+	cmd.RunE = func(cmd *cobra.Command, raw []string) error {
+		args, flags := splitReadings(raw)
+		cmd.DisableFlagParsing = false
+		if err := cmd.ParseFlags(flags); err != nil {
+			return fmt.Errorf("enter: %w", err)
+		}
+		if help, _ := cmd.Flags().GetBool("help"); help {
+			return cmd.Help()
+		}
+		args = append(args, cmd.Flags().Args()...)
+		if len(args) < 1 || len(args) > 2 {
+			return fmt.Errorf("enter: give the reading and, if it is not in the device's unit, the unit: plateau enter 4.02 bar")
+		}
+		text := strings.Join(args, " ")
+		e, err := parseDialEntry(text)
 		if err != nil {
 			return err
 		}
-		text := strings.Join(args, " ")
-		var e api.Entry
-		if v, err := strconv.ParseFloat(strings.TrimSpace(text), 64); err == nil {
-			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return fmt.Errorf("reading %q is not a finite number", text)
-			}
-			e.Value = v // a bare number: in the device's unit, asked below
-		} else {
-			q, err := units.ParseQuantity(text)
-			if err != nil {
-				return fmt.Errorf("reading %q: %w", text, err)
-			}
-			if q.Percent {
-				return fmt.Errorf("reading %q: give a pressure as the dial shows it, not a percentage", text)
-			}
-			e = api.Entry{Value: q.Value, Unit: q.Unit.Symbol}
+		c, err := df.client(cmd)
+		if err != nil {
+			return err
 		}
 		if e.Unit == "" {
 			st, err := c.Status(cmd.Context())
@@ -55,15 +65,35 @@ unit the reading is taken in the device's configured unit.`,
 				return err
 			}
 			if st.Unit == "" {
-				return fmt.Errorf("reading %q has no unit and the device has none configured: add one, e.g. plateau enter %s bar", args[0], args[0])
+				return fmt.Errorf("reading %q has no unit and the device has none configured: add one, e.g. plateau enter %s bar", text, args[0])
 			}
 			e.Unit = st.Unit
 		}
-		if err := c.Enter(cmd.Context(), e); err != nil {
+		if err := c.Enter(cmd.Context(), api.Entry{Value: e.Value, Unit: e.Unit, Confirm: confirm}); err != nil {
+			if api.IsStatus(err, 409) && !confirm && strings.Contains(err.Error(), "confirm") {
+				return fmt.Errorf("%w\nto take it as it is: plateau enter --confirm %s", err, text)
+			}
 			return err
 		}
-		fmt.Fprintf(cmd.OutOrStdout(), "entered %g %s\n", e.Value, e.Unit)
+		fmt.Fprintf(cmd.OutOrStdout(), "taken: %s %s\n", strconv.FormatFloat(e.Value, 'f', -1, 64), e.Unit)
 		return nil
 	}
 	return cmd
+}
+
+// splitReadings sets aside the arguments that are readings (numbers,
+// negative ones too) from the flags.
+func splitReadings(raw []string) (readings, flags []string) {
+	for i := 0; i < len(raw); i++ {
+		a := raw[i]
+		switch {
+		case a == "--":
+			return append(readings, raw[i+1:]...), flags
+		case len(a) > 1 && a[0] == '-' && (a[1] >= '0' && a[1] <= '9' || a[1] == '.' || a[1] == ','):
+			readings = append(readings, a)
+		default:
+			flags = append(flags, a)
+		}
+	}
+	return readings, flags
 }

@@ -13,7 +13,7 @@ import (
 	"github.com/spf13/cobra"
 	"gonum.org/v1/gonum/stat"
 
-	"plateau/analysis/units"
+	"plateau/analysis/readout"
 	"plateau/config"
 	"plateau/drivers"
 	_ "plateau/drivers/all"
@@ -27,6 +27,7 @@ func newProbeCmd() *cobra.Command {
 		reads    int
 		interval time.Duration
 		verbose  bool
+		unit     string
 	)
 	cmd := &cobra.Command{
 		Use:   "probe NAME",
@@ -58,9 +59,12 @@ reads: it never writes a setpoint. Use -v to log each request and reply.`,
 			if !cmd.Flags().Changed("interval") && inst.Poll > 0 {
 				interval = inst.Poll
 			}
-			show, err := units.Lookup(cfg.Device.Unit)
+			show, err := displayFor(cfg.Device, unit)
 			if err != nil {
-				show = units.Pascal
+				return err
+			}
+			if inst.Role == config.RoleReference {
+				show.res = cfg.Reference.ResolutionPa
 			}
 			level := slog.LevelWarn
 			if verbose {
@@ -83,6 +87,7 @@ reads: it never writes a setpoint. Use -v to log each request and reply.`,
 	cmd.Flags().IntVarP(&reads, "reads", "n", 10, "number of reads")
 	cmd.Flags().DurationVarP(&interval, "interval", "i", 0, "pause between reads (default: the instrument's poll interval)")
 	cmd.Flags().BoolVarP(&verbose, "verbose", "v", false, "log every request, raw reply and reconnect on stderr")
+	cmd.Flags().StringVar(&unit, "unit", "", "show readings in this unit (default: the device's)")
 	return cmd
 }
 
@@ -98,11 +103,11 @@ func findInstrument(cfg *config.Config, name string) (config.Instrument, error) 
 	return config.Instrument{}, fmt.Errorf("no instrument %q in %s (configured: %v)", name, cfg.File, names)
 }
 
-func probe(ctx context.Context, cmd *cobra.Command, g drivers.Gauge, reads int, interval time.Duration, show units.Unit) error {
+func probe(ctx context.Context, cmd *cobra.Command, g drivers.Gauge, reads int, interval time.Duration, show display) error {
 	out := cmd.OutOrStdout()
-	var values []float64
+	var values []float64 // Pa
 	failed := map[drivers.Kind]int{}
-	fmt.Fprintf(out, "%4s  %-12s  %21s  %21s  %s\n", "#", "time", "as read", "in "+show.Symbol, "raw words or reply line")
+	fmt.Fprintf(out, "%4s  %-12s  %21s  %21s  %s\n", "#", "time", "as read", "in "+show.unit.Symbol, "raw words or reply line")
 	start := time.Now()
 	for i := 1; i <= reads; i++ {
 		if i > 1 && interval > 0 {
@@ -120,10 +125,9 @@ func probe(ctx context.Context, cmd *cobra.Command, g drivers.Gauge, reads int, 
 			fmt.Fprintf(out, "%4d  %s  failed: %v\n", i, time.Now().Format("15:04:05.000"), err)
 			continue
 		}
-		v := show.FromPa(r.Pa)
-		values = append(values, v)
-		fmt.Fprintf(out, "%4d  %s  %14.7g %-6s  %14.7g %-6s  %s\n", i, r.Time.Format("15:04:05.000"),
-			r.Raw, r.RawUnit, v, show.Symbol, r.Wire)
+		values = append(values, r.Pa)
+		fmt.Fprintf(out, "%4d  %s  %14s %-6s  %14s %-6s  %s\n", i, r.Time.Format("15:04:05.000"),
+			readout.Plain(r.Raw, 0), r.RawUnit, show.one(r.Pa), show.unit.Symbol, r.Wire)
 	}
 	elapsed := time.Since(start)
 	attempts := len(values)
@@ -137,7 +141,8 @@ func probe(ctx context.Context, cmd *cobra.Command, g drivers.Gauge, reads int, 
 		if len(values) < 2 {
 			sd = 0
 		}
-		fmt.Fprintf(out, "mean %.6g %s, standard deviation %.3g %s\n", mean, show.Symbol, sd, show.Symbol)
+		fmt.Fprintf(out, "mean %s, standard deviation %s %s\n", readout.MeanWithUnit(mean, show.unit, show.res),
+			readout.Mean(sd, show.unit, show.res), show.unit.Symbol)
 	}
 	for k := drivers.Kind(0); k <= drivers.KindOverload; k++ {
 		if n := failed[k]; n > 0 {

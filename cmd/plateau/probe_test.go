@@ -38,6 +38,7 @@ func TestProbeLineInstrument(t *testing.T) {
 	}
 	cfg := strings.Replace(string(base), "    link: {kind: sim}\n    sim_part: reference\n    sim_via: modbus-tcp\n",
 		"    link: {kind: serial, address: "+slave.Name()+", timeout: 300ms}\n    unit: bar\n    line: {query: \"R?\"}\n", 1)
+	cfg = strings.Replace(cfg, "  id: SIM-REF\n", "  id: SIM-REF\n  resolution: 0.0001 bar\n", 1)
 	path := filepath.Join(t.TempDir(), "probe.yaml")
 	if err := os.WriteFile(path, []byte(cfg), 0o600); err != nil {
 		t.Fatal(err)
@@ -50,7 +51,7 @@ func TestProbeLineInstrument(t *testing.T) {
 	if err := root.Execute(); err != nil {
 		t.Fatalf("%v\n%s", err, out.String())
 	}
-	for _, want := range []string{"1.0002 bar", "3 of 5 reads good", "mean 1.0002 bar, standard deviation 0.0002 bar",
+	for _, want := range []string{"1.0002 bar", "3 of 5 reads good", "mean 1.00020 bar, standard deviation 0.00020 bar",
 		"failed (overload): 1", "failed (bad_reply): 1"} {
 		if !strings.Contains(out.String(), want) {
 			t.Errorf("missing %q in\n%s", want, out.String())

@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"os"
 	"os/signal"
+	"strings"
 	"syscall"
 	"time"
 
@@ -17,14 +18,13 @@ import (
 
 	"plateau/acquire"
 	"plateau/acquire/store"
-	"plateau/analysis/units"
 	"plateau/config"
 )
 
 func init() { register(newRunCmd) }
 
 func newRunCmd() *cobra.Command {
-	var label string
+	var label, output string
 	var quiet bool
 	cmd := &cobra.Command{
 		Use:   "run",
@@ -33,9 +33,29 @@ func newRunCmd() *cobra.Command {
 simulated rig when instruments use link kind "sim"), resumes an unfinished run
 or starts a new one, shows progress, and prints the result table at the end.
 It is the same engine that 'plateau serve' runs in the background. Ctrl-C
-leaves the run resumable.`,
+leaves the run resumable.
+
+When the device under test is a dial read by a person (link kind manual), run
+asks for each reading in the terminal: "set 4 bar, read the dial:". Type the
+value (4.05, 4,05 or -0.1, with a unit if it is not the device's), check it,
+and press Enter to take it, or type the right value over it first. A reading
+outside the dial's range or far from the step's target is taken only when
+you confirm it.
+
+With -o the report is written at the end, in the format of the file's
+extension (.html, .txt, .csv, .json).`,
+		Example: `  plateau run
+  plateau run --label WO-1182 -o WO-1182.html`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
+			format := ""
+			if output != "" {
+				f, err := reportFormat("", output)
+				if err != nil {
+					return err
+				}
+				format = f
+			}
 			cfg, err := config.Load(configPath)
 			if err != nil {
 				return err
@@ -45,20 +65,45 @@ leaves the run resumable.`,
 			if hasSource(cfg) {
 				fmt.Fprintln(cmd.ErrOrStderr(), safetyNotice)
 			}
-			_, res, err := runOnce(ctx, cfg, label, cmd.ErrOrStderr(), !quiet)
+			view := runView{progress: cmd.ErrOrStderr(), bar: !quiet, input: cmd.InOrStdin()}
+			id, res, err := runForeground(ctx, cfg, label, view)
 			if err != nil {
 				return err
 			}
-			return printResult(cmd.OutOrStdout(), res)
+			if err := printResult(cmd.OutOrStdout(), res); err != nil {
+				return err
+			}
+			if output == "" {
+				return nil
+			}
+			if err := writeWhole(output, func(w io.Writer) error { return renderReport(w, format, res) }); err != nil {
+				return fmt.Errorf("run %s finished, but its report: %w (write it again with: plateau report %s -o %s)", id, err, id, output)
+			}
+			fmt.Fprintf(cmd.ErrOrStderr(), "wrote %s\n", output)
+			return nil
 		},
 	}
 	cmd.Flags().StringVar(&label, "label", "", "a label for the run, e.g. the work order")
 	cmd.Flags().BoolVarP(&quiet, "quiet", "q", false, "no progress bar")
+	cmd.Flags().StringVarP(&output, "output", "o", "", "write the report to this file at the end (.html, .txt, .csv or .json)")
 	return cmd
+}
+
+// runView is how a foreground run talks to the person at the bench.
+type runView struct {
+	progress io.Writer // the progress bar and the dial prompts
+	bar      bool
+	input    io.Reader // dial readings typed by the operator; nil: none
 }
 
 // runOnce runs (or resumes) one calibration to its end and evaluates it.
 func runOnce(ctx context.Context, cfg *config.Config, label string, progress io.Writer, showBar bool) (store.RunID, *runResult, error) {
+	return runForeground(ctx, cfg, label, runView{progress: progress, bar: showBar})
+}
+
+// runForeground is runOnce with the operator's terminal: progress, and
+// the dial prompts when the device under test is read by a person.
+func runForeground(ctx context.Context, cfg *config.Config, label string, view runView) (store.RunID, *runResult, error) {
 	// The foreground run shows progress; the events are in the store and
 	// 'plateau tail' is not needed here, so library logs stay quiet.
 	log := slog.New(slog.DiscardHandler)
@@ -77,12 +122,28 @@ func runOnce(ctx context.Context, cfg *config.Config, label string, progress io.
 	if err != nil {
 		return 0, nil, err
 	}
-	done := make(chan struct{})
-	if showBar {
-		go showProgress(ctx, b.engine, cfg.Device.Unit, progress, done)
+	show, _ := displayFor(cfg.Device, "")
+	speed := 1.0
+	if b.rig != nil && cfg.Simulator.Speed > 0 {
+		speed = cfg.Simulator.Speed
 	}
+	if least, most, ok := runLength(cfg); ok {
+		fmt.Fprintf(view.progress, "run %s: %d steps, at least %s and at most %s (reaching each pressure comes on top)\n", id,
+			b.engine.Status().Steps, roundDuration(time.Duration(float64(least)/speed)), roundDuration(time.Duration(float64(most)/speed)))
+	}
+	watchCtx, stopWatch := context.WithCancel(ctx)
+	watched := make(chan struct{})
+	w := &runWatch{eng: b.engine, out: view.progress, show: show, est: newEstimator(cfg, speed)}
+	if view.bar {
+		w.bar = newBar(view.progress, b.engine.Status().TotalPoints)
+	}
+	if view.input != nil && readByPerson(cfg, b) {
+		w.prompt = &dialPrompt{bench: b.engine, lines: readLines(view.input), out: view.progress, show: show, poll: 200 * time.Millisecond}
+	}
+	go func() { w.follow(watchCtx); close(watched) }()
 	state, reason := b.engine.Wait(ctx)
-	close(done)
+	stopWatch()
+	<-watched
 	if ctx.Err() != nil {
 		return id, nil, fmt.Errorf("run %s interrupted; it resumes with the next 'plateau run' or 'plateau serve'", id)
 	}
@@ -91,6 +152,19 @@ func runOnce(ctx context.Context, cfg *config.Config, label string, progress io.
 	}
 	res, err := evaluate(b.store, id)
 	return id, res, err
+}
+
+// readByPerson says whether the device under test is a dial the person at
+// this terminal reads (not the simulator's own operator).
+func readByPerson(cfg *config.Config, b *bench) bool {
+	for _, in := range cfg.Instruments {
+		if in.Role != config.RoleDevice {
+			continue
+		}
+		simulated := b.rig != nil && b.rig.DialReader() != nil && in.Link.Kind == config.LinkManual
+		return !simulated && (in.Link.Kind == config.LinkManual || cfg.Device.Kind == "dial")
+	}
+	return false
 }
 
 func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (store.RunID, error) {
@@ -111,50 +185,137 @@ func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (stor
 	return eng.Start(label)
 }
 
-// showProgress draws points done of total, the current step and target, and
-// each instrument's settle state, on a terminal only.
-func showProgress(ctx context.Context, eng *acquire.Engine, unit string, w io.Writer, done <-chan struct{}) {
-	u, err := units.Lookup(unit)
-	if err != nil {
-		u = units.Pascal
-	}
-	st := eng.Status()
-	opts := []progressbar.Option{
-		progressbar.OptionSetWriter(w),
-		progressbar.OptionShowCount(),
-		progressbar.OptionSetWidth(24),
-		progressbar.OptionThrottle(200 * time.Millisecond),
-		progressbar.OptionClearOnFinish(),
-	}
-	if f, ok := w.(*os.File); !ok || !term.IsTerminal(int(f.Fd())) {
-		return // a bar on a log file is noise; the events say the same
-	}
-	bar := progressbar.NewOptions(st.TotalPoints, opts...)
+// runWatch follows a foreground run: the progress bar, and the dial
+// prompt whenever the device under test waits for a reading.
+type runWatch struct {
+	eng    *acquire.Engine
+	out    io.Writer
+	show   display
+	est    *estimator
+	bar    *progressbar.ProgressBar // nil: no bar
+	prompt *dialPrompt              // nil: nobody types readings here
+	// answered is the wait last answered: not asked again while it lasts.
+	answered string
+}
+
+func (w *runWatch) follow(ctx context.Context) {
 	tick := time.NewTicker(250 * time.Millisecond)
 	defer tick.Stop()
+	defer func() {
+		if w.bar != nil {
+			w.bar.Finish()
+		}
+	}()
 	for {
 		select {
 		case <-ctx.Done():
 			return
-		case <-done:
-			bar.Finish()
-			return
 		case <-tick.C:
-			st := eng.Status()
-			bar.Set(st.Points)
-			settle := ""
-			for _, in := range st.Instruments {
-				mark := "settling"
-				if in.Settled {
-					mark = "settled"
-				}
-				settle += fmt.Sprintf(" · %s %s", in.Name, mark)
+		}
+		st := w.eng.Status()
+		w.est.observe(st, time.Now())
+		what, target, ok := waiting(st)
+		if !ok || what != w.answered {
+			w.answered = ""
+		}
+		if ok && w.prompt != nil && w.answered == "" {
+			if w.bar != nil {
+				w.bar.Clear()
 			}
-			target := ""
-			if st.Phase != "" {
-				target = fmt.Sprintf(" → %.6g %s", u.FromPa(st.TargetPa), u.Symbol)
+			err := w.prompt.ask(ctx, what, target)
+			if errors.Is(err, errInputClosed) {
+				fmt.Fprintf(w.out, "\n%v; the run waits for each reading until its timeout\n", err)
+				w.prompt = nil
 			}
-			bar.Describe(fmt.Sprintf("%s%s%s", st.Phase, target, settle))
+			// The step takes the reading at its next poll: until then it
+			// still shows as waiting, and must not be asked twice (a second
+			// entry would supersede the first).
+			w.answered = what
+			continue
+		}
+		if w.bar != nil {
+			w.bar.Set(st.Points)
+			w.bar.Describe(progressLine(st, w.show, w.est, time.Now()))
 		}
 	}
+}
+
+// newBar is a progress bar of captured points, on a terminal only: a bar on
+// a log file is noise, and the events say the same.
+func newBar(out io.Writer, total int) *progressbar.ProgressBar {
+	if f, ok := out.(*os.File); !ok || !term.IsTerminal(int(f.Fd())) {
+		return nil
+	}
+	return progressbar.NewOptions(total,
+		progressbar.OptionSetWriter(out),
+		progressbar.OptionShowCount(),
+		progressbar.OptionSetWidth(24),
+		progressbar.OptionThrottle(200*time.Millisecond),
+		progressbar.OptionClearOnFinish(),
+	)
+}
+
+// progressLine is the bar's description: the step, its target, what each
+// instrument still waits for, and the time the step and the run still need.
+func progressLine(st acquire.Status, show display, est *estimator, now time.Time) string {
+	var b strings.Builder
+	b.WriteString(st.Phase)
+	if st.Phase != "" {
+		fmt.Fprintf(&b, " → %s", show.withUnit(st.TargetPa))
+	}
+	for _, in := range st.Instruments {
+		switch {
+		case in.Waiting != "":
+			fmt.Fprintf(&b, " · %s waits for a dial reading", in.Name)
+		case in.Settled:
+			fmt.Fprintf(&b, " · %s settled", in.Name)
+		case in.Why != "":
+			fmt.Fprintf(&b, " · %s %s", in.Name, in.Why)
+		default:
+			fmt.Fprintf(&b, " · %s settling", in.Name)
+		}
+	}
+	if step, run, ok := est.remaining(st, now); ok {
+		fmt.Fprintf(&b, " · step ~%s, run ~%s left", roundDuration(step), roundDuration(run))
+	}
+	return b.String()
+}
+
+// estimator guesses how long the current step and the run still need:
+// from the plan until a step has finished, then from the mean time the
+// steps of this run took.
+type estimator struct {
+	planStep time.Duration // the plan's hold and settle window of a step
+	step     int           // step being timed
+	since    time.Time     // when it began
+	done     int           // steps timed
+	total    time.Duration // their time
+}
+
+func newEstimator(cfg *config.Config, speed float64) *estimator {
+	p := cfg.Procedure
+	return &estimator{planStep: time.Duration(float64(p.Hold+p.Settle.Window) / speed), step: -1}
+}
+
+func (e *estimator) observe(st acquire.Status, now time.Time) {
+	if st.Step == e.step {
+		return
+	}
+	if e.step >= 0 && st.Step == e.step+1 {
+		e.done++
+		e.total += now.Sub(e.since)
+	}
+	e.step, e.since = st.Step, now
+}
+
+func (e *estimator) remaining(st acquire.Status, now time.Time) (step, run time.Duration, ok bool) {
+	if st.Steps == 0 || e.step < 0 {
+		return 0, 0, false
+	}
+	per := e.planStep
+	if e.done > 0 {
+		per = e.total / time.Duration(e.done)
+	}
+	step = max(per-now.Sub(e.since), 0)
+	return step, step + per*time.Duration(max(st.Steps-st.Step-1, 0)), true
 }

@@ -1,6 +1,8 @@
 package main
 
 import (
+	"context"
+	"errors"
 	"fmt"
 	"io"
 	"text/tabwriter"
@@ -9,30 +11,42 @@ import (
 	"github.com/spf13/cobra"
 
 	"plateau/acquire/api"
+	"plateau/acquire/store"
 	"plateau/analysis"
+	"plateau/analysis/readout"
+	"plateau/analysis/units"
+	"plateau/config"
 )
 
 func init() { register(newRunsCmd) }
 
 func newRunsCmd() *cobra.Command {
 	var asJSON bool
+	var unit string
 	cmd := &cobra.Command{
 		Use:   "runs [RUN]",
 		Short: "List the runs in the store, or show one run and its points",
-		Long: `runs lists every run the daemon has stored, oldest first. With a run id
-(r000042, 42 or "last") it shows that run and its captured points.`,
+		Long: `runs lists every stored run, oldest first. With a run id (r000042, 42 or
+"last") it shows that run and its captured points. It asks the daemon when one
+answers, and otherwise reads the store file itself (read-only), so results
+stay at hand with the daemon stopped.`,
+		Example: `  plateau runs
+  plateau runs last
+  plateau runs r000042 --unit psi`,
 		Args: cobra.MaximumNArgs(1),
 	}
-	df := addDaemonFlags(cmd)
-	cmd.Flags().BoolVar(&asJSON, "json", false, "print JSON")
+	rf := addRecordFlags(cmd)
+	cmd.Flags().BoolVar(&asJSON, "json", false, "print JSON (full precision)")
+	cmd.Flags().StringVar(&unit, "unit", "", "show pressures in this unit (default: the device's)")
 	cmd.RunE = func(cmd *cobra.Command, args []string) error {
-		c, err := df.client(cmd)
+		src, err := rf.open(cmd)
 		if err != nil {
 			return err
 		}
-		out := cmd.OutOrStdout()
+		defer src.Close()
+		ctx, out := cmd.Context(), cmd.OutOrStdout()
 		if len(args) == 0 {
-			runs, err := c.Runs(cmd.Context())
+			runs, err := src.Runs(ctx)
 			if err != nil {
 				return err
 			}
@@ -42,25 +56,187 @@ func newRunsCmd() *cobra.Command {
 			printRuns(out, runs)
 			return nil
 		}
-		run, err := c.Run(cmd.Context(), args[0])
+		run, err := src.Run(ctx, args[0])
 		if err != nil {
 			return err
 		}
-		pts, err := c.Points(cmd.Context(), run.ID)
+		pts, err := src.Points(ctx, run.ID)
 		if err != nil {
 			return err
 		}
 		if asJSON {
 			return printJSON(out, map[string]any{"run": run, "points": pts})
 		}
-		st, err := c.Status(cmd.Context())
+		show, err := runDisplay(run, unit)
 		if err != nil {
 			return err
 		}
-		printRun(out, run, pts, st.Unit)
+		printRun(out, run, pts, show)
 		return nil
 	}
 	return cmd
+}
+
+// recordFlags find the runs: the daemon's flags, and the store file used
+// when no daemon answers.
+type recordFlags struct {
+	daemon *daemonFlags
+	store  string
+}
+
+func addRecordFlags(cmd *cobra.Command) *recordFlags {
+	f := &recordFlags{daemon: addDaemonFlags(cmd)}
+	cmd.Flags().StringVar(&f.store, "store", "", "read this store file when no daemon answers (default: store.path of the configuration)")
+	return f
+}
+
+// runSource is where stored runs are read from: the daemon, or the store
+// file when no daemon answers.
+type runSource interface {
+	Runs(ctx context.Context) ([]api.RunInfo, error)
+	Run(ctx context.Context, id string) (api.RunDetail, error)
+	Points(ctx context.Context, id string) ([]analysis.Point, error)
+	Report(ctx context.Context, id, format string, w io.Writer) error
+	Close() error
+}
+
+// open asks the daemon first; when nothing answers there it opens the
+// store read-only. A daemon that answers with an error is not bypassed.
+func (f *recordFlags) open(cmd *cobra.Command) (runSource, error) {
+	c, err := f.daemon.client(cmd)
+	if err == nil {
+		_, err = c.Status(cmd.Context())
+		if err == nil {
+			return daemonSource{c}, nil
+		}
+		var refused *api.Error
+		if errors.As(err, &refused) || cmd.Context().Err() != nil {
+			return nil, err
+		}
+	}
+	reach := err
+	p, err := existingStore("read the store", f.store)
+	if err != nil {
+		return nil, fmt.Errorf("no daemon answers (%v) and %w", reach, err)
+	}
+	// A read-only open shares the file with other readers but waits for
+	// a daemon that holds it: the short timeout says so instead.
+	st, err := store.Open(p, store.Options{ReadOnly: true, Timeout: 2 * time.Second})
+	if err != nil {
+		return nil, fmt.Errorf("no daemon answers (%v); reading %s directly: %w", reach, p, err)
+	}
+	return storeSource{st}, nil
+}
+
+type daemonSource struct{ *api.Client }
+
+func (daemonSource) Close() error { return nil }
+
+// storeSource reads runs from an open store file.
+type storeSource struct{ st *store.Store }
+
+func (s storeSource) Close() error { return s.st.Close() }
+
+func (s storeSource) Runs(context.Context) ([]api.RunInfo, error) {
+	runs, err := s.st.Runs()
+	if err != nil {
+		return nil, err
+	}
+	out := make([]api.RunInfo, len(runs))
+	for i, r := range runs {
+		out[i] = api.Info(r)
+	}
+	return out, nil
+}
+
+func (s storeSource) id(raw string) (store.RunID, error) {
+	if raw != "last" {
+		return store.ParseRunID(raw)
+	}
+	runs, err := s.st.Runs()
+	if err != nil {
+		return 0, err
+	}
+	if len(runs) == 0 {
+		return 0, fmt.Errorf("run last: there are no runs yet in %s", s.st.Path())
+	}
+	return runs[len(runs)-1].ID, nil
+}
+
+func (s storeSource) Run(_ context.Context, raw string) (api.RunDetail, error) {
+	id, err := s.id(raw)
+	if err != nil {
+		return api.RunDetail{}, err
+	}
+	r, err := s.st.Run(id)
+	if err != nil {
+		return api.RunDetail{}, err
+	}
+	pts, err := s.st.Points(id)
+	if err != nil {
+		return api.RunDetail{}, err
+	}
+	return api.RunDetail{RunInfo: api.Info(r), Points: len(pts), Config: string(r.Config)}, nil
+}
+
+func (s storeSource) Points(_ context.Context, raw string) ([]analysis.Point, error) {
+	id, err := s.id(raw)
+	if err != nil {
+		return nil, err
+	}
+	return s.st.Points(id)
+}
+
+func (s storeSource) Report(_ context.Context, raw, format string, w io.Writer) error {
+	id, err := s.id(raw)
+	if err != nil {
+		return err
+	}
+	res, err := evaluate(s.st, id)
+	if err != nil {
+		return err
+	}
+	return renderReport(w, format, res)
+}
+
+// display writes pressures in one unit with the digits of the device's
+// resolution.
+type display struct {
+	unit units.Unit
+	res  float64 // Pa; 0 when unknown
+}
+
+func (d display) one(pa float64) string    { return readout.Pressure(pa, d.unit, d.res) }
+func (d display) mean(pa float64) string   { return readout.Mean(pa, d.unit, d.res) }
+func (d display) signed(pa float64) string { return readout.Signed(pa, d.unit, d.res) }
+func (d display) withUnit(pa float64) string {
+	return readout.WithUnit(pa, d.unit, d.res)
+}
+
+// displayFor is the display of a configured device, or of override
+// (--unit) when given.
+func displayFor(dev config.Device, override string) (display, error) {
+	d := display{unit: displayUnit(dev.Unit), res: dev.ResolutionPa}
+	if override != "" {
+		u, err := units.Lookup(override)
+		if err != nil {
+			return display{}, fmt.Errorf("--unit: %w", err)
+		}
+		d.unit = u
+	}
+	return d, nil
+}
+
+// runDisplay is the display of a run's device, from the configuration
+// kept with the run.
+func runDisplay(r api.RunDetail, override string) (display, error) {
+	var dev config.Device
+	if r.Config != "" {
+		if cfg, err := config.Parse([]byte(r.Config), "configuration kept with run "+r.ID); err == nil {
+			dev = cfg.Device
+		}
+	}
+	return displayFor(dev, override)
 }
 
 const timeLayout = "2006-01-02 15:04"
@@ -79,19 +255,18 @@ func printRuns(w io.Writer, runs []api.RunInfo) {
 	tw.Flush()
 }
 
-func printRun(w io.Writer, r api.RunDetail, pts []analysis.Point, unit string) {
-	show := displayUnit(unit)
-	fmt.Fprintf(w, "run       %s %q\nstate     %s (%s)\ncreated   %s\nchanged   %s\npoints    %d\n",
-		r.ID, r.Label, r.State, r.Reason, r.Created.Local().Format(time.RFC3339), r.Updated.Local().Format(time.RFC3339), r.Points)
+func printRun(w io.Writer, r api.RunDetail, pts []analysis.Point, show display) {
+	fmt.Fprintf(w, "run       %s %q\nstate     %s%s\ncreated   %s\nchanged   %s\npoints    %d\n",
+		r.ID, r.Label, r.State, prefixed(": ", r.Reason), r.Created.Local().Format(time.RFC3339), r.Updated.Local().Format(time.RFC3339), r.Points)
 	if len(pts) == 0 {
 		return
 	}
 	fmt.Fprintln(w)
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "CYCLE\tSERIES\tKIND\tNOMINAL %[1]s\tREFERENCE %[1]s\tDEVICE %[1]s\tDEVICE − REF %[1]s\t\n", show.Symbol)
+	fmt.Fprintf(tw, "CYCLE\tSERIES\tKIND\tNOMINAL %[1]s\tREFERENCE %[1]s\tDEVICE %[1]s\tDEVICE − REF %[1]s\t\n", show.unit.Symbol)
 	for _, p := range pts {
-		fmt.Fprintf(tw, "%d\t%s\t%s\t%.6g\t%.6g\t%.6g\t%+.4g\t\n", p.Cycle, p.Direction, p.Kind,
-			show.FromPa(p.Nominal), show.FromPa(p.Reference.Mean), show.FromPa(p.DUT.Mean), show.FromPa(p.DUT.Mean-p.Reference.Mean))
+		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t%s\t%s\t\n", p.Cycle, p.Direction, p.Kind,
+			show.one(p.Nominal), show.mean(p.Reference.Mean), show.mean(p.DUT.Mean), show.signed(p.DUT.Mean-p.Reference.Mean))
 	}
 	tw.Flush()
 }

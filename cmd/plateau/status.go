@@ -85,6 +85,7 @@ func firstNonEmpty(s ...string) string {
 
 func newStatusCmd() *cobra.Command {
 	var asJSON bool
+	var unit string
 	cmd := &cobra.Command{
 		Use:   "status",
 		Short: "Show the daemon, the current run and every instrument",
@@ -104,10 +105,27 @@ func newStatusCmd() *cobra.Command {
 		if asJSON {
 			return printJSON(cmd.OutOrStdout(), st)
 		}
-		printStatus(cmd.OutOrStdout(), st, time.Now())
+		show, err := statusDisplay(st.Unit, unit)
+		if err != nil {
+			return err
+		}
+		printStatus(cmd.OutOrStdout(), st, show, time.Now())
 		return nil
 	}
+	cmd.Flags().StringVar(&unit, "unit", "", "show pressures in this unit (default: the device's)")
 	return cmd
+}
+
+// statusDisplay shows the daemon's unit with the resolution of the local
+// configuration's device when that is the same device unit; a reading is
+// otherwise shown to six significant digits.
+func statusDisplay(daemonUnit, override string) (display, error) {
+	var dev config.Device
+	if cfg, err := config.Load(configPath); err == nil && cfg.Device.Unit == daemonUnit {
+		dev = cfg.Device
+	}
+	dev.Unit = daemonUnit
+	return displayFor(dev, override)
 }
 
 func printJSON(w io.Writer, v any) error {
@@ -116,8 +134,7 @@ func printJSON(w io.Writer, v any) error {
 	return enc.Encode(v)
 }
 
-func printStatus(w io.Writer, st api.Status, now time.Time) {
-	show := displayUnit(st.Unit)
+func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
 	fmt.Fprintf(w, "daemon    plateau %s, up %s\n", st.Version, now.Sub(st.Since).Round(time.Second))
 	if st.Run == nil {
 		fmt.Fprintln(w, "run       none (idle)")
@@ -135,10 +152,8 @@ func printStatus(w io.Writer, st api.Status, now time.Time) {
 			state = string(r.State)
 		}
 		fmt.Fprintf(w, "run       %s%s %s%s\n", r.ID, label, state, prefixed(": ", st.Reason))
-		if st.Step != "" {
-			fmt.Fprintf(w, "step      %s\n", st.Step)
-		}
-		fmt.Fprintf(w, "progress  %.0f %%\n", 100*st.Progress)
+		// Step already reads "step 3 of 29, …": no label of its own.
+		fmt.Fprintf(w, "progress  %.0f %%%s\n", 100*st.Progress, prefixed(" — ", st.Step))
 	}
 	if st.Trip != "" {
 		fmt.Fprintf(w, "SAFETY    tripped: %s — no setpoint is sent until a person resumes or starts a run\n", st.Trip)
@@ -164,7 +179,7 @@ func printStatus(w io.Writer, st api.Status, now time.Time) {
 			if in.LastAt.After(now) { // a simulated bench runs its clock ahead
 				when = "at " + in.LastAt.Local().Format("15:04:05")
 			}
-			last = fmt.Sprintf("%.6g %s (%s)", show.FromPa(in.LastPa), show.Symbol, when)
+			last = fmt.Sprintf("%s (%s)", show.withUnit(in.LastPa), when)
 		}
 		settled := "no"
 		if in.Settled {
