@@ -56,10 +56,7 @@ func (r *recorder) Sample(instrument string, rd drivers.Reading, err error) {
 	if run == 0 {
 		return // readings are stored during runs only
 	}
-	smp := store.Sample{Time: rd.Time, Pa: rd.Pa, Raw: rd.Raw, RawUnit: rd.RawUnit, Wire: rd.Wire}
-	if err != nil {
-		smp = store.Sample{Time: rd.Time, Wire: rd.Wire, Failed: true, Kind: drivers.KindOf(err), Message: err.Error()}
-	}
+	smp := store.SampleOf(rd, err)
 	r.mu.Lock()
 	if r.closed {
 		r.mu.Unlock()
