@@ -2,7 +2,9 @@ package api
 
 import (
 	"context"
+	"os"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 	"time"
@@ -148,3 +150,59 @@ func TestStoreCommitMetrics(t *testing.T) {
 
 // recordsOnly hides the store's writer.
 type recordsOnly struct{ Records }
+
+// TestAlertRulesReadExportedMetrics checks that every plateau metric the
+// alerting rules name is one the daemon exports, so a renamed metric
+// cannot silence an alert.
+func TestAlertRulesReadExportedMetrics(t *testing.T) {
+	rules, err := os.ReadFile("../../systemd/prometheus/alerts.yml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	st, err := store.Open(filepath.Join(t.TempDir(), "plateau.db"), store.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	// The status collector and what registerStoreMetrics registers.
+	var rec recorder
+	rec.MustRegister(newStatusCollector(nil))
+	registerStoreMetrics(&rec, st)
+	exported := map[string]bool{}
+	fq := regexp.MustCompile(`fqName: "([a-z_]+)"`)
+	for _, c := range rec.collectors {
+		descs := make(chan *prometheus.Desc, 100)
+		c.Describe(descs)
+		close(descs)
+		for d := range descs {
+			if m := fq.FindStringSubmatch(d.String()); m != nil {
+				exported[m[1]] = true
+			}
+		}
+	}
+	named := regexp.MustCompile(`expr:.*`).FindAllString(string(rules), -1)
+	count := 0
+	for _, expr := range named {
+		for _, name := range regexp.MustCompile(`plateau_[a-z_]+`).FindAllString(expr, -1) {
+			count++
+			if !exported[name] {
+				t.Errorf("alerts.yml reads %s, which the daemon does not export (%s)", name, expr)
+			}
+		}
+	}
+	if count < 6 {
+		t.Fatalf("found only %d metric names in the rules' expressions", count)
+	}
+}
+
+// recorder is a Registerer that keeps what is registered with it.
+type recorder struct{ collectors []prometheus.Collector }
+
+func (r *recorder) Register(c prometheus.Collector) error {
+	r.collectors = append(r.collectors, c)
+	return nil
+}
+func (r *recorder) MustRegister(cs ...prometheus.Collector) {
+	r.collectors = append(r.collectors, cs...)
+}
+func (r *recorder) Unregister(prometheus.Collector) bool { return false }
