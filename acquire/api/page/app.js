@@ -241,7 +241,7 @@ function switchRun(id) {
 // anything that could have been missed; the table keys its rows, so
 // nothing shows twice.
 function follow() {
-  const url = state.lastEventId === null ? "/api/v1/events?tail=200" : "/api/v1/events?since=" + state.lastEventId;
+  const url = state.lastEventId === null ? "/api/v1/events?tail=1000" : "/api/v1/events?since=" + state.lastEventId;
   const es = new EventSource(url);
   es.onopen = () => { setLink(true); refetchRun(); };
   es.onmessage = (m) => {
