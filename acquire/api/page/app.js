@@ -61,7 +61,8 @@ function fmt(pa, u) {
   if (pa === null || pa === undefined || !isFinite(pa)) return "—";
   const top = Math.max(toUnit(state.topPa, u), 1e-9);
   const decimals = Math.min(8, Math.max(0, 5 - Math.floor(Math.log10(top))));
-  return toUnit(pa, u).toFixed(decimals) + " " + (u || unit());
+  const text = toUnit(pa, u).toFixed(decimals);
+  return (Number(text) === 0 ? text.replace("-", "") : text) + " " + (u || unit());
 }
 
 function seenPa(pa) { if (isFinite(pa)) state.topPa = Math.max(state.topPa, Math.abs(pa)); }
