@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"plateau/acquire/api"
 
 	"github.com/spf13/cobra"
 
@@ -98,13 +99,21 @@ func existingStore(verb, flag string) (string, error) {
 
 func newBackupCmd() *cobra.Command {
 	var path string
+	var df *daemonFlags
 	cmd := &cobra.Command{
 		Use:   "backup FILE",
 		Short: "Write a consistent copy of the store to FILE",
 		Long: `backup copies the store in one read transaction, so the copy is consistent
-even while runs are being written. It refuses to overwrite an existing file.`,
+even while runs are being written. With a daemon running it asks the daemon
+for the copy (the daemon holds the file); otherwise it reads the file itself.
+It refuses to overwrite an existing file.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if c, err := df.client(cmd); err == nil && path == "" {
+				if _, err := c.Status(cmd.Context()); err == nil {
+					return backupFromDaemon(cmd, c, args[0])
+				}
+			}
 			p, err := existingStore("backup", path)
 			if err != nil {
 				return err
@@ -132,6 +141,27 @@ even while runs are being written. It refuses to overwrite an existing file.`,
 			return nil
 		},
 	}
-	cmd.Flags().StringVar(&path, "store", "", "the store file (default: store.path of the configuration)")
+	cmd.Flags().StringVar(&path, "store", "", "the store file, read directly (default: ask the daemon, else store.path of the configuration)")
+	df = addDaemonFlags(cmd)
 	return cmd
+}
+
+// backupFromDaemon streams the daemon's consistent copy into a new file,
+// whole or not at all.
+func backupFromDaemon(cmd *cobra.Command, c *api.Client, out string) error {
+	f, err := os.OpenFile(out, os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o600)
+	if err != nil {
+		return fmt.Errorf("backup: %w", err)
+	}
+	n, err := c.Backup(cmd.Context(), f)
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		os.Remove(out)
+		return fmt.Errorf("backup to %s through the daemon: %w", out, err)
+	}
+	abs, _ := filepath.Abs(out)
+	fmt.Fprintf(cmd.OutOrStdout(), "wrote %s (%d bytes, a consistent copy from the running daemon)\n", abs, n)
+	return nil
 }
