@@ -138,4 +138,3 @@ func TestReportFormat(t *testing.T) {
 		}
 	}
 }
-
