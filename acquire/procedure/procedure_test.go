@@ -291,10 +291,13 @@ func TestProcedurePointTimeout(t *testing.T) {
 			synctest.Test(t, func(t *testing.T) {
 				ctx, cancel := context.WithCancel(t.Context())
 				defer cancel()
-				f := newFixture(t, ctx, 0, nil)
+				// The device's error swings too fast to settle; set before
+				// the pollers start reading.
+				f := newFixture(t, ctx, 0, func(f *fixture) {
+					f.devErr = func(p float64, _ bool) float64 { return 0.5 * bar * math.Sin(float64(time.Now().UnixMilli())/300) }
+				})
 				f.proc.Settings.OnTimeout = mode
 				f.proc.Settings.Timeout = 20 * time.Second
-				f.devErr = func(p float64, _ bool) float64 { return 0.5 * bar * math.Sin(float64(time.Now().UnixMilli())/300) }
 				err := f.proc.Run(ctx, 0)
 				switch mode {
 				case Skip:
