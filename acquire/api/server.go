@@ -133,6 +133,7 @@ func New(o Options) (*Server, error) {
 	}
 	s := &Server{o: o, log: o.Logger, reg: prometheus.NewRegistry(), stopped: make(chan struct{})}
 	s.stream = registerMetrics(s.reg, o.Version, o.Control.Status)
+	registerStoreMetrics(s.reg, o.Records)
 	return s, nil
 }
 
