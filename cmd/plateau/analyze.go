@@ -131,7 +131,7 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 	)
 	if cfg != nil {
 		dev, ref, opt = record.AnalysisInputs(cfg)
-		info = infoFromConfig(cfg)
+		info = record.Info(cfg)
 	} else if missing := f.missing(); len(missing) > 0 {
 		return fmt.Errorf("no configuration file %s, so these flags are required: %s", configPath, strings.Join(missing, ", "))
 	}
@@ -400,20 +400,4 @@ func (f analyzeFlags) displayUnit(cfg *config.Config) (units.Unit, error) {
 		}
 	}
 	return units.Pascal, nil
-}
-
-func infoFromConfig(cfg *config.Config) report.Info {
-	d, r := cfg.Device, cfg.Reference
-	info := report.Info{
-		Device:    report.DeviceIdentity{ID: d.ID, Manufacturer: d.Manufacturer, Model: d.Model, Serial: d.Serial},
-		Reference: report.ReferenceIdentity{ID: r.ID, Model: r.Model, Serial: r.Serial, Certificate: r.Certificate, Expires: r.ExpiresAt},
-		Procedure: report.Procedure{PointsPa: cfg.Procedure.PointsPa, Cycles: cfg.Procedure.Cycles, Method: cfg.Procedure.Compare},
-	}
-	if d.Medium != "" {
-		info.Conditions = append(info.Conditions, report.Condition{Name: "Medium", Value: d.Medium})
-	}
-	if d.Oxygen {
-		info.Conditions = append(info.Conditions, report.Condition{Name: "Oxygen service", Value: "yes: kept free of oil and grease"})
-	}
-	return info
 }
