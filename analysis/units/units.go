@@ -74,7 +74,7 @@ func init() {
 	add(Megapascal, "megapascal")
 	add(Bar, "bars")
 	add(Millibar, "millibars")
-	add(PSI, "lbf/in2", "lbf/in²", "psig", "psia")
+	add(PSI, "lbf/in2", "lbf/in²") // psig and psia carry a mode (mode.go)
 	add(KgfPerCm2, "kgf/cm2", "kg/cm2", "kg/cm²", "at")
 	add(Atmosphere, "atmosphere")
 	add(Torr)
@@ -99,7 +99,7 @@ func normalise(s string) string {
 // which plateau does not accept) is never taken for MPa, nor "Mbar" for mbar.
 // All capitals ("MBAR", "KPA") are read as the one unit they can mean.
 func Lookup(name string) (Unit, error) {
-	if u, ok := aliases[normalise(name)]; ok {
+	if u, _, ok := splitMode(name); ok {
 		t := strings.TrimSpace(name)
 		if t != "" && (t[0] == 'm' || t[0] == 'M') && t[0] != u.Symbol[0] && t != strings.ToUpper(t) {
 			return Unit{}, fmt.Errorf("pressure unit %q: m is milli and M is mega; plateau knows %q (%s) but not %q",
