@@ -12,7 +12,37 @@ type Simulator struct {
 	Source    SimSource    `mapstructure:"source"`
 	Reference SimReference `mapstructure:"reference"`
 	Device    SimDevice    `mapstructure:"device"`
-	Faults    SimFaults    `mapstructure:"faults"`
+	// Devices holds several simulated devices under test, each read by the
+	// instrument it names. Device is their template: what an entry leaves
+	// out comes from it. Empty: the one device of Device.
+	Devices []SimUnit `mapstructure:"devices"`
+	RTU     SimRTU    `mapstructure:"rtu"`
+	Faults  SimFaults `mapstructure:"faults"`
+}
+
+// SimUnit is one of several simulated devices under test. On the simulated
+// Modbus RTU line (and over Modbus TCP) the n-th entry answers at unit id n
+// (1 for the first); each has its own line instrument.
+type SimUnit struct {
+	// Instrument is the name of the instruments entry (role device, link
+	// sim) that reads this device.
+	Instrument string `mapstructure:"instrument"`
+	SimDevice  `mapstructure:",squash"`
+	// CutAt cuts this device's link for good at this time after the
+	// simulator starts (clock time): its unit id and its line instrument
+	// stop answering, as when its cable is pulled. 0: never.
+	CutAt time.Duration `mapstructure:"cut_at"`
+}
+
+// SimRTU is the simulated Modbus RTU line on its pseudo-terminal.
+type SimRTU struct {
+	Baud int `mapstructure:"baud"` // the baud rate its timing assumes (default 19200)
+	// WireTime holds every reply back until the request and the reply
+	// would have crossed a real line at Baud (11 bits a character, with the
+	// 3.5-character silences): a pseudo-terminal has no baud rate of its own.
+	// Off by default, because an accelerated clock needs every read the
+	// pseudo-terminal can give.
+	WireTime bool `mapstructure:"wire_time"`
 }
 
 // SimSource is the simulated pressure controller.

@@ -11,16 +11,22 @@ import (
 	"plateau/drivers/regcodec"
 )
 
-// bank answers Modbus requests from the model. It implements
+// bank answers Modbus requests from the model for one device's unit id:
+// the shared reference and controller, and that device. It implements
 // modbus.RequestHandler, so the library's TCP server and the project's RTU
 // responder share it. Handlers run on several goroutines at once.
 type bank struct {
 	m    *model
-	j    *injector
+	j    *injector // this device's value faults
 	clk  clock.Clock
 	p    params
+	k    int // the device
 	regs []Register
+	ctl  *controller // shared by every device's bank: there is one controller
+}
 
+// controller is the simulated pressure controller's command state.
+type controller struct {
 	mu      sync.Mutex
 	spWords [2]uint16 // setpoint words as last written, applied when the low word arrives
 	writes  []Write   // every command the controller accepted, in order
@@ -34,16 +40,17 @@ type Write struct {
 	Pa    float64   // the setpoint
 }
 
+// logWrite records a command; the caller holds b.ctl.mu.
 func (b *bank) logWrite(w Write) {
 	w.Wall, w.Clock = time.Now(), b.clk.Now()
-	b.writes = append(b.writes, w)
+	b.ctl.writes = append(b.ctl.writes, w)
 }
 
 // accepted returns a copy of the write log.
-func (b *bank) accepted() []Write {
-	b.mu.Lock()
-	defer b.mu.Unlock()
-	return append([]Write(nil), b.writes...)
+func (c *controller) accepted() []Write {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return append([]Write(nil), c.writes...)
 }
 
 var setpointSpec = mustSpec("float32", "ABCD")
@@ -56,7 +63,9 @@ func mustSpec(typ, order string) regcodec.Spec {
 	return s
 }
 
-func (b *bank) sample() Sample { return b.j.value(b.m.sample(b.clk.Now()), b.p) }
+func (b *bank) sample() Sample {
+	return b.j.value(b.m.sample(b.clk.Now(), b.k), b.p, b.p.devs[b.k])
+}
 
 func (b *bank) HandleCoils(req *modbus.CoilsRequest) ([]bool, error) {
 	if !req.IsWrite {
@@ -68,9 +77,9 @@ func (b *bank) HandleCoils(req *modbus.CoilsRequest) ([]bool, error) {
 		}
 	}
 	if req.Args[0] {
-		b.mu.Lock()
+		b.ctl.mu.Lock()
 		b.logWrite(Write{Vent: true})
-		b.mu.Unlock()
+		b.ctl.mu.Unlock()
 		b.m.vent(b.clk.Now())
 	}
 	return nil, nil
@@ -93,9 +102,9 @@ func (b *bank) HandleHoldingRegisters(req *modbus.HoldingRegistersRequest) ([]ui
 
 // writeHolding checks a whole write before applying any of it.
 func (b *bank) writeHolding(addr int, args []uint16) error {
-	b.mu.Lock()
-	defer b.mu.Unlock()
-	sp, touchedLow, vent := b.spWords, false, false
+	b.ctl.mu.Lock()
+	defer b.ctl.mu.Unlock()
+	sp, touchedLow, vent := b.ctl.spWords, false, false
 	for i, w := range args {
 		switch a := addr + i; a {
 		case RegSetpoint, RegSetpoint + 1:
@@ -121,7 +130,7 @@ func (b *bank) writeHolding(addr int, args []uint16) error {
 		b.m.setPoint(now, pa)
 		b.logWrite(Write{Pa: pa})
 	}
-	b.spWords = sp
+	b.ctl.spWords = sp
 	if vent {
 		b.logWrite(Write{Vent: true})
 		b.m.vent(now)

@@ -83,7 +83,7 @@ func (j *injector) nextLinkChange(t time.Time) time.Time {
 // value applies the stuck and spike faults to a sample. A stuck value
 // repeats the sample from when it stuck; a spike throws every value of one
 // reply off by a fifth of its span.
-func (j *injector) value(s Sample, p params) Sample {
+func (j *injector) value(s Sample, p params, d devParams) Sample {
 	j.mu.Lock()
 	defer j.mu.Unlock()
 	if s.At.Before(j.stuckUntil) {
@@ -101,7 +101,7 @@ func (j *injector) value(s Sample, p params) Sample {
 			sign = -1
 		}
 		s.Reference += sign * spikeFraction * p.refUnit.FromPa(p.maxPa)
-		s.Device += sign * spikeFraction * p.devUnit.FromPa(p.upper-p.lower)
+		s.Device += sign * spikeFraction * d.devUnit.FromPa(d.upper-d.lower)
 		s.Current = min(max(s.Current+sign*spikeFraction*16, 3.8), 20.5)
 	}
 	return s

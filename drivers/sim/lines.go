@@ -26,7 +26,9 @@ const (
 type valueFunc func(Sample) (v float64, unit string, over bool)
 
 // serveLines runs a query/response ASCII instrument on a pseudo-terminal.
-func (r *Rig) serveLines(ctx context.Context, port *ptyPort, part string, value valueFunc, step float64) error {
+// d is the device whose faults and link the instrument shares (the first
+// device's for the reference).
+func (r *Rig) serveLines(ctx context.Context, port *ptyPort, part string, d *dut, value valueFunc, step float64) error {
 	var pending []byte
 	buf := make([]byte, 256)
 	decimals := decimalsFor(step)
@@ -43,7 +45,7 @@ func (r *Rig) serveLines(ctx context.Context, port *ptyPort, part string, value 
 		var cmds []string
 		cmds, pending = splitCommands(pending, idle)
 		for _, cmd := range cmds {
-			if err := r.answerLine(ctx, port, part, cmd, value, decimals); err != nil {
+			if err := r.answerLine(ctx, port, part, d, cmd, value, decimals); err != nil {
 				return err
 			}
 		}
@@ -81,22 +83,22 @@ func splitCommands(pending []byte, idle bool) (cmds []string, rest []byte) {
 	return cmds, pending
 }
 
-func (r *Rig) answerLine(ctx context.Context, port *ptyPort, part, cmd string, value valueFunc, decimals int) error {
+func (r *Rig) answerLine(ctx context.Context, port *ptyPort, part string, d *dut, cmd string, value valueFunc, decimals int) error {
 	cmd = strings.ToUpper(strings.TrimSpace(cmd))
 	if cmd == "" {
 		return nil
 	}
-	if r.j.linkDown(r.clk.Now()) || r.muted(part) {
+	if r.j.linkDown(r.clk.Now()) || r.muted(part) || (part != PartReference && r.cut(d)) {
 		return nil
 	}
-	f := r.j.request(r.p.faults.Garbage)
+	f := d.j.request(r.p.faults.Garbage)
 	if f.drop {
 		return nil
 	}
 	var reply string
 	switch cmd {
 	case CmdRead:
-		s := r.j.value(r.m.sample(r.clk.Now()), r.p)
+		s := d.j.value(r.m.sample(r.clk.Now(), d.k), r.p, d.p)
 		v, unit, over := value(s)
 		if over {
 			reply = ReplyOverload
@@ -105,6 +107,9 @@ func (r *Rig) answerLine(ctx context.Context, port *ptyPort, part, cmd string, v
 		}
 	case CmdIdentify:
 		reply = "plateau,simulated " + part + ",SIM-" + strings.ToUpper(part[:3]) + ",1"
+		if part != PartReference && d.k > 0 {
+			reply = fmt.Sprintf("plateau,simulated %s,SIM-DEV-%d,1", PartDevice, d.k+1)
+		}
 	default:
 		reply = "ERR unknown command " + cmd
 	}

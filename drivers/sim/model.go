@@ -17,14 +17,32 @@ const (
 )
 
 // Noise streams, so each instrument draws its own independent sequence.
+// The first device keeps the streams it had when the bench held one, so a
+// seed gives the numbers it always gave.
 const (
 	streamReference uint64 = iota + 1
 	streamDevice
 	streamOperator
+	streamDevices   = 0x100 // + device index, from the second device on
+	streamOperators = 0x200
 )
 
+func deviceStream(k int) uint64 {
+	if k == 0 {
+		return streamDevice
+	}
+	return streamDevices + uint64(k)
+}
+
+func operatorStream(k int) uint64 {
+	if k == 0 {
+		return streamOperator
+	}
+	return streamOperators + uint64(k)
+}
+
 // Sample is what every simulated instrument shows at one instant, in the
-// units each reports in.
+// units each reports in; the device fields are those of one device.
 type Sample struct {
 	At        time.Time
 	Reference float64 // reference transducer, reference unit
@@ -54,14 +72,16 @@ type model struct {
 	tau, shape   float64
 	vented       bool
 	setpoint     float64
-	// Friction (play operator) state on the integration grid.
-	step int64   // index of the last grid point evaluated (time = step × stepSeconds)
-	play float64 // indication after friction, Pa
+	// Friction (play operator) state of each device on the integration grid.
+	step int64     // index of the last grid point evaluated (time = step × stepSeconds)
+	play []float64 // indication after friction, Pa, per device
 }
 
 func newModel(p params, epoch time.Time) *model {
-	m := &model{p: p, epoch: epoch, tau: p.tau / ventSpeedup, vented: true}
-	m.play = m.shaped(0)
+	m := &model{p: p, epoch: epoch, tau: p.tau / ventSpeedup, vented: true, play: make([]float64, len(p.devs))}
+	for k := range p.devs {
+		m.play[k] = m.shaped(k, 0)
+	}
 	return m
 }
 
@@ -98,11 +118,12 @@ func (m *model) pressure(t float64) float64 {
 	return p
 }
 
-// shaped is the device's indication before friction, resolution and noise:
+// shaped is device k's indication before friction, resolution and noise:
 // zero offset, span (gain) error and a parabolic bow over the range.
-func (m *model) shaped(p float64) float64 {
-	x := (p - m.p.lower) / (m.p.upper - m.p.lower)
-	return p + m.p.zero + m.p.span*p + m.p.bow*4*x*(1-x)
+func (m *model) shaped(k int, p float64) float64 {
+	d := &m.p.devs[k]
+	x := (p - d.lower) / (d.upper - d.lower)
+	return p + d.zero + d.span*p + d.bow*4*x*(1-x)
 }
 
 // advance integrates the friction state up to model time t on a grid of
@@ -110,17 +131,22 @@ func (m *model) shaped(p float64) float64 {
 // however the calls fall). Before a segment changes, the grid is brought up
 // to the change, so a grid point always sees the segment active at its time.
 func (m *model) advance(t float64) {
-	h := m.p.band / 2
 	last := int64(math.Floor(t / stepSeconds))
 	for k := m.step + 1; k <= last; k++ {
 		tk := float64(k) * stepSeconds
-		if m.still(tk) { // the pressure has stopped: one step stands for the rest
-			f := m.shaped(m.to)
-			m.play = min(max(m.play, f-h), f+h)
+		still := m.still(tk) // the pressure has stopped: one step stands for the rest
+		p := m.to
+		if !still {
+			p = m.pressure(tk)
+		}
+		for i := range m.play {
+			h := m.p.devs[i].band / 2
+			f := m.shaped(i, p)
+			m.play[i] = min(max(m.play[i], f-h), f+h)
+		}
+		if still {
 			break
 		}
-		f := m.shaped(m.pressure(tk))
-		m.play = min(max(m.play, f-h), f+h)
 	}
 	m.step = max(m.step, last)
 }
@@ -133,12 +159,12 @@ func (m *model) still(t float64) bool {
 
 func (m *model) gridTime() float64 { return float64(m.step) * stepSeconds }
 
-// friction is the indication after friction at t (which must not be
-// earlier than the grid): the play operator applied to the state.
-func (m *model) friction(t float64) float64 {
-	h := m.p.band / 2
-	f := m.shaped(m.pressure(t))
-	return min(max(m.play, f-h), f+h)
+// friction is device k's indication after friction at t (which must not
+// be earlier than the grid): the play operator applied to the state.
+func (m *model) friction(k int, t float64) float64 {
+	h := m.p.devs[k].band / 2
+	f := m.shaped(k, m.pressure(t))
+	return min(max(m.play[k], f-h), f+h)
 }
 
 // restart begins a new segment at t from the current pressure. The new
@@ -166,25 +192,26 @@ func (m *model) vent(at time.Time) {
 	m.setpoint, m.vented = 0, true
 }
 
-// sample evaluates every instrument at clock time at.
-func (m *model) sample(at time.Time) Sample {
+// sample evaluates the reference, the source and device k at clock time at.
+func (m *model) sample(at time.Time, k int) Sample {
 	m.mu.Lock()
 	t := max(m.seconds(at), m.gridTime())
 	m.advance(t)
 	p := m.pressure(t)
-	y := m.friction(t)
+	y := m.friction(k, t)
 	s := m.status(t, p)
 	m.mu.Unlock()
 
+	d := &m.p.devs[k]
 	idx := int64(math.Floor(t / updateSeconds))
 	ref := p*(1+m.p.refErr) + m.p.refNoise*gauss(m.p.seed, streamReference, idx)
-	dev := y + m.p.devNoise*gauss(m.p.seed, streamDevice, idx)
+	dev := y + d.devNoise*gauss(m.p.seed, deviceStream(k), idx)
 	s.At = at
 	s.Reference = quantize(m.p.refUnit.FromPa(ref), m.p.refUnit.FromPa(m.p.refRes))
-	s.Device = quantize(m.p.devUnit.FromPa(dev), m.p.devUnit.FromPa(m.p.devRes))
-	s.Current = m.current(m.p.devUnit.ToPa(s.Device))
-	span := m.p.upper - m.p.lower
-	s.Over = dev > m.p.upper+0.1*span || dev < m.p.lower-0.1*span
+	s.Device = quantize(d.devUnit.FromPa(dev), d.devUnit.FromPa(d.devRes))
+	s.Current = d.current(d.devUnit.ToPa(s.Device))
+	span := d.upper - d.lower
+	s.Over = dev > d.upper+0.1*span || dev < d.lower-0.1*span
 	return s
 }
 
@@ -200,33 +227,34 @@ func (m *model) status(t, p float64) Sample {
 // current converts an indication (Pa) to loop current with NAMUR NE 43
 // saturation: 4 mA + 16 mA × (p − LRV)/(URV − LRV), held inside 3.8–20.5 mA
 // (REFERENCES.md §7).
-func (m *model) current(pa float64) float64 {
-	i := 4 + 16*(pa-m.p.lower)/(m.p.upper-m.p.lower)
+func (d *devParams) current(pa float64) float64 {
+	i := 4 + 16*(pa-d.lower)/(d.upper-d.lower)
 	return min(max(i, 3.8), 20.5)
 }
 
-// needle is the dial's pointer (friction included, no display rounding) at
-// at, in the device unit, and the operator's reading scatter for that instant.
-func (m *model) needle(at time.Time) (pointer, scatter float64) {
+// needle is dial k's pointer (friction included, no display rounding) at
+// at, in its unit, and the operator's reading scatter for that instant.
+func (m *model) needle(at time.Time, k int) (pointer, scatter float64) {
 	m.mu.Lock()
 	t := max(m.seconds(at), m.gridTime())
 	m.advance(t)
-	y := m.friction(t)
+	y := m.friction(k, t)
 	m.mu.Unlock()
+	d := &m.p.devs[k]
 	idx := int64(math.Floor(t / updateSeconds))
-	return m.p.devUnit.FromPa(y), m.p.devUnit.FromPa(m.p.devNoise * gauss(m.p.seed, streamOperator, idx))
+	return d.devUnit.FromPa(y), d.devUnit.FromPa(d.devNoise * gauss(m.p.seed, operatorStream(k), idx))
 }
 
-// deviceError is the device's systematic error of indication at true
-// pressure p approached from direction d, in pascal: what a perfect
+// deviceError is device k's systematic error of indication at true
+// pressure p approached from direction dir, in pascal: what a perfect
 // comparison would find, before resolution and noise. The dead band makes
 // the indication lag by half its width behind the direction of motion.
-func (m *model) deviceError(p float64, d analysis.Direction) float64 {
-	h := m.p.band / 2
-	if d == analysis.Descending {
+func (m *model) deviceError(k int, p float64, dir analysis.Direction) float64 {
+	h := m.p.devs[k].band / 2
+	if dir == analysis.Descending {
 		h = -h
 	}
-	return m.shaped(p) - h - p
+	return m.shaped(k, p) - h - p
 }
 
 // quantize rounds v to the nearest multiple of step (no rounding for step 0).

@@ -16,15 +16,17 @@ import (
 // would come from a person.
 type Operator struct {
 	r *Rig
+	k int // the dial they read
 	// Watch is how long the pointer must stay within a quarter of a
 	// division before the operator calls it settled.
 	Watch time.Duration
 }
 
-// Operator returns the rig's dial reader.
+// Operator returns the reader of the rig's first dial.
 func (r *Rig) Operator() *Operator { return &Operator{r: r, Watch: time.Second} }
 
-// DialReader is the operator when the simulated device is a dial, else nil.
+// DialReader is the operator when the (first) simulated device is a dial,
+// else nil.
 func (r *Rig) DialReader() drivers.Gauge {
 	if r.p.kind != KindDial {
 		return nil
@@ -32,22 +34,32 @@ func (r *Rig) DialReader() drivers.Gauge {
 	return r.Operator()
 }
 
+// DialReaderFor is the operator reading the dial the named instrument
+// stands for, nil when that simulated device is not a dial.
+func (r *Rig) DialReaderFor(instrument string) drivers.Gauge {
+	d, err := r.deviceFor(instrument)
+	if err != nil || d.p.kind != KindDial {
+		return nil
+	}
+	return &Operator{r: r, k: d.k, Watch: time.Second}
+}
+
 // Read waits (in clock time) for the pointer to settle and the operator to
 // read it, then returns the reading in the device's unit.
 func (o *Operator) Read(ctx context.Context) (drivers.Reading, error) {
-	p := o.r.p
+	p := o.r.p.devs[o.k]
 	res := p.devUnit.FromPa(p.devRes)
 	steady := res / 4
 	if steady <= 0 {
 		steady = p.devUnit.FromPa(p.upper-p.lower) * 1e-4
 	}
 	clk := o.r.clk
-	last, _ := o.r.m.needle(clk.Now())
+	last, _ := o.r.m.needle(clk.Now(), o.k)
 	for {
 		if err := o.wait(ctx, o.Watch); err != nil {
 			return drivers.Reading{}, err
 		}
-		now, _ := o.r.m.needle(clk.Now())
+		now, _ := o.r.m.needle(clk.Now(), o.k)
 		if math.Abs(now-last) <= steady {
 			break
 		}
@@ -57,7 +69,7 @@ func (o *Operator) Read(ctx context.Context) (drivers.Reading, error) {
 		return drivers.Reading{}, err
 	}
 	at := clk.Now()
-	pointer, scatter := o.r.m.needle(at)
+	pointer, scatter := o.r.m.needle(at, o.k)
 	v := quantize(pointer+scatter, res)
 	return drivers.Reading{Time: at, Pa: p.devUnit.ToPa(v), Raw: v, RawUnit: p.devUnit.Symbol}, nil
 }

@@ -30,13 +30,24 @@ type params struct {
 	refNoise, refRes, refErr float64
 	refUnit                  units.Unit
 
+	devParams             // the first (or only) device under test
+	devs      []devParams // every device, the first included
+	faults    config.SimFaults
+	baud      int  // of the simulated RTU line
+	wireTime  bool // RTU replies keep the wire time at baud
+}
+
+// devParams is one simulated device under test.
+type devParams struct {
+	instrument            string // the instrument that reads it ("" for the one device of simulator.device)
 	kind                  string
 	zero, span, bow, band float64 // band: total dead band
 	devRes, devNoise      float64
 	devUnit               units.Unit
 	lower, upper          float64
+	lowerText, upperText  string // the range as configured, for the current loop
 	operatorDelay         time.Duration
-	faults                config.SimFaults
+	cutAt                 time.Duration // its link is cut for good this long after the start (0: never)
 }
 
 // Defaults for what a config leaves empty, so that a rig starts with no
@@ -55,6 +66,7 @@ var defaultSimulator = config.Simulator{
 		DeadBand: "0.02 bar", Resolution: "0.01 bar", Noise: "0.002 bar", Unit: "bar",
 		Lower: "0 bar", Upper: "16 bar", OperatorDelay: 5 * time.Second,
 	},
+	RTU:    config.SimRTU{Baud: 19200},
 	Faults: config.SimFaults{SlowBy: 2 * time.Second, StuckFor: 10 * time.Second},
 }
 
@@ -90,6 +102,27 @@ func WithDefaults(s config.Simulator) config.Simulator {
 	fill(&dv.Upper, d.Device.Upper)
 	if dv.OperatorDelay <= 0 {
 		dv.OperatorDelay = d.Device.OperatorDelay
+	}
+	// Each of several devices takes what it leaves out from simulator.device.
+	s.Devices = append([]config.SimUnit(nil), s.Devices...)
+	for i := range s.Devices {
+		u, t := &s.Devices[i].SimDevice, s.Device
+		fill(&u.Kind, t.Kind)
+		fill(&u.Zero, t.Zero)
+		fill(&u.Span, t.Span)
+		fill(&u.Nonlinearity, t.Nonlinearity)
+		fill(&u.DeadBand, t.DeadBand)
+		fill(&u.Resolution, t.Resolution)
+		fill(&u.Noise, t.Noise)
+		fill(&u.Unit, t.Unit)
+		fill(&u.Lower, t.Lower)
+		fill(&u.Upper, t.Upper)
+		if u.OperatorDelay <= 0 {
+			u.OperatorDelay = t.OperatorDelay
+		}
+	}
+	if s.RTU.Baud <= 0 {
+		s.RTU.Baud = d.RTU.Baud
 	}
 	if s.Faults.SlowBy <= 0 {
 		s.Faults.SlowBy = d.Faults.SlowBy
@@ -165,45 +198,45 @@ func parseParams(s config.Simulator) (params, error) {
 	p.refRes = nonNegative("reference.resolution", s.Reference.Resolution, pressure("reference.resolution", s.Reference.Resolution))
 	p.refErr = percent("reference.error", s.Reference.Error)
 
-	d := s.Device
-	switch d.Kind {
-	case KindDigital, KindTransmitter, KindDial:
-		p.kind = d.Kind
-	default:
-		bad("device.kind", d.Kind, fmt.Errorf("want %s, %s or %s", KindDigital, KindTransmitter, KindDial))
+	list := s.Devices
+	if len(list) == 0 {
+		list = []config.SimUnit{{SimDevice: s.Device}}
 	}
-	p.devUnit = unit("device.unit", d.Unit)
-	p.lower = pressure("device.lower", d.Lower)
-	p.upper = pressure("device.upper", d.Upper)
-	if p.upper <= p.lower {
-		bad("device.upper", d.Upper, fmt.Errorf("must be above device.lower (%s)", d.Lower))
-		p.upper = p.lower + 1
+	if len(list) > config.MaxDevices {
+		bad("devices", fmt.Sprint(len(list)), fmt.Errorf("at most %d simulated devices", config.MaxDevices))
+		list = list[:config.MaxDevices]
 	}
-	span := p.upper - p.lower
-	// Zero, bow, dead band and noise may be given as a pressure or as a
-	// percentage of the device's span.
-	ofSpan := func(key, val string) float64 {
-		q, err := units.ParseQuantity(val)
-		if err != nil {
-			bad(key, val, err)
-			return 0
+	names := map[string]int{}
+	for i, u := range list {
+		key := "device."
+		if len(s.Devices) > 0 {
+			key = fmt.Sprintf("devices[%d].", i)
+			switch prev, dup := names[u.Instrument]; {
+			case u.Instrument == "":
+				bad(key+"instrument", "", fmt.Errorf("is required: the name of the instruments entry that reads this simulated device"))
+			case dup:
+				bad(key+"instrument", u.Instrument, fmt.Errorf("also names devices[%d]: each simulated device is read by its own instrument", prev))
+			default:
+				names[u.Instrument] = i
+			}
+			if u.CutAt < 0 {
+				bad(key+"cut_at", u.CutAt.String(), fmt.Errorf("must not be negative"))
+			}
 		}
-		if q.Percent {
-			return q.Value / 100 * span
-		}
-		pa, _ := q.Pa()
-		return pa
+		p.devs = append(p.devs, parseDevice(key, u, bad, unit, pressure, percent, nonNegative))
 	}
-	p.zero = ofSpan("device.zero", d.Zero)
-	p.span = percent("device.span", d.Span)
-	p.bow = ofSpan("device.nonlinearity", d.Nonlinearity)
-	p.band = nonNegative("device.dead_band", d.DeadBand, ofSpan("device.dead_band", d.DeadBand))
-	p.devRes = nonNegative("device.resolution", d.Resolution, ofSpan("device.resolution", d.Resolution))
-	p.devNoise = nonNegative("device.noise", d.Noise, ofSpan("device.noise", d.Noise))
-	p.operatorDelay = d.OperatorDelay
+	p.devParams = p.devs[0]
+	p.baud = s.RTU.Baud
+	p.wireTime = s.RTU.WireTime
+	if p.baud <= 0 {
+		bad("rtu.baud", fmt.Sprint(s.RTU.Baud), fmt.Errorf("must be above zero"))
+		p.baud = 19200
+	}
 
-	// The controller's ceiling defaults to 10 % above the device's range.
-	p.maxPa = p.upper + 0.1*span
+	// The controller's ceiling defaults to 10 % above the largest range.
+	for _, d := range p.devs {
+		p.maxPa = max(p.maxPa, d.upper+0.1*(d.upper-d.lower))
+	}
 	if s.Source.Max != "" {
 		p.maxPa = pressure("source.max", s.Source.Max)
 	}
@@ -211,7 +244,10 @@ func parseParams(s config.Simulator) (params, error) {
 		bad("source.max", s.Source.Max, fmt.Errorf("must be above zero"))
 		p.maxPa = p.upper
 	}
-	p.minPa = min(p.lower, 0)
+	p.minPa = 0
+	for _, d := range p.devs {
+		p.minPa = min(p.minPa, d.lower)
+	}
 
 	f := s.Faults
 	for _, r := range []struct {
@@ -240,4 +276,49 @@ func joinErrors(errs []error) error {
 		msg += "\n  " + e.Error()
 	}
 	return fmt.Errorf("%s", msg)
+}
+
+// parseDevice reads one simulated device; key is the prefix of its keys
+// ("device." or "devices[2].").
+func parseDevice(key string, u config.SimUnit, bad func(key, val string, err error),
+	unit func(key, val string) units.Unit, pressure, percent func(key, val string) float64,
+	nonNegative func(key, val string, v float64) float64) devParams {
+	d := u.SimDevice
+	p := devParams{instrument: u.Instrument, cutAt: u.CutAt, lowerText: d.Lower, upperText: d.Upper}
+	switch d.Kind {
+	case KindDigital, KindTransmitter, KindDial:
+		p.kind = d.Kind
+	default:
+		bad(key+"kind", d.Kind, fmt.Errorf("want %s, %s or %s", KindDigital, KindTransmitter, KindDial))
+	}
+	p.devUnit = unit(key+"unit", d.Unit)
+	p.lower = pressure(key+"lower", d.Lower)
+	p.upper = pressure(key+"upper", d.Upper)
+	if p.upper <= p.lower {
+		bad(key+"upper", d.Upper, fmt.Errorf("must be above %slower (%s)", key, d.Lower))
+		p.upper = p.lower + 1
+	}
+	span := p.upper - p.lower
+	// Zero, bow, dead band and noise may be given as a pressure or as a
+	// percentage of the device's span.
+	ofSpan := func(k, val string) float64 {
+		q, err := units.ParseQuantity(val)
+		if err != nil {
+			bad(k, val, err)
+			return 0
+		}
+		if q.Percent {
+			return q.Value / 100 * span
+		}
+		pa, _ := q.Pa()
+		return pa
+	}
+	p.zero = ofSpan(key+"zero", d.Zero)
+	p.span = percent(key+"span", d.Span)
+	p.bow = ofSpan(key+"nonlinearity", d.Nonlinearity)
+	p.band = nonNegative(key+"dead_band", d.DeadBand, ofSpan(key+"dead_band", d.DeadBand))
+	p.devRes = nonNegative(key+"resolution", d.Resolution, ofSpan(key+"resolution", d.Resolution))
+	p.devNoise = nonNegative(key+"noise", d.Noise, ofSpan(key+"noise", d.Noise))
+	p.operatorDelay = d.OperatorDelay
+	return p
 }

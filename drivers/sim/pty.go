@@ -74,34 +74,39 @@ func (p *ptyPort) write(b []byte) error {
 // errIdle says no byte arrived within the idle wait; callers loop on it.
 var errIdle = errors.New("idle")
 
-// readFrame returns the bytes of one RTU frame: everything received until
-// the line has been silent for gap (t3.5). A pseudo-terminal has no
-// character timing, so the t1.5 rule inside a frame cannot be checked here;
-// clients write a frame in one go, which arrives in one piece.
-func (p *ptyPort) readFrame(gap, idle time.Duration) ([]byte, error) {
+// readFrame returns the bytes of one RTU frame — everything received until
+// the line has been silent for gap (t3.5) — and when its first byte
+// arrived. A pseudo-terminal has no character timing, so the t1.5 rule
+// inside a frame cannot be checked here; clients write a frame in one go,
+// which arrives in one piece.
+func (p *ptyPort) readFrame(gap, idle time.Duration) ([]byte, time.Time, error) {
 	var frame []byte
+	var first time.Time
 	buf := make([]byte, 512)
 	if err := p.master.SetReadDeadline(time.Now().Add(idle)); err != nil {
-		return nil, err
+		return nil, first, err
 	}
 	for {
 		n, err := p.master.Read(buf)
 		if n > 0 {
+			if len(frame) == 0 {
+				first = time.Now()
+			}
 			if len(frame) <= maxRTUFrame {
 				frame = append(frame, buf[:n]...)
 			}
 			if err := p.master.SetReadDeadline(time.Now().Add(gap)); err != nil {
-				return nil, err
+				return nil, first, err
 			}
 		}
 		if errors.Is(err, os.ErrDeadlineExceeded) {
 			if len(frame) == 0 {
-				return nil, errIdle
+				return nil, first, errIdle
 			}
-			return frame, nil
+			return frame, first, nil
 		}
 		if err != nil {
-			return nil, err
+			return nil, first, err
 		}
 	}
 }

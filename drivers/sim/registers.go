@@ -24,6 +24,9 @@ type Register struct {
 	Writable bool
 	About    string
 	value    func(Sample) float64
+	// perDevice: the register shows the device of its unit id, not the
+	// shared reference or controller.
+	perDevice bool
 }
 
 // Wire (0-based) addresses of the register map. The measured values appear
@@ -68,20 +71,20 @@ func registerMap(refUnit, devUnit string) []Register {
 		{Name: "reference", Table: "input+holding", Addr: RegReference, Type: "float32", Order: "ABCD", Unit: refUnit,
 			About: "reference transducer", value: func(s Sample) float64 { return s.Reference }},
 		{Name: "device", Table: "input+holding", Addr: RegDevice, Type: "float32", Order: "CDAB", Unit: devUnit,
-			About: "device under test indication", value: func(s Sample) float64 { return s.Device }},
+			About: "device under test indication", value: func(s Sample) float64 { return s.Device }, perDevice: true},
 		{Name: "current", Table: "input+holding", Addr: RegCurrent, Type: "float32", Order: "BADC", Unit: "mA",
-			About: "4–20 mA loop current of the device", value: func(s Sample) float64 { return s.Current }},
+			About: "4–20 mA loop current of the device", value: func(s Sample) float64 { return s.Current }, perDevice: true},
 		{Name: "reference_counts", Table: "input+holding", Addr: RegReferenceCount, Type: "int32", Order: "DCBA", Scale: 1e-4, Unit: refUnit,
 			About: "reference in counts of 0.0001", value: func(s Sample) float64 { return s.Reference }},
 		{Name: "reference_f64", Table: "input+holding", Addr: RegReference64, Type: "float64", Order: "ABCDEFGH", Unit: refUnit,
 			About: "reference, double precision", value: func(s Sample) float64 { return s.Reference }},
 		{Name: "device_f64", Table: "input+holding", Addr: RegDevice64, Type: "float64", Order: "GHEFCDAB", Unit: devUnit,
-			About: "device indication, double precision", value: func(s Sample) float64 { return s.Device }},
+			About: "device indication, double precision", value: func(s Sample) float64 { return s.Device }, perDevice: true},
 		{Name: "status", Table: "input+holding", Addr: RegStatus, Type: "uint16", Order: "AB",
 			About: "bit 0 setpoint reached, bit 1 vented, bit 2 device over range",
 			value: func(s Sample) float64 {
 				return boolf(s.Reached)*StatusReached + boolf(s.Vented)*StatusVented + boolf(s.Over)*StatusOver
-			}},
+			}, perDevice: true},
 		{Name: "setpoint", Table: "holding", Addr: RegSetpoint, Type: "float32", Order: "ABCD", Unit: refUnit, Writable: true,
 			About: "source setpoint; write both words (FC 16)", value: func(s Sample) float64 { return s.Setpoint }},
 		{Name: "vent", Table: "holding", Addr: RegVent, Type: "uint16", Order: "AB", Writable: true,
@@ -97,7 +100,7 @@ func registerMap(refUnit, devUnit string) []Register {
 		{Name: "vented", Table: "discrete", Addr: InputVented, Type: "bool",
 			About: "vented", value: func(s Sample) float64 { return boolf(s.Vented) }},
 		{Name: "over", Table: "discrete", Addr: InputOver, Type: "bool",
-			About: "device over range", value: func(s Sample) float64 { return boolf(s.Over) }},
+			About: "device over range", value: func(s Sample) float64 { return boolf(s.Over) }, perDevice: true},
 	}
 }
 

@@ -57,25 +57,31 @@ func (r *Rig) Resolve(inst config.Instrument) (config.Instrument, error) {
 	}
 
 	var line string
+	unit := ep.UnitID
 	switch part {
 	case PartReference:
 		out.Unit, line = r.p.refUnit.Symbol, ep.ReferenceLine
 		out.Value = reg("reference", "input")
 	case PartDevice:
-		switch r.p.kind {
+		d, err := r.deviceFor(inst.Name)
+		if err != nil {
+			return bad("%v", err)
+		}
+		line, unit = ep.Devices[d.k].Line, int(d.unit)
+		switch d.p.kind {
 		case KindDial:
 			out.Link = config.Link{Kind: config.LinkManual}
-			out.Unit = r.p.devUnit.Symbol
+			out.Unit = d.p.devUnit.Symbol
 			if err := config.CompleteInstrument(&out); err != nil {
 				return inst, fmt.Errorf("instrument %q: %w", inst.Name, err)
 			}
 			return out, nil
 		case KindTransmitter:
-			out.Unit, line = "mA", ep.DeviceLine
+			out.Unit = "mA"
 			out.Value = reg("current", "input")
-			out.Loop = config.CurrentLoop{Enabled: true, Lower: r.cfg.Device.Lower, Upper: r.cfg.Device.Upper}
+			out.Loop = config.CurrentLoop{Enabled: true, Lower: d.p.lowerText, Upper: d.p.upperText}
 		default:
-			out.Unit, line = r.p.devUnit.Symbol, ep.DeviceLine
+			out.Unit = d.p.devUnit.Symbol
 			out.Value = reg("device", "holding")
 		}
 	case PartSource:
@@ -94,9 +100,9 @@ func (r *Rig) Resolve(inst config.Instrument) (config.Instrument, error) {
 	link := config.Link{Timeout: inst.Link.Timeout, Retries: inst.Link.Retries, Backoff: inst.Link.Backoff, Pause: inst.Link.Pause}
 	switch via {
 	case config.LinkModbusTCP:
-		link.Kind, link.Address, link.UnitID = config.LinkModbusTCP, ep.TCP, ep.UnitID
+		link.Kind, link.Address, link.UnitID = config.LinkModbusTCP, ep.TCP, unit
 	case config.LinkModbusRTU:
-		link.Kind, link.Address, link.UnitID = config.LinkModbusRTU, ep.RTU, ep.UnitID
+		link.Kind, link.Address, link.UnitID = config.LinkModbusRTU, ep.RTU, unit
 		link.Baud, link.DataBits, link.Parity, link.StopBits = ep.RTUBaud, 8, "even", 1
 	case config.LinkSerial:
 		link.Kind, link.Address = config.LinkSerial, line

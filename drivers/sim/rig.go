@@ -1,18 +1,21 @@
 // Package sim is plateau's simulated comparison bench: a pressure source
 // with a first-order (optionally overshooting, optionally leaking) response,
-// a reference transducer and a device under test (digital gauge, 4–20 mA
-// transmitter or analog dial read by a simulated operator), served over real
-// transports so the real drivers are exercised end to end:
+// a reference transducer and one or several devices under test (digital
+// gauge, 4–20 mA transmitter or analog dial read by a simulated operator),
+// each with its own errors, served over real transports so the real drivers
+// are exercised end to end:
 //
 //   - Modbus TCP on loopback (the server of github.com/simonvetter/modbus);
-//   - Modbus RTU on a pseudo-terminal pair (the project's own responder:
-//     t3.5 framing, CRC-16/MODBUS, function codes 01 02 03 04 05 06 15 16);
-//   - one ASCII line instrument per measuring part (reference, device), each
-//     on its own pseudo-terminal pair: send "READ?" and a line end, get
-//     "+12.3456 bar".
+//   - Modbus RTU on a pseudo-terminal pair, one line for every device (the
+//     project's own responder: t3.5 framing, CRC-16/MODBUS, function codes
+//     01 02 03 04 05 06 15 16), the n-th device at unit id n, silent for
+//     every other id as a real line is;
+//   - one ASCII line instrument per measuring part (the reference, each
+//     device), each on its own pseudo-terminal pair: send "READ?" and a line
+//     end, get "+12.3456 bar".
 //
-// All transports serve one register map (see RegisterMap and the Reg…
-// constants). The physics reads the acquisition clock, so a scaled clock
+// Every unit id serves one register map (see RegisterMap and the Reg…
+// constants): the shared reference and controller, and its own device. The physics reads the acquisition clock, so a scaled clock
 // accelerates a run, and it is deterministic given the seed. Faults (dropped
 // or slow replies, bad CRC, garbage lines, link outages, stuck values,
 // spikes) are switched on by config.SimFaults.
@@ -39,13 +42,22 @@ import (
 
 // Endpoints tells where the running rig can be reached.
 type Endpoints struct {
-	TCP           string // host:port of the Modbus TCP server (any unit id)
-	RTU           string // serial device of the Modbus RTU slave
-	UnitID        int    // the RTU slave's address
+	TCP           string // host:port of the Modbus TCP server (any unit id with one device)
+	RTU           string // serial device of the Modbus RTU line
+	UnitID        int    // the first device's unit id, where the reference and source are read
 	RTUBaud       int    // the baud rate its t3.5 timing assumes
 	ReferenceLine string // serial device of the reference's line instrument
-	DeviceLine    string // serial device of the device's line instrument
+	DeviceLine    string // serial device of the first device's line instrument
+	Devices       []DeviceEndpoint
 	Registers     []Register
+}
+
+// DeviceEndpoint is where one simulated device under test answers.
+type DeviceEndpoint struct {
+	Instrument string // the instrument that reads it ("" for the one device of simulator.device)
+	Kind       string
+	UnitID     int    // on the RTU line and over Modbus TCP
+	Line       string // serial device of its line instrument
 }
 
 // Rig is a running (or ready) simulated bench.
@@ -55,8 +67,10 @@ type Rig struct {
 	clk      clock.Clock
 	log      *slog.Logger
 	m        *model
-	j        *injector
-	bank     *bank
+	j        *injector // the first device's, which the reference and source share
+	bank     *bank     // the first device's
+	devs     []*dut
+	epoch    time.Time
 	muteMu   sync.Mutex
 	mute     map[string]bool // parts whose line instrument does not answer
 	tcpAddr  string
@@ -83,7 +97,8 @@ func WithLogger(l *slog.Logger) Option { return func(r *Rig) { r.log = l } }
 // the default, picks a free port).
 func WithTCPAddress(addr string) Option { return func(r *Rig) { r.tcpAddr = addr } }
 
-// WithUnitID sets the RTU slave address (default 1).
+// WithUnitID sets the first device's RTU slave address (default 1); the
+// others follow it.
 func WithUnitID(id uint8) Option { return func(r *Rig) { r.unit = id } }
 
 // WithDropHold sets how long a TCP reply is held back when it is "dropped":
@@ -113,10 +128,26 @@ func New(s config.Simulator, clk clock.Clock, opts ...Option) (*Rig, error) {
 	for _, o := range opts {
 		o(r)
 	}
+	if last := int(r.unit) + len(p.devs) - 1; r.unit < 1 || last > 247 {
+		return nil, fmt.Errorf("simulator: %d devices from unit id %d run past 247, the last Modbus address", len(p.devs), r.unit)
+	}
+	r.baud = p.baud
 	epoch := clk.Now()
+	r.epoch = epoch
 	r.m = newModel(p, epoch)
-	r.j = newInjector(p.faults, p.seed, epoch)
-	r.bank = &bank{m: r.m, j: r.j, clk: clk, p: p, regs: registerMap(p.refUnit.Symbol, p.devUnit.Symbol)}
+	ctl := &controller{}
+	for k, d := range p.devs {
+		// The first device keeps the rig's seed, so a one-device bench
+		// meets the faults it always met.
+		seed := p.seed
+		if k > 0 {
+			seed = splitmix(p.seed ^ uint64(k))
+		}
+		j := newInjector(p.faults, seed, epoch)
+		b := &bank{m: r.m, j: j, clk: clk, p: p, k: k, ctl: ctl, regs: registerMap(p.refUnit.Symbol, d.devUnit.Symbol)}
+		r.devs = append(r.devs, &dut{k: k, p: d, j: j, bank: b, unit: r.unit + uint8(k)})
+	}
+	r.j, r.bank = r.devs[0].j, r.devs[0].bank
 	return r, nil
 }
 
@@ -143,33 +174,37 @@ func (r *Rig) Start(ctx context.Context) (Endpoints, error) {
 	r.tcp = tcp
 	ep := Endpoints{TCP: addr, UnitID: int(r.unit), RTUBaud: r.baud, Registers: r.bank.regs}
 
-	paths := []*string{&ep.RTU, &ep.ReferenceLine, &ep.DeviceLine}
-	for _, path := range paths {
+	// One line for the RTU bus, one for the reference, one per device.
+	for range 2 + len(r.devs) {
 		port, err := openPTY()
 		if err != nil {
 			return fail(err)
 		}
 		r.ports = append(r.ports, port)
-		*path = port.Path
 	}
-	rtu := &rtuResponder{unit: r.unit, h: r.bank}
-	rtuPort, refPort, devPort := r.ports[0], r.ports[1], r.ports[2]
-	r.run(ctx, func(ctx context.Context) error { return r.serveRTU(ctx, rtuPort, rtu) })
+	rtuPort, refPort := r.ports[0], r.ports[1]
+	ep.RTU, ep.ReferenceLine, ep.DeviceLine = rtuPort.Path, refPort.Path, r.ports[2].Path
+	line := newRTULine(r.devs)
+	r.run(ctx, func(ctx context.Context) error { return r.serveRTU(ctx, rtuPort, line) })
 	r.run(ctx, func(ctx context.Context) error {
-		return r.serveLines(ctx, refPort, "reference", func(s Sample) (float64, string, bool) {
+		return r.serveLines(ctx, refPort, "reference", r.devs[0], func(s Sample) (float64, string, bool) {
 			return s.Reference, r.p.refUnit.Symbol, false
 		}, r.p.refUnit.FromPa(r.p.refRes))
 	})
-	r.run(ctx, func(ctx context.Context) error {
-		if r.p.kind == KindTransmitter {
-			return r.serveLines(ctx, devPort, "device", func(s Sample) (float64, string, bool) {
-				return s.Current, "mA", false
-			}, 0.001)
-		}
-		return r.serveLines(ctx, devPort, "device", func(s Sample) (float64, string, bool) {
-			return s.Device, r.p.devUnit.Symbol, s.Over
-		}, r.p.devUnit.FromPa(r.p.devRes))
-	})
+	for k, d := range r.devs {
+		port := r.ports[2+k]
+		ep.Devices = append(ep.Devices, DeviceEndpoint{Instrument: d.p.instrument, Kind: d.p.kind, UnitID: int(d.unit), Line: port.Path})
+		r.run(ctx, func(ctx context.Context) error {
+			if d.p.kind == KindTransmitter {
+				return r.serveLines(ctx, port, d.part(), d, func(s Sample) (float64, string, bool) {
+					return s.Current, "mA", false
+				}, 0.001)
+			}
+			return r.serveLines(ctx, port, d.part(), d, func(s Sample) (float64, string, bool) {
+				return s.Device, d.p.devUnit.Symbol, s.Over
+			}, d.p.devUnit.FromPa(d.p.devRes))
+		})
+	}
 	if r.p.faults.LinkDown > 0 {
 		r.run(ctx, r.superviseLink)
 	}
@@ -231,12 +266,20 @@ func (r *Rig) Endpoints() Endpoints {
 // rig's units.
 func (r *Rig) RegisterMap() []Register { return r.bank.regs }
 
-// Sample is what the instruments show now (faults not applied).
-func (r *Rig) Sample() Sample { return r.m.sample(r.clk.Now()) }
+// Sample is what the instruments show now (faults not applied), with the
+// first device.
+func (r *Rig) Sample() Sample { return r.m.sample(r.clk.Now(), 0) }
 
-// Mute silences the line instrument of one part ("reference" or
-// "device"): it stops answering, as an instrument whose cable was pulled
-// does, until Mute is called again with false.
+// DeviceSample is Sample with device k (0 for the first).
+func (r *Rig) DeviceSample(k int) Sample { return r.m.sample(r.clk.Now(), k) }
+
+// Devices is how many devices under test the rig holds.
+func (r *Rig) Devices() int { return len(r.devs) }
+
+// Mute silences the line instrument of one part ("reference", "device"
+// for the first device, "device 2" and on for the others): it stops
+// answering, as an instrument whose cable was pulled does, until Mute is
+// called again with false.
 func (r *Rig) Mute(part string, on bool) {
 	r.muteMu.Lock()
 	defer r.muteMu.Unlock()
@@ -254,7 +297,7 @@ func (r *Rig) muted(part string) bool {
 
 // Writes is the log of every setpoint and vent the simulated controller
 // accepted over the wire, in order.
-func (r *Rig) Writes() []Write { return r.bank.accepted() }
+func (r *Rig) Writes() []Write { return r.bank.ctl.accepted() }
 
 // SetPoint moves the simulated source directly, as its front panel would.
 func (r *Rig) SetPoint(pa float64) error {
@@ -274,7 +317,23 @@ func (r *Rig) Vent() { r.m.vent(r.clk.Now()) }
 // assumes the approach moved the pointer through the whole dead band (an
 // overshoot larger than the dead band puts an upward point on the
 // downward branch, as on a real bench).
-func (r *Rig) DeviceError(p float64, d analysis.Direction) float64 { return r.m.deviceError(p, d) }
+func (r *Rig) DeviceError(p float64, d analysis.Direction) float64 { return r.m.deviceError(0, p, d) }
+
+// DeviceErrorOf is DeviceError for device k (0 for the first), in the
+// order of simulator.devices.
+func (r *Rig) DeviceErrorOf(k int, p float64, d analysis.Direction) float64 {
+	return r.m.deviceError(k, p, d)
+}
+
+// DeviceIndex is the index of the simulated device the named instrument
+// reads, false when none does.
+func (r *Rig) DeviceIndex(instrument string) (int, bool) {
+	d, err := r.deviceFor(instrument)
+	if err != nil {
+		return 0, false
+	}
+	return d.k, true
+}
 
 // ReferenceError is the reference transducer's own error at true pressure
 // p, in pascal (its % of reading error).
@@ -353,54 +412,84 @@ func (r *Rig) superviseLink(ctx context.Context) error {
 	}
 }
 
-// tcpHandler applies the transport faults to the bank's answers.
+// tcpHandler applies the transport faults to the answers of the bank of
+// the device a request's unit id names. Over TCP the rig is a gateway: the
+// reference and the controller answer at any unit id; a device's registers
+// answer at its own unit id only (at any id when there is one device).
 type tcpHandler struct{ r *Rig }
 
-func (h *tcpHandler) delay() error {
-	f := h.r.j.request(0)
+// pick finds the device for a request and applies its transport faults.
+func (h *tcpHandler) pick(unit uint8, table string, addr, qty uint16) (*bank, error) {
+	r := h.r
+	d := r.deviceAt(unit)
+	if d == nil {
+		if len(r.devs) > 1 && touchesDevice(r.bank.regs, table, addr, qty) {
+			return nil, modbus.ErrGWPathUnavailable // no such device behind the gateway
+		}
+		d = r.devs[0]
+	}
+	if r.cut(d) && touchesDevice(r.bank.regs, table, addr, qty) {
+		time.Sleep(r.dropHold) // the gateway waits for the device in vain
+		return nil, modbus.ErrGWTargetFailedToRespond
+	}
+	f := d.j.request(0)
 	switch {
 	case f.drop:
-		time.Sleep(h.r.dropHold)
-		return modbus.ErrServerDeviceBusy
+		time.Sleep(r.dropHold)
+		return nil, modbus.ErrServerDeviceBusy
 	case f.delay > 0:
 		time.Sleep(f.delay)
 	}
-	return nil
+	return d.bank, nil
 }
 
 func (h *tcpHandler) HandleCoils(req *modbus.CoilsRequest) ([]bool, error) {
-	if err := h.delay(); err != nil {
+	b, err := h.pick(req.UnitId, "coil", req.Addr, req.Quantity)
+	if err != nil {
 		return nil, err
 	}
-	return h.r.bank.HandleCoils(req)
+	return b.HandleCoils(req)
 }
 
 func (h *tcpHandler) HandleDiscreteInputs(req *modbus.DiscreteInputsRequest) ([]bool, error) {
-	if err := h.delay(); err != nil {
+	b, err := h.pick(req.UnitId, "discrete", req.Addr, req.Quantity)
+	if err != nil {
 		return nil, err
 	}
-	return h.r.bank.HandleDiscreteInputs(req)
+	return b.HandleDiscreteInputs(req)
 }
 
 func (h *tcpHandler) HandleHoldingRegisters(req *modbus.HoldingRegistersRequest) ([]uint16, error) {
-	if err := h.delay(); err != nil {
+	b, err := h.pick(req.UnitId, "holding", req.Addr, req.Quantity)
+	if err != nil {
 		return nil, err
 	}
-	return h.r.bank.HandleHoldingRegisters(req)
+	return b.HandleHoldingRegisters(req)
 }
 
 func (h *tcpHandler) HandleInputRegisters(req *modbus.InputRegistersRequest) ([]uint16, error) {
-	if err := h.delay(); err != nil {
+	b, err := h.pick(req.UnitId, "input", req.Addr, req.Quantity)
+	if err != nil {
 		return nil, err
 	}
-	return h.r.bank.HandleInputRegisters(req)
+	return b.HandleInputRegisters(req)
 }
 
-// serveRTU answers RTU frames on a pseudo-terminal.
-func (r *Rig) serveRTU(ctx context.Context, port *ptyPort, rtu *rtuResponder) error {
+// serveRTU answers RTU frames on a pseudo-terminal: each device at its
+// unit id, silence for any other id and for a device whose link is cut.
+//
+// A pseudo-terminal carries bytes at memory speed. With rtu.wire_time on,
+// a reply leaves only when the request and the reply would have crossed a
+// real line at the configured baud: counted from the request's first byte,
+// its characters, the 3.5-character silence that ends it, and the reply's
+// characters, at 11 bits a character (Modbus over Serial Line V1.02
+// §2.5.1). The client's own t3.5 wait before its next request then makes up
+// the rest of the wire time, so the pty carries what the line would.
+func (r *Rig) serveRTU(ctx context.Context, port *ptyPort, line *rtuLine) error {
 	gap := silence3_5(r.baud)
+	char := 11 * time.Second / time.Duration(r.baud)
 	for ctx.Err() == nil {
-		frame, err := port.readFrame(gap, 200*time.Millisecond)
+		frame, arrived, err := port.readFrame(gap, 200*time.Millisecond)
 		if errors.Is(err, errIdle) {
 			continue
 		}
@@ -410,10 +499,18 @@ func (r *Rig) serveRTU(ctx context.Context, port *ptyPort, rtu *rtuResponder) er
 		if r.j.linkDown(r.clk.Now()) {
 			continue
 		}
-		f := r.j.request(r.p.faults.BadCRC)
+		d, rtu := line.route(frame)
+		if d == nil || r.cut(d) {
+			continue
+		}
+		f := d.j.request(r.p.faults.BadCRC)
 		reply := rtu.respond(frame)
 		if reply == nil || f.drop {
 			continue
+		}
+		if r.p.wireTime {
+			chars := float64(len(frame)) + 3.5 + float64(len(reply))
+			sleepCtx(ctx, time.Until(arrived.Add(time.Duration(chars*float64(char)))))
 		}
 		sleepCtx(ctx, f.delay)
 		if f.corrupt {
