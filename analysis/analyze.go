@@ -421,6 +421,9 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 		res.Drift = drift(res.Points, zeros)
 	}
 	res.Warnings = append([]string{}, warnings...)
+	if err := withOutput(&res, points, dev, opt); err != nil {
+		return Result{}, err
+	}
 	return res, nil
 }
 

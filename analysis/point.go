@@ -50,4 +50,7 @@ type Point struct {
 	// Device names the device under test the point belongs to when a run
 	// calibrates several at once; empty for a run with one device.
 	Device string `json:"device,omitempty"`
+	// Signal flags a transmitter output outside the NE 43 measuring band
+	// (output.go); empty for an ordinary reading and in older records.
+	Signal Signal `json:"signal,omitempty"`
 }

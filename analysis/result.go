@@ -51,6 +51,8 @@ type Result struct {
 	MinExpandedRatio  *float64 `json:"min_mpe_to_expanded_uncertainty,omitempty"`
 	Decision          Outcome  `json:"decision"` // the worst point's outcome
 	Warnings          []string `json:"warnings"`
+	// Output is a transmitter's calibration in mA (output.go); nil for other devices.
+	Output *OutputResult `json:"output,omitempty"`
 }
 
 // Coverage states how the expanded uncertainty was obtained.

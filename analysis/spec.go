@@ -23,6 +23,8 @@ type Device struct {
 	// ReferenceTemperatureC; 0 means not specified.
 	TempCoefficient       float64 `json:"temperature_coefficient_percent_span_per_k,omitempty"`
 	ReferenceTemperatureC float64 `json:"reference_temperature_c,omitempty"`
+	// Loop is a 4–20 mA transmitter's output, calibrated in mA (output.go); nil for other devices.
+	Loop *Loop `json:"loop,omitempty"`
 }
 
 // Span is the upper minus the lower range value; compound ranges use the full span.
