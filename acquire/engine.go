@@ -28,6 +28,7 @@ import (
 	"plateau/acquire/settle"
 	"plateau/acquire/store"
 	"plateau/analysis"
+	"plateau/analysis/readout"
 	"plateau/analysis/units"
 	"plateau/config"
 	"plateau/drivers"
@@ -248,7 +249,18 @@ func settleRules(cfg *config.Config) settle.Rules {
 	return settle.Rules{
 		Window: s.Window, MinSamples: s.MinCount,
 		MaxDrift: s.MaxDriftPaPerS, MaxSpread: s.MaxSpreadPa, Band: s.BandPa,
+		Show: showOf(cfg.Device),
 	}
+}
+
+// showOf is how people read pressures of this bench: the device's unit,
+// with the digits its resolution supports (pascal when it has no unit).
+func showOf(d config.Device) settle.Display {
+	u, err := units.Lookup(d.Unit)
+	if err != nil {
+		u = units.Pascal
+	}
+	return settle.Display{Unit: u, ResolutionPa: d.ResolutionPa}
 }
 
 // deviceRules loosens the settle rule for the device under test to what its
@@ -376,23 +388,8 @@ func (e *Engine) clockStepped(name string, by time.Duration) {
 }
 
 func (e *Engine) fmtPa(pa float64) string {
-	u, err := units.Lookup(e.cfg.Device.Unit)
-	if err != nil {
-		return fmt.Sprintf("%.1f Pa", pa)
-	}
-	return formatIn(pa, u, e.cfg.Device.ResolutionPa)
-}
-
-// formatIn prints a pressure in fixed notation with the digits the
-// device's resolution supports.
-func formatIn(pa float64, u units.Unit, resolutionPa float64) string {
-	v := u.FromPa(pa)
-	digits := 4
-	if resolutionPa > 0 {
-		r := u.FromPa(resolutionPa)
-		digits = max(0, min(9, int(math.Ceil(-math.Log10(r)-1e-9))))
-	}
-	return fmt.Sprintf("%.*f %s", digits, v, u.Symbol)
+	show := showOf(e.cfg.Device)
+	return readout.WithUnit(pa, show.Unit, show.ResolutionPa)
 }
 
 // planPrint fingerprints a plan (mode and every step), so that a resume can

@@ -7,7 +7,7 @@
 //  1. full: the window spans at least Rules.Window of time and holds at least
 //     Rules.MinSamples samples;
 //  2. drift: |slope| of the least-squares line through (time, pressure) is at
-//     most Rules.MaxDrift (Pa/s);
+//     most Rules.MaxDrift (Pa/s; Why writes it per minute, as it is set);
 //  3. scatter: the residual standard deviation about that line, with n − 2
 //     degrees of freedom, is at most Rules.MaxSpread (Pa);
 //  4. range: max − min over the window is at most Rules.MaxRange (Pa), when
@@ -37,6 +37,8 @@ import (
 	"time"
 
 	"plateau/analysis"
+	"plateau/analysis/readout"
+	"plateau/analysis/units"
 )
 
 // Rules say when a window counts as settled. Pressures in Pa, drift in Pa/s.
@@ -47,6 +49,31 @@ type Rules struct {
 	MaxSpread  float64       // largest residual standard deviation about that line, Pa (> 0)
 	MaxRange   float64       // largest max − min over the window, Pa; 0 = not checked
 	Band       float64       // largest |mean − target|, Pa; 0 = no target check
+	// Show is how Why writes its figures for people; the zero value writes
+	// pascal.
+	Show Display
+}
+
+// Display is the unit people read pressures in and the resolution that
+// sets their digits (one more than a reading's, since the figures of a
+// window are means and slopes).
+type Display struct {
+	Unit         units.Unit
+	ResolutionPa float64
+}
+
+// pa writes a pressure (or a difference) with its unit.
+func (d Display) pa(v float64) string {
+	u := d.Unit
+	if u.Symbol == "" {
+		u = units.Pascal
+	}
+	return readout.MeanWithUnit(v, u, d.ResolutionPa)
+}
+
+// perMinute writes a drift given in Pa/s per minute, as the limit is set.
+func (d Display) perMinute(paPerS float64) string {
+	return d.pa(60*paPerS) + "/min"
 }
 
 // Validate lists every rule that cannot work.
@@ -306,14 +333,14 @@ func (d *Detector) Status() Status {
 	case n < r.MinSamples:
 		st.Why = fmt.Sprintf("too few samples: %d in the window, need %d", n, r.MinSamples)
 	case math.Abs(w.Slope) > r.MaxDrift:
-		st.Why = fmt.Sprintf("drifting: %.4g Pa/s, limit %.4g Pa/s", w.Slope, r.MaxDrift)
+		st.Why = fmt.Sprintf("drifting %s, limit %s", r.Show.perMinute(w.Slope), r.Show.perMinute(r.MaxDrift))
 	case st.ResidualSD > r.MaxSpread:
-		st.Why = fmt.Sprintf("scatter: %.4g Pa about the trend, limit %.4g Pa", st.ResidualSD, r.MaxSpread)
+		st.Why = fmt.Sprintf("scattered %s about the trend, limit %s", r.Show.pa(st.ResidualSD), r.Show.pa(r.MaxSpread))
 	case r.MaxRange > 0 && st.Range > r.MaxRange:
-		st.Why = fmt.Sprintf("range: max − min %.4g Pa, limit %.4g Pa", st.Range, r.MaxRange)
+		st.Why = fmt.Sprintf("range %s from lowest to highest, limit %s", r.Show.pa(st.Range), r.Show.pa(r.MaxRange))
 	case d.hasTarget && r.Band > 0 && math.Abs(w.Mean-d.target) > r.Band:
-		st.Why = fmt.Sprintf("off target: mean %.6g Pa is %.4g Pa from %.6g Pa, band %.4g Pa",
-			w.Mean, w.Mean-d.target, d.target, r.Band)
+		st.Why = fmt.Sprintf("off target: mean %s is %s from %s, band %s",
+			r.Show.pa(w.Mean), r.Show.pa(w.Mean-d.target), r.Show.pa(d.target), r.Show.pa(r.Band))
 	default:
 		st.Settled = true
 	}

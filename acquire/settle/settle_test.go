@@ -9,6 +9,8 @@ import (
 	"time"
 
 	"gonum.org/v1/gonum/stat"
+
+	"plateau/analysis/units"
 )
 
 // t0 is an arbitrary wall time; large absolute times are part of the test.
@@ -501,5 +503,44 @@ func TestVerdictMatchesDirectRules(t *testing.T) {
 					seed, i, st.Settled, want, st.Why, o.slope, o.resSD, o.rng, o.mean, r)
 			}
 		}
+	}
+}
+
+// Why is read by people: the device's unit, drift per minute as the limit
+// is configured, fixed notation with the digits the resolution supports (one
+// more, for figures of a window), never Pa/s or scientific notation.
+func TestWhyInTheUnitPeopleRead(t *testing.T) {
+	bar := units.Bar
+	res := 1e3 // 0.01 bar
+	perMin := func(barPerMin float64) float64 { return barPerMin * 1e5 / 60 }
+	for _, tc := range []struct {
+		name  string
+		rules func(*Rules)
+		p     func(s float64) float64
+		want  string
+	}{
+		{"drift per minute", func(r *Rules) { r.MaxDrift = perMin(0.002) },
+			func(s float64) float64 { return 4e5 + perMin(0.004)*s }, "drifting 0.004 bar/min, limit 0.002 bar/min"},
+		{"scatter", func(r *Rules) { r.MaxSpread = 100 },
+			func(s float64) float64 { return 4e5 + 500*math.Sin(7*s) }, "scattered 0.004 bar about the trend, limit 0.001 bar"},
+		{"range", func(r *Rules) { r.MaxRange = 200 },
+			func(s float64) float64 { return 4e5 + 300*float64(int(s)%2) }, "range 0.003 bar from lowest to highest, limit 0.002 bar"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			r := Rules{Window: 10 * time.Second, MinSamples: 5, MaxDrift: perMin(1), MaxSpread: 1e4, Show: Display{Unit: bar, ResolutionPa: res}}
+			tc.rules(&r)
+			d := mustNew(t, r)
+			_, st := feed(t, d, t0, 100*time.Millisecond, 2*r.Window, tc.p)
+			if st.Why != tc.want {
+				t.Errorf("why %q, want %q", st.Why, tc.want)
+			}
+		})
+	}
+	// A target far off, with no display set: pascal, still fixed notation.
+	d := mustNew(t, Rules{Window: time.Second, MinSamples: 3, MaxDrift: 1, MaxSpread: 1, Band: 5e-7})
+	d.SetTarget(1e-6)
+	feed(t, d, t0, 100*time.Millisecond, 2*time.Second, func(float64) float64 { return 3e-6 })
+	if why := d.Status().Why; strings.Contains(why, "e-") || !strings.HasPrefix(why, "off target: mean 0.000003") {
+		t.Errorf("why %q: want the target rule in fixed notation", why)
 	}
 }
