@@ -5,18 +5,22 @@ import (
 	"fmt"
 	"math"
 
+	"plateau/analysis"
 	"plateau/analysis/units"
 	"plateau/config"
 )
 
 // NAMUR NE 43 signal bands (REFERENCES.md §7, [C-sec]): 3.8 … 20.5 mA carries
 // a measurement (including saturation just outside 4–20 mA); anything outside
-// is a failure signal or undefined, never a pressure.
+// is a failure signal or undefined. For the reference (and so for the safety
+// guard) such a current is never a pressure; the device under test's is
+// kept and flagged (analysis.ClassifyCurrent), since an as-found
+// transmitter reading 3.70 mA at zero is a finding, not a lost reading.
 const (
-	LoopValidLow  = 3.8  // mA
-	LoopValidHigh = 20.5 // mA
-	loopZero      = 4.0  // mA at the lower range value
-	loopSpan      = 16.0 // mA from lower to upper range value
+	LoopValidLow  = analysis.BandLowMA  // mA
+	LoopValidHigh = analysis.BandHighMA // mA
+	loopZero      = analysis.LoopZeroMA // mA at the lower range value
+	loopSpan      = analysis.LoopSpanMA // mA from lower to upper range value
 )
 
 // CurrentLoop scales a linear 4–20 mA transmitter output to pressure over
@@ -64,7 +68,12 @@ func (c CurrentLoop) Pa(mA float64) (float64, error) {
 	if !(mA >= LoopValidLow && mA <= LoopValidHigh) { // also catches NaN
 		return 0, fmt.Errorf("%.3f mA: %w", mA, ErrLoopFault)
 	}
-	return c.LowerPa + (mA-loopZero)/loopSpan*(c.UpperPa-c.LowerPa), nil
+	return c.scale(mA), nil
+}
+
+// scale is the linear scaling without the band check.
+func (c CurrentLoop) scale(mA float64) float64 {
+	return c.LowerPa + (mA-loopZero)/loopSpan*(c.UpperPa-c.LowerPa)
 }
 
 // MilliAmps is the ideal output current for a pressure:
@@ -78,10 +87,15 @@ func (c CurrentLoop) MilliAmps(pa float64) float64 {
 type Conversion struct {
 	Unit units.Unit   // unit of the raw value when it is a pressure
 	Loop *CurrentLoop // set when the raw value is a loop current in mA
+	// KeepOutOfBand: a finite loop current outside the NE 43 band is a
+	// reading, to be flagged downstream, rather than a fault. Set for the
+	// device under test only.
+	KeepOutOfBand bool
 }
 
 // NewConversion builds the conversion for an instrument: a pressure unit, or
-// "mA" with the current loop enabled.
+// "mA" with the current loop enabled. A device under test keeps currents
+// outside the NE 43 band; every other role refuses them.
 func NewConversion(inst config.Instrument) (Conversion, error) {
 	if inst.Loop.Enabled {
 		if inst.Unit != "mA" {
@@ -91,7 +105,7 @@ func NewConversion(inst config.Instrument) (Conversion, error) {
 		if err != nil {
 			return Conversion{}, fmt.Errorf("instrument %q: %w", inst.Name, err)
 		}
-		return Conversion{Loop: &loop}, nil
+		return Conversion{Loop: &loop, KeepOutOfBand: inst.Role == config.RoleDevice}, nil
 	}
 	u, err := units.Lookup(inst.Unit)
 	if err != nil {
@@ -109,8 +123,11 @@ func (c Conversion) RawUnit() string {
 }
 
 // ToPa converts a raw value to pascal. A loop current outside the NAMUR band
-// gives an error that wraps ErrLoopFault.
+// gives an error that wraps ErrLoopFault, unless KeepOutOfBand.
 func (c Conversion) ToPa(raw float64) (float64, error) {
+	if c.Loop != nil && c.KeepOutOfBand {
+		return c.Loop.scale(raw), nil
+	}
 	if c.Loop != nil {
 		return c.Loop.Pa(raw)
 	}

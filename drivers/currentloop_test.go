@@ -46,6 +46,39 @@ func TestCurrentLoopNamurFaults(t *testing.T) {
 	}
 }
 
+// The device under test's current outside the NE 43 band is a reading,
+// scaled as inside it (REFERENCES.md §7: p = LRV + (I − 4)/16 × span; on
+// 0–10 bar, 3.70 mA is −0.1875 bar and 21.0 mA is 10.625 bar); the
+// reference's stays a fault, whatever its value.
+func TestCurrentLoopDeviceKeepsOutOfBand(t *testing.T) {
+	loopCfg := config.CurrentLoop{Enabled: true, Lower: "0 bar", Upper: "10 bar"}
+	dev, err := NewConversion(config.Instrument{Name: "tx", Role: config.RoleDevice, Unit: "mA", Loop: loopCfg})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ref, err := NewConversion(config.Instrument{Name: "ref", Role: config.RoleReference, Unit: "mA", Loop: loopCfg})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !dev.KeepOutOfBand || ref.KeepOutOfBand {
+		t.Fatalf("keep: device %v, reference %v", dev.KeepOutOfBand, ref.KeepOutOfBand)
+	}
+	cases := []struct{ mA, bar float64 }{
+		{3.70, -0.1875}, {3.6, -0.25}, {0, -2.5}, {20.6, 10.375}, {21.0, 10.625}, {12, 5},
+	}
+	for _, c := range cases {
+		r, err := dev.Finish("tx", Reading{Raw: c.mA})
+		if err != nil || math.Abs(r.Pa-c.bar*1e5) > 1e-6 || r.Raw != c.mA || r.RawUnit != "mA" {
+			t.Errorf("device at %g mA: %+v %v, want %g bar", c.mA, r, err, c.bar)
+		}
+		_, err = ref.Finish("ref", Reading{Raw: c.mA})
+		inBand := c.mA >= LoopValidLow && c.mA <= LoopValidHigh
+		if inBand != (err == nil) || (!inBand && !errors.Is(err, ErrLoopFault)) {
+			t.Errorf("reference at %g mA: %v", c.mA, err)
+		}
+	}
+}
+
 func TestNewConversion(t *testing.T) {
 	cases := []struct {
 		name string
@@ -96,6 +129,8 @@ func TestFinishRefusesNonFinite(t *testing.T) {
 		{"finite bar, infinite pascal", bar, 1e304},
 		{"loop conversion overflows", Conversion{Loop: &huge}, 20.5},
 		{"NaN loop current", Conversion{Loop: &huge}, math.NaN()},
+		{"NaN loop current of a device", Conversion{Loop: &huge, KeepOutOfBand: true}, math.NaN()},
+		{"device loop conversion overflows", Conversion{Loop: &huge, KeepOutOfBand: true}, 22},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
