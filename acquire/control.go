@@ -51,6 +51,13 @@ type Status struct {
 	// Expected is the least time the whole plan takes (holds, windows and
 	// dwells; settling adds to it).
 	Expected time.Duration `json:"expected_ns"`
+	// StepLeft and RunLeft estimate how long the current step and the
+	// whole run still need (clock time), when Estimated: the plan's time
+	// for what is left, scaled by how long the steps so far took against
+	// their plan (reaching pressure and settling add to the plan).
+	StepLeft  time.Duration `json:"step_left_ns"`
+	RunLeft   time.Duration `json:"run_left_ns"`
+	Estimated bool          `json:"estimated"`
 	// PointsCommitted counts points committed since the engine started.
 	PointsCommitted uint64 `json:"points_committed"`
 	// Last is the run that ended most recently in this process.
@@ -71,6 +78,7 @@ func (e *Engine) Status() Status {
 	if v, ok := e.runs.snapshot(); ok {
 		s.Run, s.State, s.Reason, s.Since = v.ID.String(), string(v.State), v.Reason, v.Since
 		s.Step, s.Points, s.Phase, s.TargetPa = v.Step, v.Points, v.Phase, v.Target
+		s.StepLeft, s.RunLeft, s.Estimated = e.remaining(v, e.clk.Now())
 	}
 	if l := e.runs.last.Load(); l != nil {
 		s.Last = &LastRun{Run: l.ID.String(), State: string(l.State), Reason: l.Reason}
@@ -146,7 +154,8 @@ func (e *Engine) launch(id store.RunID, step int, paused bool, why string) {
 	if paused {
 		st = store.StatePaused
 	}
-	e.runs.begin(r, runView{ID: id, State: st, Reason: why, Step: step, Since: e.clk.Now()})
+	now := e.clk.Now()
+	e.runs.begin(r, runView{ID: id, State: st, Reason: why, Step: step, Since: now, StepSince: now})
 	e.samples.setRun(id)
 	go e.execute(ctx, r, step)
 }
@@ -531,8 +540,17 @@ func (rr *runRecorder) Event(level slog.Level, typ, instrument, msg string, data
 }
 
 func (rr *runRecorder) Progress(step, points int, target float64, phase string) {
+	now := rr.e.clk.Now()
 	rr.e.runs.update(func(v *runView) {
 		if v.ID == rr.r.id {
+			if step == v.Step+1 && !v.StepSince.IsZero() {
+				v.Timed++
+				v.TimedFor += now.Sub(v.StepSince)
+				v.TimedPlan += rr.e.stepPlan(v.Step)
+			}
+			if step != v.Step || v.StepSince.IsZero() {
+				v.StepSince = now
+			}
 			v.Step, v.Target, v.Phase = step, target, phase
 			if points >= 0 {
 				v.Points = points

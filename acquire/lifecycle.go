@@ -49,6 +49,12 @@ type runView struct {
 	Target float64
 	Phase  string
 	Since  time.Time // when the run entered State (the pause time while paused)
+	// StepSince is when the current step began (clock time); Timed counts
+	// the steps finished in this process, which took TimedFor against a
+	// plan of TimedPlan: the estimate of what is left scales the plan by it.
+	StepSince           time.Time
+	Timed               int
+	TimedFor, TimedPlan time.Duration
 }
 
 func (l *lifecycle) active() *activeRun { return l.cur.Load() }

@@ -5,7 +5,6 @@ import (
 	"log/slog"
 	"time"
 
-	"plateau/acquire/procedure"
 	"plateau/acquire/store"
 )
 
@@ -18,24 +17,11 @@ type spaceReporter interface {
 // twice) over the compact encoding of realistic data.
 const bytesPerSample = 8
 
-// ExpectedDuration is the least time the plan takes: for every capture the
-// hold and one settling window, the top dwell, and the exercise dwells.
-// Settling itself usually adds to it.
+// ExpectedDuration is the least time the plan takes (PlanDuration);
+// settling itself usually adds to it.
 func (e *Engine) ExpectedDuration() time.Duration {
-	pr := e.cfg.Procedure
-	var d time.Duration
-	for _, s := range e.steps {
-		switch s.Kind {
-		case procedure.StepExercise:
-			d += pr.ExerciseHold + 2*pr.Hold
-		case procedure.StepCapture:
-			d += pr.Hold + pr.Settle.Window
-			if s.TopHold {
-				d += pr.TopHold
-			}
-		}
-	}
-	return d
+	least, _ := PlanDuration(e.cfg.Procedure, e.steps)
+	return least
 }
 
 // bytesNeeded estimates what a whole run writes: every polled instrument's

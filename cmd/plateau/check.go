@@ -3,15 +3,14 @@ package main
 import (
 	"fmt"
 	"io"
-	"math"
 	"strconv"
 	"strings"
 	"time"
 
 	"github.com/spf13/cobra"
 
+	"plateau/acquire"
 	"plateau/acquire/procedure"
-	"plateau/analysis/units"
 	"plateau/config"
 )
 
@@ -70,8 +69,9 @@ func describe(out io.Writer, cfg *config.Config) {
 		if len(cfg.Devices) > 1 {
 			id += " (" + dut.Instrument + ")"
 		}
+		show, _ := displayFor(d, "")
 		fmt.Fprintf(out, "  device under test  %s, %s … %s, resolution %s\n", id,
-			fixed(d.LowerPa, d), fixed(d.UpperPa, d), fixed(d.ResolutionPa, d))
+			show.withUnit(d.LowerPa), show.withUnit(d.UpperPa), show.withUnit(d.ResolutionPa))
 	}
 	r := cfg.Reference
 	fmt.Fprintf(out, "  reference          %s, U = %s of reading + %s (k = %s)\n", orDash(r.ID), r.Uncertainty, r.Floor,
@@ -82,18 +82,19 @@ func describe(out io.Writer, cfg *config.Config) {
 	for _, in := range cfg.Instruments {
 		fmt.Fprintf(out, "  instrument         %-12s %-9s %s %s\n", in.Name, in.Role, in.Link.Kind, in.Link.Address)
 	}
+	show, _ := displayFor(cfg.Device, "")
 	p := cfg.Procedure
 	fmt.Fprintf(out, "  procedure          %s: %d points × %d cycle(s), %d exercise cycle(s), decision rule %s\n",
 		p.Mode, len(p.PointsPa), p.Cycles, p.Exercise, p.Decision)
 	if len(p.PointsPa) > 0 {
 		pts := make([]string, len(p.PointsPa))
 		for i, pa := range p.PointsPa {
-			pts[i] = fixed(pa, cfg.Device)
+			pts[i] = show.withUnit(pa)
 		}
 		fmt.Fprintf(out, "  points             %s\n", strings.Join(pts, ", "))
 	}
 	if cfg.Safety.Set {
-		fmt.Fprintf(out, "  safety limit       %s\n", fixed(cfg.Safety.MaxPressurePa, cfg.Device))
+		fmt.Fprintf(out, "  safety limit       %s\n", show.withUnit(cfg.Safety.MaxPressurePa))
 	}
 	if least, most, ok := runLength(cfg); ok {
 		fmt.Fprintf(out, "  duration           at least %s (holds and settle windows), at most %s (every point to its time-out); reaching each pressure comes on top\n",
@@ -110,30 +111,15 @@ func describe(out io.Writer, cfg *config.Config) {
 	fmt.Fprintf(out, "  store              %s\n", cfg.Store.Path)
 }
 
-// runLength bounds how long a planned run takes from its plan: each
-// capture waits its hold and a full settle window at least, its time-out at
-// most; exercise cycles dwell at the top, and the first descending point
-// of each cycle waits its top hold.
+// runLength bounds how long a planned run takes from its plan
+// (acquire.PlanDuration); a free run has no plan to bound.
 func runLength(cfg *config.Config) (least, most time.Duration, ok bool) {
 	pr := cfg.Procedure
 	if pr.Mode != string(procedure.Planned) {
 		return 0, 0, false
 	}
 	steps := procedure.Plan(pr, cfg.Device.LowerPa)
-	for _, st := range steps {
-		switch st.Kind {
-		case procedure.StepExercise:
-			least += pr.ExerciseHold
-			most += pr.ExerciseHold
-		case procedure.StepCapture:
-			least += pr.Hold + pr.Settle.Window
-			most += pr.Hold + pr.Timeout
-			if st.TopHold {
-				least += pr.TopHold
-				most += pr.TopHold
-			}
-		}
-	}
+	least, most = acquire.PlanDuration(pr, steps)
 	return least, most, len(steps) > 0
 }
 
@@ -149,21 +135,6 @@ func roundDuration(d time.Duration) string {
 		s = strings.Replace(s, z, z[:1], 1)
 	}
 	return s
-}
-
-// fixed writes a pressure in the device's unit with as many decimals as
-// its resolution has: 0.01 bar gives two.
-func fixed(pa float64, d config.Device) string {
-	u, err := units.Lookup(d.Unit)
-	if err != nil {
-		u = units.Pascal
-	}
-	digits := 0
-	if d.ResolutionPa > 0 {
-		step := u.FromPa(d.ResolutionPa)
-		digits = max(0, int(math.Ceil(-math.Log10(step)-1e-9)))
-	}
-	return strconv.FormatFloat(u.FromPa(pa), 'f', min(digits, 9), 64) + " " + u.Symbol
 }
 
 func orDash(s string) string {

@@ -93,8 +93,8 @@ func TestCheckExitStatus(t *testing.T) {
 	}{
 		{"clean file", clean, nil, 0, ": OK\n"},
 		{"points in fixed notation", clean, nil, 0, "points             0.00 bar, 3.20 bar, 6.40 bar"},
-		// sim.yaml: one exercise (10s dwell), 2 cycles × 14 captures × (5s hold + 10s window or 5m time-out), 20s at the top of each cycle.
-		{"duration of the run", clean, nil, 0, "duration           at least 7m50s (holds and settle windows), at most 2h23m (every point to its time-out)"},
+		// sim.yaml: one exercise (10s dwell, 5s hold at the bottom), 2 cycles × 14 captures × (5s hold + 10s window or 5m time-out), 20s at the top of each cycle.
+		{"duration of the run", clean, nil, 0, "duration           at least 7m55s (holds and settle windows), at most 2h23m (every point to its time-out)"},
 		{"duration at the simulator's speed", clean, nil, 0, "runs 60× faster: at least 8s of wall time"},
 		{"file missing", filepath.Join(dir, "none.yaml"), nil, 1, "no such file"},
 		{"a variable that sets nothing", clean, []string{"PLATEAU_STORE_PAHT=/tmp/x.db"}, checkFound, "did you mean PLATEAU_STORE_PATH?"},
