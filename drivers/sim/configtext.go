@@ -13,11 +13,12 @@ import (
 )
 
 // ConfigYAML is a ready-to-use configuration for the running rig: the
-// reference over Modbus TCP, the device under test over Modbus RTU on the
-// pseudo-terminal (or operator entry for a dial), the source over Modbus
-// TCP, and device/reference sections that match the simulated instruments.
-// Keys come from the config package's mapstructure tags, so the text follows
-// the config structs as they change.
+// reference over Modbus TCP, each device under test over Modbus RTU at its
+// own unit id on the one simulated line (or operator entry for a dial), the
+// source over Modbus TCP, and device/reference sections that match the
+// simulated instruments. With several devices every device instrument gets
+// its own device: section. Keys come from the config package's mapstructure
+// tags, so the text follows the config structs as they change.
 func (r *Rig) ConfigYAML() (string, error) {
 	ep := r.Endpoints()
 	if ep.TCP == "" {
@@ -25,9 +26,19 @@ func (r *Rig) ConfigYAML() (string, error) {
 	}
 	wanted := []config.Instrument{
 		{Name: "sim-reference", Role: config.RoleReference, SimPart: PartReference, SimVia: config.LinkModbusTCP},
-		{Name: "sim-device", Role: config.RoleDevice, SimPart: PartDevice, SimVia: config.LinkModbusRTU},
-		{Name: "sim-source", Role: config.RoleSource, SimPart: PartSource, SimVia: config.LinkModbusTCP},
 	}
+	several := len(r.devs) > 1
+	for _, d := range r.devs {
+		in := config.Instrument{Name: "sim-device", Role: config.RoleDevice, SimPart: PartDevice, SimVia: config.LinkModbusRTU}
+		if d.p.instrument != "" {
+			in.Name = d.p.instrument
+		}
+		if several {
+			in.Device = &config.DeviceEntry{Device: r.deviceSection(d)}
+		}
+		wanted = append(wanted, in)
+	}
+	wanted = append(wanted, config.Instrument{Name: "sim-source", Role: config.RoleSource, SimPart: PartSource, SimVia: config.LinkModbusTCP})
 	var insts []config.Instrument
 	for _, w := range wanted {
 		w.Link.Kind = config.LinkSim
@@ -38,17 +49,32 @@ func (r *Rig) ConfigYAML() (string, error) {
 		}
 		insts = append(insts, in)
 	}
-	dev := r.cfg.Device
-	refUpper := r.p.refUnit.FromPa(max(r.p.maxPa, r.p.upper))
+	top := r.p.maxPa
+	for _, d := range r.devs {
+		top = max(top, d.p.upper)
+	}
+	refUpper := r.p.refUnit.FromPa(top)
+	lines := "the device at " + ep.DeviceLine
+	if several {
+		lines = "the devices at"
+		for i, d := range ep.Devices {
+			if i > 0 {
+				lines += ","
+			}
+			lines += " " + d.Line
+		}
+	}
+	devSection := section{"device", r.deviceSection(r.devs[0]), "The simulated device under test (its built-in errors are set in the simulator section)."}
+	if several {
+		devSection = section{"device", config.Device{Manufacturer: "plateau", Limit: config.Limit{Span: "0.5 %"}},
+			"What the simulated devices share; each device instrument has its own device: section\n" +
+				"(their built-in errors are set in the simulator section)."}
+	}
 	sections := []section{
 		{"instruments", insts, "The simulated rig's instruments. Also served: every part over Modbus TCP at " + ep.TCP + ";\n" +
 			"line instruments (link: {kind: serial, address: …}, line: {query: \"" + CmdRead + "\"}) for the\n" +
-			"reference at " + ep.ReferenceLine + " and the device at " + ep.DeviceLine + "."},
-		{"device", config.Device{
-			ID: "SIM-DUT", Manufacturer: "plateau", Model: "simulated " + dev.Kind, Kind: dev.Kind,
-			Lower: dev.Lower, Upper: dev.Upper, Unit: r.p.devUnit.Symbol, Resolution: dev.Resolution,
-			Limit: config.Limit{Span: "0.5 %"},
-		}, "The simulated device under test (its built-in errors are set in the simulator section)."},
+			"reference at " + ep.ReferenceLine + " and " + lines + "."},
+		devSection,
 		{"reference", config.Reference{
 			ID: "SIM-REF", Model: "simulated reference",
 			Lower: fmt.Sprintf("%g %s", r.p.refUnit.FromPa(r.p.minPa), r.p.refUnit.Symbol),
@@ -56,6 +82,23 @@ func (r *Rig) ConfigYAML() (string, error) {
 		}, "The simulated reference standard (an invented certificate, for the simulator only)."},
 	}
 	return renderYAML(sections)
+}
+
+// deviceSection describes one simulated device as a device: section.
+func (r *Rig) deviceSection(d *dut) config.Device {
+	dev := config.Device{
+		ID: "SIM-DUT", Manufacturer: "plateau", Model: "simulated " + d.p.kind, Kind: d.p.kind,
+		Lower: d.p.lowerText, Upper: d.p.upperText, Unit: d.p.devUnit.Symbol,
+		Resolution: r.cfg.Device.Resolution, Limit: config.Limit{Span: "0.5 %"},
+	}
+	if len(r.devs) > 1 {
+		dev.ID, dev.Manufacturer, dev.Limit = fmt.Sprintf("SIM-DUT-%d", d.k+1), "", config.Limit{}
+		dev.Resolution = r.cfg.Devices[d.k].Resolution
+	}
+	if d.p.devRes <= 0 { // a perfect simulated display: a step the config accepts
+		dev.Resolution = fmt.Sprintf("%g %s", d.p.devUnit.FromPa((d.p.upper-d.p.lower)/1e5), d.p.devUnit.Symbol)
+	}
+	return dev
 }
 
 // section is one top-level key of the generated file.
@@ -110,6 +153,12 @@ func toNode(v reflect.Value) *yaml.Node {
 				continue
 			}
 			f := v.Field(i)
+			if key == ",squash" { // the embedded struct's keys sit at this level
+				if n := toNode(f); n != nil {
+					m.Content = append(m.Content, n.Content...)
+				}
+				continue
+			}
 			if f.IsZero() && !alwaysKeep[key] {
 				continue
 			}
