@@ -76,6 +76,10 @@ type Device struct {
 	TemperatureCoefficient float64 `mapstructure:"temperature_coefficient"`
 	ReferenceTemperature   float64 `mapstructure:"reference_temperature"`
 	HysteresisLimit        float64 `mapstructure:"hysteresis_limit"`
+	// Mode is gauge or absolute (mode.go); Conditions are the reference
+	// conditions the ambient readings are checked against (ambient.go).
+	Mode       string     `mapstructure:"mode"`
+	Conditions Conditions `mapstructure:"conditions"`
 
 	LowerPa      float64 `mapstructure:"-"`
 	UpperPa      float64 `mapstructure:"-"`

@@ -39,6 +39,10 @@ func defaults() map[string]any {
 		"device.temperature_coefficient": 0.0,
 		"device.reference_temperature":   20.0,
 		"device.hysteresis_limit":        0.0,
+		"device.mode":                    "",
+		"device.conditions.temperature":  "",
+		"device.conditions.humidity":     "",
+		"device.conditions.barometric":   "",
 
 		"reference.id":          "",
 		"reference.model":       "",

@@ -22,7 +22,7 @@ const (
 	RoleReference = "reference" // the reference standard
 	RoleDevice    = "device"    // the device under test
 	RoleSource    = "source"    // a pressure controller that takes a setpoint
-	RoleAmbient   = "ambient"   // an ambient (barometric) sensor, recorded only
+	RoleAmbient   = "ambient"   // temperature, humidity or barometric pressure, recorded with each point
 )
 
 // Link kinds: how plateau reaches an instrument.
@@ -54,6 +54,8 @@ type Instrument struct {
 	// Device describes this device under test when a run holds several;
 	// nil for other roles and for the one device of the top-level section.
 	Device *DeviceEntry `mapstructure:"device"`
+	// Mode, Quantity and Uncertainty: see mode.go and ambient.go.
+	Measures `mapstructure:",squash"`
 }
 
 // Link says where an instrument is and how to talk to it.

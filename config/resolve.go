@@ -23,6 +23,7 @@ func (c *Config) resolve(p *Problems) {
 		c.Instruments[i].resolve(p, fmt.Sprintf("instruments[%d]", i))
 	}
 	c.resolveDevices(p) // fills c.Devices and c.Device
+	c.resolveModes(p)
 	c.resolveSafety(p)
 	c.resolveProcedure(p)
 	c.resolveSimulator(p)
@@ -111,6 +112,8 @@ func (d *Device) resolve(p *Problems, keyOf func(string) string) {
 	lim.SpanPct, _ = percent(p, keyOf("limit.span"), lim.Span, 100)
 	lim.ReadingPct, _ = percent(p, keyOf("limit.reading"), lim.Reading, 100)
 	lim.FloorPa, _ = pressure(p, keyOf("limit.floor"), lim.Floor, false)
+	d.resolveMode(p, keyOf)
+	d.resolveConditions(p, keyOf)
 }
 
 func (c *Config) resolveReference(p *Problems) {
@@ -135,6 +138,7 @@ func (in *Instrument) resolve(p *Problems, key string) {
 	if in.Link.Kind == LinkSim && in.SimVia == "" {
 		in.SimVia = LinkModbusTCP
 	}
+	in.resolveMeasures(p, key)
 	if in.Loop.Enabled {
 		in.Loop.LowerPa, _ = pressure(p, key+".current_loop.lower", in.Loop.Lower, true)
 		in.Loop.UpperPa, _ = pressure(p, key+".current_loop.upper", in.Loop.Upper, true)

@@ -30,7 +30,7 @@ var (
 	orders32   = []string{"ABCD", "CDAB", "BADC", "DCBA"}
 	orders64   = []string{"ABCDEFGH", "GHEFCDAB", "BADCFEHG", "HGFEDCBA"}
 	parities   = []string{"none", "even", "odd"}
-	simParts   = []string{"reference", "device", "source"}
+	simParts   = []string{"reference", "device", "source", "ambient"}
 	simVias    = []string{LinkModbusTCP, LinkModbusRTU, LinkSerial}
 	modes      = []string{"plan", "free"}
 	onTimeouts = []string{"skip", "stop"}
@@ -65,6 +65,8 @@ func (c *Config) validate(p *Problems) {
 	c.validateDevices(p)
 	c.validateReference(p)
 	c.validateInstruments(p)
+	c.validateModes(p)
+	c.validateAmbient(p)
 	c.validateSafety(p)
 	c.validateProcedure(p)
 	c.validateHead(p)
@@ -192,16 +194,17 @@ func (c *Config) validateReference(p *Problems) {
 	if r.okLower && r.okUpper && r.UpperPa <= r.LowerPa {
 		p.bad("reference.upper", r.Upper, "must be above reference.lower (%s)", r.Lower)
 	}
+	shift := c.referenceShiftPa() // a device range in the reference's mode, at 1 atm
 	for _, dut := range c.Devices {
 		d := dut.Device
 		who := "the device range"
 		if len(c.Devices) > 1 {
 			who = "the range of " + dut.name()
 		}
-		if r.okUpper && d.okUpper && r.UpperPa < d.UpperPa {
+		if r.okUpper && d.okUpper && r.UpperPa < d.UpperPa+shift {
 			p.bad("reference.upper", r.Upper, "the reference cannot cover %s up to %s", who, d.Upper)
 		}
-		if r.okLower && d.okLower && r.LowerPa > d.LowerPa {
+		if r.okLower && d.okLower && r.LowerPa > d.LowerPa+shift {
 			p.bad("reference.lower", r.Lower, "the reference cannot cover %s down to %s", who, d.Lower)
 		}
 		if d.Oxygen && r.OilFilled {

@@ -69,6 +69,9 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 		if in.Role != RoleDevice {
 			p.bad(key+".link.kind", l.Kind, "operator entry is for reading a device under test (an analog dial), not a %s", in.Role)
 		}
+		if in.Role == RoleAmbient {
+			return // its unit is judged with its quantity (ambient.go)
+		}
 		if in.Unit == "" {
 			p.bad(key+".unit", "", "is required: the unit the operator reads off the dial and types in, e.g. bar")
 		} else if _, err := units.Lookup(in.Unit); err != nil {
@@ -101,7 +104,9 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 		}
 	}
 	c.validateLinkTimes(p, key, l)
-	if in.Unit == "" {
+	if in.Role == RoleAmbient {
+		// its unit is judged with its quantity (ambient.go)
+	} else if in.Unit == "" {
 		p.bad(key+".unit", "", "is required: the unit of the value the instrument gives (after scale and offset), e.g. bar, kPa or mA")
 	} else if in.Unit != "mA" {
 		if _, err := units.Lookup(in.Unit); err != nil {

@@ -176,3 +176,17 @@ func valueUnit(k AmbientKind, whole, s string) (float64, AmbientUnit, error) {
 	}
 	return v, u, nil
 }
+
+// ParseDifference reads a difference of kind k such as "0.2 K", "0.4 °F"
+// or "0.3 hPa" (an uncertainty) into the base unit: a temperature
+// difference has no offset, so 1 °C and 1 K are the same.
+func ParseDifference(k AmbientKind, s string) (float64, error) {
+	v, u, err := valueUnit(k, s, s)
+	if err != nil {
+		return 0, err
+	}
+	if v < 0 {
+		return 0, fmt.Errorf("%q cannot be negative", s)
+	}
+	return v * u.scale, nil
+}

@@ -77,3 +77,10 @@ func ParseMode(s string) (Mode, error) {
 	}
 	return ModeUnset, fmt.Errorf("mode %q: must be gauge or absolute", s)
 }
+
+// ModeIn is the mode the unit of a quantity ("16 bar(a)") or a unit
+// alone ("psig") carries.
+func ModeIn(s string) Mode {
+	t := strings.TrimSpace(s)
+	return ModeOf(strings.TrimSpace(t[numberPrefix(t):]))
+}
