@@ -8,6 +8,7 @@ import (
 	"strconv"
 
 	"plateau/analysis"
+	"plateau/analysis/units"
 )
 
 // infoJSON adds the display unit's symbol to Info; pressures stay in Pa.
@@ -16,16 +17,17 @@ type infoJSON struct {
 	DisplayUnit string `json:"display_unit"`
 }
 
-// JSON writes {"info": …, "result": …}. The result is encoded by its own
-// tags, which are the versioned schema (analysis.SchemaVersion).
+// JSON writes {"device": …, "info": …, "result": …}. The result is encoded
+// by its own tags, which are the versioned schema (analysis.SchemaVersion);
+// device is the name the device column of the CSV carries.
 func JSON(w io.Writer, info Info, res analysis.Result) error {
+	return encodeJSON(w, toJSON(DeviceReport{Info: info, Result: res}))
+}
+
+func encodeJSON(w io.Writer, doc any) error {
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
 	enc.SetEscapeHTML(false)
-	doc := struct {
-		Info   infoJSON        `json:"info"`
-		Result analysis.Result `json:"result"`
-	}{infoJSON{info, info.unit().Symbol}, res}
 	if err := enc.Encode(doc); err != nil {
 		return fmt.Errorf("encode report JSON: %w", err)
 	}
@@ -33,21 +35,45 @@ func JSON(w io.Writer, info Info, res analysis.Result) error {
 }
 
 // CSV writes one row per point after a header row whose pressure columns
-// carry the display unit, e.g. "error_bar".
+// carry the display unit, e.g. "error_bar". The first column names the
+// device (its instrument, else its identity number).
 func CSV(w io.Writer, info Info, res analysis.Result) error {
-	u := info.unit()
-	cw := csv.NewWriter(w)
+	cw := newCSVWriter(w, info.unit())
+	cw.rows(info.DeviceName(), res)
+	return cw.close()
+}
+
+// csvWriter writes the point table; the first error sticks and is
+// returned by close.
+type csvWriter struct {
+	cw  *csv.Writer
+	u   units.Unit
+	err error
+}
+
+func newCSVWriter(w io.Writer, u units.Unit) *csvWriter {
+	c := &csvWriter{cw: csv.NewWriter(w), u: u}
 	pressure := []string{"nominal", "reference_mean", "dut_mean", "error", "correction", "hysteresis", "repeatability",
 		"combined_standard_uncertainty", "expanded_uncertainty", "error_span", "mpe", "acceptance_limit", "up_worst_error", "down_worst_error"}
-	header := []string{"point"}
-	for _, c := range pressure {
-		header = append(header, c+"_"+u.Symbol)
+	header := []string{"device", "point"}
+	for _, p := range pressure {
+		header = append(header, p+"_"+u.Symbol)
 	}
 	header = append(header, "error_percent_span", "coverage_factor", "effective_degrees_of_freedom",
 		"mpe_to_reference_uncertainty", "mpe_to_expanded_uncertainty", "up_decision", "down_decision", "hysteresis_decision", "decision")
-	if err := cw.Write(header); err != nil {
-		return fmt.Errorf("write CSV: %w", err)
+	c.write(header)
+	return c
+}
+
+func (c *csvWriter) write(row []string) {
+	if c.err == nil {
+		c.err = c.cw.Write(row)
 	}
+}
+
+// rows writes one row per point of res for device.
+func (c *csvWriter) rows(device string, res analysis.Result) {
+	u := c.u
 	// 12 significant digits: beyond any pressure instrument, and free of
 	// binary noise such as 0.30000000000000004 after unit conversion.
 	num := func(v float64) string { return strconv.FormatFloat(v, 'g', 12, 64) }
@@ -71,7 +97,7 @@ func CSV(w io.Writer, info Info, res analysis.Result) error {
 		return num(u.FromPa(d.WorstErrorPa)), string(d.Decision)
 	}
 	for _, p := range res.Points {
-		row := []string{strconv.Itoa(p.Index + 1)}
+		row := []string{device, strconv.Itoa(p.Index + 1)}
 		for _, pa := range []float64{p.NominalPa, p.ReferenceMeanPa, p.DUTMeanPa, p.MeanErrorPa, p.CorrectionPa} {
 			row = append(row, num(u.FromPa(pa)))
 		}
@@ -83,13 +109,17 @@ func CSV(w io.Writer, info Info, res analysis.Result) error {
 		downE, downD := dir(p.DownResult)
 		row = append(row, upE, downE, num(p.ErrorPercentSpan), num(p.CoverageFactor), opt(p.EffectiveDOF),
 			opt(p.ReferenceRatio), opt(p.ExpandedRatio), upD, downD, string(p.HysteresisDecision), string(p.Decision))
-		if err := cw.Write(row); err != nil {
-			return fmt.Errorf("write CSV: %w", err)
-		}
+		c.write(row)
 	}
-	cw.Flush()
-	if err := cw.Error(); err != nil {
-		return fmt.Errorf("write CSV: %w", err)
+}
+
+func (c *csvWriter) close() error {
+	if c.err == nil {
+		c.cw.Flush()
+		c.err = c.cw.Error()
+	}
+	if c.err != nil {
+		return fmt.Errorf("write CSV: %w", c.err)
 	}
 	return nil
 }

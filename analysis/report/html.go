@@ -6,6 +6,7 @@ import (
 	"html/template"
 	"io"
 	"strconv"
+	"strings"
 
 	"plateau/analysis"
 )
@@ -13,6 +14,10 @@ import (
 //go:embed page.html.tmpl
 var pageSource string
 
+// page is the report document. Each part of a device's report is a named
+// template of its own ("identity", "points", "summary", "charts",
+// "budgets"), listed once in "device": a new section is one more define
+// and one more line there.
 var page = template.Must(template.New("page").Parse(pageSource))
 
 // budgetLine is one contribution of a point's uncertainty budget, as printed.
@@ -52,43 +57,141 @@ func (n numbers) budgets(res analysis.Result) []budgetBlock {
 	return out
 }
 
-// HTML writes one self-contained page (inline CSS and SVG, no script, no
-// external resource) for printing on A4 or Letter and for archiving.
-func HTML(w io.Writer, info Info, res analysis.Result) error {
+// deviceView is one device's report as the template shows it.
+type deviceView struct {
+	// Anchor is the section's id in a document of several devices; Page
+	// names its print page (whose footer names the device); Heading
+	// opens the section. All three are empty in a report of one device.
+	Anchor, Page, Heading string
+	// Missing says why the device has no result; the rest is then empty.
+	Missing   string
+	Title     string
+	Unit      string
+	Identity  []identityLine
+	Rows      []pointRow
+	Judged    []judgementRow
+	Summary   []summaryLine
+	Curve     []summaryLine
+	Complete  bool
+	Verdict   string
+	Outcome   analysis.Outcome
+	Rule      string
+	Warnings  []string
+	Budgets   []budgetBlock
+	Charts    []chart
+	ChartSVGs []template.HTML
+}
+
+// pageView is the whole document: one device's report, or a summary of
+// several followed by each one's report.
+type pageView struct {
+	Title string
+	// Print is the @page rules: margins, and on every printed page the
+	// report's identity (and device) and the page number.
+	Print   template.CSS
+	Several bool
+	// Run describes the run as a whole (several devices only).
+	Run     []identityLine
+	Table   []summaryRow
+	Devices []deviceView
+	Unit    string // for the closing note: one device's unit, or ""
+}
+
+func deviceViewOf(info Info, res analysis.Result) (deviceView, error) {
 	n := newNumbers(info.unit(), res.Device.ResolutionPa)
 	ch, err := charts(n, res)
 	if err != nil {
-		return err
+		return deviceView{}, err
 	}
 	svgs := make([]template.HTML, len(ch))
 	for i, c := range ch {
 		svgs[i] = template.HTML(c.SVG) // produced by gonum/plot from numbers only, never from user text
 	}
-	data := struct {
-		Title     string
-		Unit      string
-		Identity  []identityLine
-		Rows      []pointRow
-		Judged    []judgementRow
-		Summary   []summaryLine
-		Curve     []summaryLine
-		Complete  bool
-		Verdict   string
-		Outcome   analysis.Outcome
-		Rule      string
-		Warnings  []string
-		Budgets   []budgetBlock
-		Charts    []chart
-		ChartSVGs []template.HTML
-	}{
+	return deviceView{
 		Title: joinNonEmpty(" — ", "Calibration report", info.Device.ID, info.Run.Label), Unit: n.u.Symbol,
 		Identity: n.identity(info, res), Rows: n.rows(res), Judged: n.judgements(res), Summary: n.summary(res),
 		Curve: n.curveLines(res), Complete: info.Run.finished(),
 		Verdict: outcomeText(res.Decision), Outcome: res.Decision, Rule: ruleText(res.DecisionRule),
 		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs,
+	}, nil
+}
+
+// HTML writes one self-contained page (inline CSS and SVG, no script, no
+// external resource) for printing on A4 or Letter and for archiving.
+func HTML(w io.Writer, info Info, res analysis.Result) error {
+	return HTMLDevices(w, []DeviceReport{{Info: info, Result: res}})
+}
+
+// HTMLDevices writes the report of a run as one self-contained document.
+// For several devices it opens with a table of every device (identity,
+// largest error, verdict, missed readings), each linked to the device's
+// section, then one section per device with its full report; printed,
+// each section starts on a new page and every page carries the report's
+// identity, the device and the page number. One device renders as HTML.
+func HTMLDevices(w io.Writer, ds []DeviceReport) error {
+	if len(ds) == 0 {
+		return fmt.Errorf("render HTML report: no device to report")
 	}
-	if err := page.Execute(w, data); err != nil {
+	var pv pageView
+	if len(ds) == 1 && ds[0].Missing == "" {
+		d, err := deviceViewOf(ds[0].Info, ds[0].Result)
+		if err != nil {
+			return err
+		}
+		pv = pageView{Title: d.Title, Devices: []deviceView{d}, Unit: d.Unit}
+		pv.Print = printCSS(joinNonEmpty(" · ", d.Title, ds[0].Info.Run.ID), nil)
+	} else {
+		pv = severalView(ds)
+		for i, dr := range ds {
+			d := deviceView{Missing: dr.Missing}
+			if dr.Missing == "" {
+				var err error
+				if d, err = deviceViewOf(dr.Info, dr.Result); err != nil {
+					return fmt.Errorf("device %s: %w", dr.Info.DeviceName(), err)
+				}
+			}
+			d.Anchor, d.Page = pv.Table[i].Anchor, "d"+itoa(i+1)
+			d.Heading = joinNonEmpty(" — ", "Device "+itoa(i+1)+" of "+itoa(len(ds))+": "+dr.Info.DeviceName(), identityText(dr.Info.Device))
+			pv.Devices = append(pv.Devices, d)
+		}
+		pv.Print = printCSS(joinNonEmpty(" · ", pv.Title, ds[0].Info.Run.ID), pv.Devices)
+	}
+	if err := page.Execute(w, pv); err != nil {
 		return fmt.Errorf("render HTML report: %w", err)
 	}
 	return nil
+}
+
+// printCSS is the @page rules. Every printed page carries the report's
+// identity and its number; the pages of a device's section carry the
+// device too, and its section starts on a page of its own (a named page).
+func printCSS(identity string, devices []deviceView) template.CSS {
+	const small = `font: 7.5pt "DejaVu Sans", "Liberation Sans", Arial, sans-serif; color: #4a5868;`
+	var b strings.Builder
+	fmt.Fprintf(&b, "@page { size: auto; margin: 14mm 12mm 18mm 12mm;\n"+
+		"  @bottom-left { content: %s; %s }\n"+
+		"  @bottom-right { content: \"page \" counter(page) \" of \" counter(pages); %s }\n}\n", cssString(identity), small, small)
+	for _, d := range devices {
+		fmt.Fprintf(&b, "@page %s { @bottom-left { content: %s; %s } }\n#%s { page: %s; }\n",
+			d.Page, cssString(identity+" · "+d.Heading), small, d.Anchor, d.Page)
+	}
+	return template.CSS(b.String()) // names are [a-z0-9_-] (anchorsOf); text only through cssString
+}
+
+// cssString quotes s as a CSS string: quotes, backslashes, control
+// characters and the angle brackets (which could close the style element)
+// as hexadecimal escapes.
+func cssString(s string) string {
+	var b strings.Builder
+	b.WriteByte('"')
+	for _, r := range s {
+		switch {
+		case r == '"' || r == '\\' || r == '<' || r == '>' || r == '&' || r < 0x20 || r == 0x7f:
+			fmt.Fprintf(&b, "\\%x ", r)
+		default:
+			b.WriteRune(r)
+		}
+	}
+	b.WriteByte('"')
+	return b.String()
 }

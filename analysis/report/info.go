@@ -29,6 +29,9 @@ type Info struct {
 
 // DeviceIdentity names the device under test.
 type DeviceIdentity struct {
+	// Instrument is the device's instrument name in the configuration,
+	// which names it among several devices of one run; empty otherwise.
+	Instrument   string `json:"instrument,omitempty"`
 	ID           string `json:"id"`
 	Manufacturer string `json:"manufacturer"`
 	Model        string `json:"model"`

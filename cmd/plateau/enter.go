@@ -14,6 +14,7 @@ func init() { register(newEnterCmd) }
 
 func newEnterCmd() *cobra.Command {
 	var confirm bool
+	var device string
 	cmd := &cobra.Command{
 		Use:   "enter VALUE [UNIT]",
 		Short: "Enter the reading of an analog dial for the current step",
@@ -22,6 +23,10 @@ test when the run asks for it ('plateau tail' shows the request). Without a
 unit the reading is taken in the device's configured unit. A decimal comma
 (4,02) and negative readings (-0.1) are fine.
 
+When the run calibrates several dials, --device names the dial the reading
+is for (its instrument name, as 'plateau tail' and 'plateau status' show it);
+with only one dial it may be left out.
+
 The daemon refuses a reading when no step waits for one, and a reading that
 looks wrong (outside the dial's range, or far from the step's target) until
 you give it again with --confirm.`,
@@ -29,7 +34,8 @@ you give it again with --confirm.`,
   plateau enter 4,02 bar
   plateau enter -0.1
   plateau enter 58.5psi
-  plateau enter --confirm 17.2`,
+  plateau enter --confirm 17.2
+  plateau enter --device dial-3 4.02`,
 		Args: cobra.ArbitraryArgs, // counted in RunE, once flags are parsed
 		// Flags are parsed in RunE, after the readings are set aside:
 		// "-0.1" is a reading, not a flag.
@@ -37,6 +43,7 @@ you give it again with --confirm.`,
 	}
 	df := addDaemonFlags(cmd)
 	cmd.Flags().BoolVar(&confirm, "confirm", false, "take a reading the daemon found implausible")
+	cmd.Flags().StringVar(&device, "device", "", "the dial the reading is for, when the run has several (its instrument name)")
 	cmd.RunE = func(cmd *cobra.Command, raw []string) error {
 		args, flags := splitReadings(raw)
 		cmd.DisableFlagParsing = false
@@ -69,13 +76,17 @@ you give it again with --confirm.`,
 			}
 			e.Unit = st.Unit
 		}
-		if err := c.Enter(cmd.Context(), api.Entry{Value: e.Value, Unit: e.Unit, Confirm: confirm}); err != nil {
-			if api.IsStatus(err, 409) && !confirm && strings.Contains(err.Error(), "confirm") {
-				return fmt.Errorf("%w\nto take it as it is: plateau enter --confirm %s", err, text)
+		if err := c.Enter(cmd.Context(), api.Entry{Device: device, Value: e.Value, Unit: e.Unit, Confirm: confirm}); err != nil {
+			again := "plateau enter" + prefixed(" --device ", device)
+			switch {
+			case api.IsStatus(err, 409) && !confirm && strings.Contains(err.Error(), "confirm"):
+				return fmt.Errorf("%w\nto take it as it is: %s --confirm %s", err, again, text)
+			case device == "" && strings.Contains(err.Error(), "several dials"):
+				return fmt.Errorf("%w\nname the dial: plateau enter --device NAME %s", err, text)
 			}
 			return err
 		}
-		fmt.Fprintf(cmd.OutOrStdout(), "taken: %s %s\n", strconv.FormatFloat(e.Value, 'f', -1, 64), e.Unit)
+		fmt.Fprintf(cmd.OutOrStdout(), "taken%s: %s %s\n", prefixed(" for ", device), strconv.FormatFloat(e.Value, 'f', -1, 64), e.Unit)
 		return nil
 	}
 	return cmd

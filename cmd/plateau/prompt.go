@@ -83,23 +83,36 @@ func readLines(r io.Reader) <-chan string {
 	return ch
 }
 
-// waiting is what the device under test waits for, if anything.
-func waiting(st acquire.Status) (what string, targetPa float64, ok bool) {
+// waiting is the first dial that waits for a reading, if any: its name,
+// what it waits for, and the step's target.
+func waiting(st acquire.Status) (name, what string, targetPa float64, ok bool) {
 	for _, in := range st.Instruments {
 		if in.Waiting != "" {
-			return in.Waiting, in.WaitingForPa, true
+			return in.Name, in.Waiting, in.WaitingForPa, true
 		}
 	}
-	return "", 0, false
+	return "", "", 0, false
+}
+
+// stillWaiting says whether the dial name still waits for what.
+func stillWaiting(st acquire.Status, name, what string) bool {
+	for _, in := range st.Instruments {
+		if in.Name == name {
+			return in.Waiting == what
+		}
+	}
+	return false
 }
 
 // errInputClosed ends the prompting when standard input ends.
 var errInputClosed = errors.New("standard input ended: no more dial readings can be typed")
 
-// ask runs one prompt for the step waiting for what; it returns when the
-// reading is taken, the step stops waiting, or ctx ends.
-func (p *dialPrompt) ask(ctx context.Context, what string, targetPa float64) error {
-	fmt.Fprintf(p.out, "\n%s: set %s, read the dial: ", what, p.show.withUnit(targetPa))
+// ask runs one prompt for the dial name waiting for what; it returns when
+// the reading is taken, the dial stops waiting, or ctx ends. The prompt
+// names the dial, so that with several on the manifold the operator reads
+// the right one.
+func (p *dialPrompt) ask(ctx context.Context, name, what string, targetPa float64) error {
+	fmt.Fprintf(p.out, "\n%s, %s: set %s, read the dial: ", name, what, p.show.withUnit(targetPa))
 	var pending *dialEntry
 	confirming := false // the next line answers "take it anyway?"
 	tick := time.NewTicker(p.poll)
@@ -110,8 +123,8 @@ func (p *dialPrompt) ask(ctx context.Context, what string, targetPa float64) err
 		case <-ctx.Done():
 			return ctx.Err()
 		case <-tick.C:
-			if w, _, ok := waiting(p.bench.Status()); !ok || w != what {
-				fmt.Fprintf(p.out, "\n%s no longer waits for a reading\n", what)
+			if !stillWaiting(p.bench.Status(), name, what) {
+				fmt.Fprintf(p.out, "\n%s no longer waits for %s\n", name, what)
 				return nil
 			}
 			continue
@@ -125,7 +138,7 @@ func (p *dialPrompt) ask(ctx context.Context, what string, targetPa float64) err
 		case confirming:
 			confirming = false
 			if a := strings.ToLower(line); a == "y" || a == "yes" {
-				if done, _ := p.submit(*pending, true); done {
+				if done, _ := p.submit(name, *pending, true); done {
 					return nil
 				}
 			} else {
@@ -133,7 +146,7 @@ func (p *dialPrompt) ask(ctx context.Context, what string, targetPa float64) err
 			}
 			pending = nil
 		case pending != nil && line == "":
-			done, confirm := p.submit(*pending, false)
+			done, confirm := p.submit(name, *pending, false)
 			if done {
 				return nil
 			}
@@ -157,10 +170,11 @@ func (p *dialPrompt) ask(ctx context.Context, what string, targetPa float64) err
 	}
 }
 
-// submit hands an entry to the engine. It reports whether the prompt is
-// done, or whether the entry looked implausible and needs confirming.
-func (p *dialPrompt) submit(e dialEntry, confirmed bool) (done, confirm bool) {
-	err := p.bench.Enter(acquire.Entry{Value: e.Value, Unit: p.unitOf(e), Confirmed: confirmed})
+// submit hands an entry for the dial name to the engine. It reports
+// whether the prompt is done, or whether the entry looked implausible and
+// needs confirming.
+func (p *dialPrompt) submit(name string, e dialEntry, confirmed bool) (done, confirm bool) {
+	err := p.bench.Enter(acquire.Entry{Device: name, Value: e.Value, Unit: p.unitOf(e), Confirmed: confirmed})
 	var odd *acquire.ImplausibleError
 	switch {
 	case err == nil:
@@ -168,7 +182,7 @@ func (p *dialPrompt) submit(e dialEntry, confirmed bool) (done, confirm bool) {
 		if confirmed {
 			note = " (confirmed)"
 		}
-		fmt.Fprintf(p.out, "taken%s: %s\n", note, p.text(e))
+		fmt.Fprintf(p.out, "taken%s for %s: %s\n", note, name, p.text(e))
 		return true, false
 	case !confirmed && errors.As(err, &odd):
 		fmt.Fprintf(p.out, "%s looks wrong: %s.\ntake it anyway? [y/N] ", p.text(e), odd.Why)

@@ -18,22 +18,28 @@ func init() { register(newReportCmd) }
 var reportFormats = []string{"text", "html", "csv", "json"}
 
 func newReportCmd() *cobra.Command {
-	var format, output string
+	var format, output, device string
 	cmd := &cobra.Command{
 		Use:   "report RUN",
 		Short: "Write a run's report as text, HTML, CSV or JSON",
 		Long: `report writes the report of a run (r000042, 42 or "last") to the file named
 by -o, or to standard output. The format comes from --format, or else from the
 file's extension (.txt, .html, .csv, .json); on standard output it is text.
-It asks the daemon when one answers, and otherwise reads the store itself.`,
+It asks the daemon when one answers, and otherwise reads the store itself.
+
+A run of several devices is reported whole: the text and the HTML document
+open with a table of every device, then give each device's report; CSV and
+JSON name the device of every row. --device NAME reports one device alone.`,
 		Example: `  plateau report last
   plateau report r000042 -o PG-0421.html
+  plateau report last --device pt-3 -o pt-3.html
   plateau report last --format json | jq .result.verdict`,
 		Args: cobra.ExactArgs(1),
 	}
 	rf := addRecordFlags(cmd)
 	cmd.Flags().StringVar(&format, "format", "", "text, html, csv or json (default: from the -o extension; text on standard output)")
 	cmd.Flags().StringVarP(&output, "output", "o", "-", "file to write; - for standard output")
+	cmd.Flags().StringVar(&device, "device", "", "report this device of a run of several (its instrument name); default: every device")
 	cmd.RunE = func(cmd *cobra.Command, args []string) error {
 		f, err := reportFormat(format, output)
 		if err != nil {
@@ -44,7 +50,7 @@ It asks the daemon when one answers, and otherwise reads the store itself.`,
 			return err
 		}
 		defer src.Close()
-		write := func(w io.Writer) error { return src.Report(cmd.Context(), args[0], f, w) }
+		write := func(w io.Writer) error { return src.Report(cmd.Context(), args[0], f, device, w) }
 		if output == "-" {
 			return write(cmd.OutOrStdout())
 		}
@@ -88,17 +94,18 @@ func reportFormat(flag, output string) (string, error) {
 	return "", fmt.Errorf("--format %q: use %s", flag, strings.Join(reportFormats, ", "))
 }
 
-// renderReport writes a run's evaluation in one of reportFormats.
+// renderReport writes a run's evaluation, every device of it, in one of
+// reportFormats.
 func renderReport(w io.Writer, format string, r *runResult) error {
 	switch format {
 	case "html":
-		return report.HTML(w, r.Info, r.Result)
+		return report.HTMLDevices(w, r.Devices)
 	case "csv":
-		return report.CSV(w, r.Info, r.Result)
+		return report.CSVDevices(w, r.Devices)
 	case "json":
-		return report.JSON(w, r.Info, r.Result)
+		return report.JSONDevices(w, r.Devices)
 	case "text":
-		return report.Text(w, r.Info, r.Result)
+		return report.TextDevices(w, r.Devices)
 	}
 	return fmt.Errorf("report format %q: use %s", format, strings.Join(reportFormats, ", "))
 }

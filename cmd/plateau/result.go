@@ -1,37 +1,26 @@
 package main
 
 import (
-	"bytes"
 	"encoding/json"
 	"fmt"
-	"html"
 	"io"
-	"net/url"
-	"os"
-	"path/filepath"
+	"slices"
 	"strings"
 
 	"plateau/acquire/api"
 	"plateau/acquire/procedure"
 	"plateau/acquire/store"
 	"plateau/analysis"
-	"plateau/analysis/readout"
 	"plateau/analysis/report"
 	"plateau/config"
 	"plateau/config/record"
 )
 
-// runResult is a run's evaluation with what a report needs besides it: for
-// a run of several devices, one device's.
+// runResult is a run's evaluation: one report per device under test, in
+// the order of the configuration.
 type runResult struct {
-	Result analysis.Result
-	Points []analysis.Point
-	Info   report.Info
-	Device string // the device's instrument name; "" when the run has one device
-	// Empty: this device of a run of several has no captured point; Result
-	// is then zero and Why says so.
-	Empty bool
-	Why   string
+	ID      store.RunID
+	Devices []report.DeviceReport
 }
 
 // runStore is what evaluating a run reads.
@@ -41,24 +30,13 @@ type runStore interface {
 	Events(since uint64, limit int) ([]store.Event, error)
 }
 
-// evaluate analyses the captured points of a run with the record the run
-// was frozen with when it was created: never with today's configuration
-// file or environment. A run stored before runs kept a record is evaluated
-// with the configuration text it kept.
-func evaluate(st runStore, id store.RunID) (*runResult, error) {
-	all, err := evaluateAll(st, id)
-	if err != nil {
-		return nil, err
-	}
-	if len(all) > 1 {
-		return nil, fmt.Errorf("run %s calibrated %d devices: choose one (--device) or report them all", id, len(all))
-	}
-	return all[0], nil
-}
-
-// evaluateAll analyses every device of a run, each with its own frozen
-// description, against the shared reference.
-func evaluateAll(st runStore, id store.RunID) ([]*runResult, error) {
+// evaluateAll analyses the captured points of every device of a run, each
+// with the description the run was frozen with when it was created (never
+// with today's configuration file or environment), against the shared
+// reference. A run stored before runs kept a record is evaluated with the
+// configuration text it kept. A device of several that has no result says
+// why in its report; the others are not held up by it.
+func evaluateAll(st runStore, id store.RunID) (*runResult, error) {
 	run, err := st.Run(id)
 	if err != nil {
 		return nil, fmt.Errorf("read run %s: %w", id, err)
@@ -71,6 +49,9 @@ func evaluateAll(st runStore, id store.RunID) ([]*runResult, error) {
 	if err != nil {
 		return nil, fmt.Errorf("read points of %s: %w", id, err)
 	}
+	if len(pts) == 0 {
+		return nil, fmt.Errorf("run %s has no captured points yet (%s%s): nothing to evaluate", id, run.State, prefixed(": ", run.Reason))
+	}
 	names := []string{""}
 	if len(rec.Devices) > 0 {
 		names = names[:0]
@@ -78,7 +59,7 @@ func evaluateAll(st runStore, id store.RunID) ([]*runResult, error) {
 			names = append(names, d.Instrument)
 		}
 	}
-	var out []*runResult
+	out := &runResult{ID: id}
 	for _, name := range names {
 		one, _ := rec.ForDevice(name)
 		var mine []analysis.Point
@@ -87,40 +68,53 @@ func evaluateAll(st runStore, id store.RunID) ([]*runResult, error) {
 				mine = append(mine, p)
 			}
 		}
-		r, err := evaluateOne(st, run, one, mine, name)
-		if err != nil && len(names) > 1 && len(mine) == 0 {
-			// One device without points does not hide the others.
-			out = append(out, &runResult{Device: name, Info: one.ReportInfo(), Empty: true, Why: err.Error()})
+		info := one.ReportInfo()
+		info.Device.Instrument = name
+		info.Run = report.RunIdentity{ID: id.String(), Label: run.Label, State: string(run.State), Reason: run.Reason}
+		if run.State != store.StateRunning && run.State != store.StatePaused {
+			info.Run.Missed = missedPoints(st, id, one, mine, name)
+		}
+		info.GeneratedAt = run.Updated
+		d := report.DeviceReport{Info: info}
+		if len(mine) == 0 {
+			d.Missing = "no reading of this device was captured"
+			out.Devices = append(out.Devices, d)
 			continue
 		}
-		if err != nil {
-			return nil, err
+		res, err := analysis.Analyze(mine, one.Device, one.Reference, one.Options)
+		switch {
+		case err != nil && len(names) == 1:
+			return nil, fmt.Errorf("analyse %s: %w", id, err)
+		case err != nil:
+			d.Missing = "its readings could not be evaluated: " + err.Error()
+		default:
+			d.Result = res
 		}
-		out = append(out, r)
+		out.Devices = append(out.Devices, d)
 	}
 	return out, nil
 }
 
-func evaluateOne(st runStore, run store.Run, rec record.Run, pts []analysis.Point, device string) (*runResult, error) {
-	id := run.ID
-	what := id.String()
-	if device != "" {
-		what += " device " + device
+// names lists the devices of the run as --device names them.
+func (r *runResult) names() []string {
+	out := make([]string, len(r.Devices))
+	for i, d := range r.Devices {
+		out[i] = d.Info.DeviceName()
 	}
-	if len(pts) == 0 {
-		return nil, fmt.Errorf("run %s has no captured points yet (%s%s): nothing to evaluate", what, run.State, prefixed(": ", run.Reason))
+	return out
+}
+
+// only keeps the device named (every device when name is empty).
+func (r *runResult) only(name string) (*runResult, error) {
+	if name == "" {
+		return r, nil
 	}
-	res, err := analysis.Analyze(pts, rec.Device, rec.Reference, rec.Options)
-	if err != nil {
-		return nil, fmt.Errorf("analyse %s: %w", what, err)
+	for _, d := range r.Devices {
+		if d.Info.DeviceName() == name || (len(r.Devices) == 1 && d.Info.Device.ID == name) {
+			return &runResult{ID: r.ID, Devices: []report.DeviceReport{d}}, nil
+		}
 	}
-	info := rec.ReportInfo()
-	info.Run = report.RunIdentity{ID: id.String(), Label: run.Label, State: string(run.State), Reason: run.Reason}
-	if run.State != store.StateRunning && run.State != store.StatePaused {
-		info.Run.Missed = missedPoints(st, id, rec, pts, device)
-	}
-	info.GeneratedAt = run.Updated
-	return &runResult{Result: res, Points: pts, Info: info, Device: device}, nil
+	return nil, fmt.Errorf("run %s has no device %q; its devices: %s", r.ID, name, strings.Join(r.names(), ", "))
 }
 
 func prefixed(p, s string) string {
@@ -200,110 +194,31 @@ func missedReasons(st runStore, id store.RunID, device string) map[int]string {
 	}
 }
 
-// printResult writes the result table for the terminal: for a run of
-// several devices, a summary of every device first, then each one's table.
-func printResult(w io.Writer, rs ...*runResult) error {
-	if len(rs) == 1 {
-		return report.Text(w, rs[0].Info, rs[0].Result)
-	}
-	printSummary(w, rs)
-	for _, r := range rs {
-		fmt.Fprintf(w, "\n════ device %s ════\n", r.Device)
-		if r.Empty {
-			fmt.Fprintln(w, r.Why)
-			continue
-		}
-		if err := report.Text(w, r.Info, r.Result); err != nil {
-			return err
-		}
+// printResult writes the result for the terminal: for a run of several
+// devices, a summary of every device first, then each one's report.
+func printResult(w io.Writer, r *runResult) error {
+	return report.TextDevices(w, r.Devices)
+}
+
+// writeHTMLReport writes a run's report to path as one document (every
+// device in it), whole or not at all.
+func writeHTMLReport(path string, r *runResult) error {
+	if err := writeWhole(path, func(w io.Writer) error { return report.HTMLDevices(w, r.Devices) }); err != nil {
+		return fmt.Errorf("report %s: %w", r.ID, err)
 	}
 	return nil
-}
-
-// printSummary is the table of every device of a run.
-func printSummary(w io.Writer, rs []*runResult) {
-	fmt.Fprintf(w, "DEVICES UNDER TEST (run %s)\n", rs[0].Info.Run.ID)
-	fmt.Fprintf(w, "  %-12s %-16s %-14s %18s  %s\n", "instrument", "id", "serial", "largest |error|", "verdict")
-	for _, r := range rs {
-		largest, verdict := summaryOf(r)
-		fmt.Fprintf(w, "  %-12s %-16s %-14s %18s  %s\n", r.Device, r.Info.Device.ID, r.Info.Device.Serial, largest, verdict)
-	}
-}
-
-// summaryOf is a device's largest error and verdict for the summary.
-func summaryOf(r *runResult) (largest, verdict string) {
-	if r.Empty {
-		return "—", "no points captured"
-	}
-	return readout.MeanWithUnit(r.Result.MaxAbsErrorPa, r.Info.Unit, r.Result.Device.ResolutionPa), strings.ToUpper(string(r.Result.Decision))
-}
-
-// writeHTMLReport renders a run's report to path, whole or not at all. For
-// a run of several devices path is the summary, which links one report
-// per device written beside it (path's name with the device's appended).
-func writeHTMLReport(path string, rs ...*runResult) error {
-	if len(rs) == 1 {
-		return writeOneHTML(path, rs[0])
-	}
-	var b bytes.Buffer
-	ext := filepath.Ext(path)
-	base := strings.TrimSuffix(path, ext)
-	links := make([]string, len(rs))
-	for i, r := range rs {
-		if r.Empty {
-			continue
-		}
-		one := base + "-" + r.Device + ext
-		if err := writeOneHTML(one, r); err != nil {
-			return err
-		}
-		links[i] = filepath.Base(one)
-	}
-	htmlSummary(&b, rs, links)
-	if err := os.WriteFile(path, b.Bytes(), 0o644); err != nil {
-		return fmt.Errorf("write report: %w", err)
-	}
-	return nil
-}
-
-func writeOneHTML(path string, r *runResult) error {
-	var buf bytes.Buffer
-	if err := report.HTML(&buf, r.Info, r.Result); err != nil {
-		return fmt.Errorf("report for %s: %w", r.Info.Run.ID, err)
-	}
-	if err := os.WriteFile(path, buf.Bytes(), 0o644); err != nil {
-		return fmt.Errorf("write report: %w", err)
-	}
-	return nil
-}
-
-// htmlSummary is the page that opens the report of a run of several devices.
-func htmlSummary(w io.Writer, rs []*runResult, links []string) {
-	esc := html.EscapeString
-	fmt.Fprintf(w, "<!doctype html><html><head><meta charset=\"utf-8\"><title>Run %s: devices under test</title>", esc(rs[0].Info.Run.ID))
-	fmt.Fprint(w, "<style>body{font-family:sans-serif;margin:2em}table{border-collapse:collapse}td,th{border:1px solid #999;padding:.3em .6em;text-align:left}</style></head><body>")
-	fmt.Fprintf(w, "<h1>Run %s: %d devices under test</h1><table><tr><th>instrument</th><th>id</th><th>serial</th><th>largest |error|</th><th>verdict</th><th>report</th></tr>",
-		esc(rs[0].Info.Run.ID), len(rs))
-	for i, r := range rs {
-		largest, verdict := summaryOf(r)
-		link := "—"
-		if links[i] != "" {
-			link = fmt.Sprintf("<a href=\"%s\">%s</a>", esc(links[i]), esc(r.Device))
-		}
-		fmt.Fprintf(w, "<tr><td>%s</td><td>%s</td><td>%s</td><td>%s</td><td>%s</td><td>%s</td></tr>",
-			esc(r.Device), esc(r.Info.Device.ID), esc(r.Info.Device.Serial), esc(largest), esc(verdict), link)
-	}
-	fmt.Fprint(w, "</table></body></html>")
 }
 
 func init() { newReportRenderer = daemonReport }
 
 // daemonReport renders reports for the API from the daemon's store, each
-// from the record its run was frozen with. For a run of several devices,
-// device selects one; without it the text and HTML forms give the summary
-// (HTML links each device's report) and JSON gives every device's result.
+// from the record its run was frozen with; device selects one device of a
+// run of several, and without it every device is in the report.
 func daemonReport(st *store.Store, _ *config.Config) api.RenderFunc {
 	return func(format string, w io.Writer, runID, device string) error {
+		if !slices.Contains(reportFormats, format) {
+			return fmt.Errorf("%w: format %q: use %s", api.ErrInvalid, format, strings.Join(reportFormats, ", "))
+		}
 		id, err := store.ParseRunID(runID)
 		if err != nil {
 			return fmt.Errorf("%w: %v", api.ErrInvalid, err)
@@ -315,65 +230,10 @@ func daemonReport(st *store.Store, _ *config.Config) api.RenderFunc {
 		if err != nil {
 			return fmt.Errorf("%w: %v", api.ErrConflict, err)
 		}
-		if device != "" {
-			var pick []*runResult
-			for _, r := range all {
-				if r.Device == device {
-					pick = append(pick, r)
-				}
-			}
-			if len(pick) == 0 {
-				return fmt.Errorf("%w: run %s has no device %q", api.ErrNotFound, id, device)
-			}
-			all = pick
+		one, err := all.only(device)
+		if err != nil {
+			return fmt.Errorf("%w: %v", api.ErrNotFound, err)
 		}
-		if len(all) > 1 {
-			switch format {
-			case "text":
-				return printResult(w, all...)
-			case "html":
-				links := make([]string, len(all))
-				for i, r := range all {
-					if !r.Empty {
-						links[i] = fmt.Sprintf("report?format=html&device=%s", url.QueryEscape(r.Device))
-					}
-				}
-				htmlSummary(w, all, links)
-				return nil
-			case "json":
-				w.Write([]byte("["))
-				first := true
-				for _, r := range all {
-					if r.Empty {
-						continue
-					}
-					if !first {
-						w.Write([]byte(","))
-					}
-					first = false
-					if err := report.JSON(w, r.Info, r.Result); err != nil {
-						return err
-					}
-				}
-				_, err := w.Write([]byte("]"))
-				return err
-			}
-			return fmt.Errorf("%w: run %s calibrated %d devices: choose one with device=NAME for %s", api.ErrInvalid, id, len(all), format)
-		}
-		res := all[0]
-		if res.Empty {
-			return fmt.Errorf("%w: %s", api.ErrConflict, res.Why)
-		}
-		switch format {
-		case "html":
-			return report.HTML(w, res.Info, res.Result)
-		case "csv":
-			return report.CSV(w, res.Info, res.Result)
-		case "json":
-			return report.JSON(w, res.Info, res.Result)
-		case "text":
-			return report.Text(w, res.Info, res.Result)
-		}
-		return fmt.Errorf("%w: format %q: use html, csv, json or text", api.ErrInvalid, format)
+		return renderReport(w, format, one)
 	}
 }

@@ -96,7 +96,8 @@ type runView struct {
 	input    io.Reader // dial readings typed by the operator; nil: none
 }
 
-// runOnce runs (or resumes) one calibration to its end and evaluates it.
+// runOnce runs (or resumes) one calibration to its end and evaluates it,
+// every device under test.
 func runOnce(ctx context.Context, cfg *config.Config, label string, progress io.Writer, showBar bool) (store.RunID, *runResult, error) {
 	return runForeground(ctx, cfg, label, runView{progress: progress, bar: showBar})
 }
@@ -150,19 +151,29 @@ func runForeground(ctx context.Context, cfg *config.Config, label string, view r
 	if state != store.StateFinished {
 		return id, nil, fmt.Errorf("run %s ended %s: %s", id, state, reason)
 	}
-	res, err := evaluate(b.store, id)
+	res, err := evaluateAll(b.store, id)
 	return id, res, err
 }
 
-// readByPerson says whether the device under test is a dial the person at
+// readByPerson says whether a device under test is a dial the person at
 // this terminal reads (not the simulator's own operator).
 func readByPerson(cfg *config.Config, b *bench) bool {
+	kind := map[string]string{}
+	for _, d := range cfg.Devices {
+		kind[d.Instrument] = d.Device.Kind
+	}
 	for _, in := range cfg.Instruments {
 		if in.Role != config.RoleDevice {
 			continue
 		}
+		k, ok := kind[in.Name]
+		if !ok {
+			k = cfg.Device.Kind
+		}
 		simulated := b.rig != nil && b.rig.DialReader() != nil && in.Link.Kind == config.LinkManual
-		return !simulated && (in.Link.Kind == config.LinkManual || cfg.Device.Kind == "dial")
+		if !simulated && (in.Link.Kind == config.LinkManual || k == "dial") {
+			return true
+		}
 	}
 	return false
 }
@@ -194,7 +205,8 @@ type runWatch struct {
 	est    *estimator
 	bar    *progressbar.ProgressBar // nil: no bar
 	prompt *dialPrompt              // nil: nobody types readings here
-	// answered is the wait last answered: not asked again while it lasts.
+	// answered is the wait last answered (dial and what it waited for):
+	// not asked again while it lasts.
 	answered string
 }
 
@@ -214,15 +226,16 @@ func (w *runWatch) follow(ctx context.Context) {
 		}
 		st := w.eng.Status()
 		w.est.observe(st, time.Now())
-		what, target, ok := waiting(st)
-		if !ok || what != w.answered {
+		name, what, target, ok := waiting(st)
+		key := name + ": " + what
+		if !ok || key != w.answered {
 			w.answered = ""
 		}
 		if ok && w.prompt != nil && w.answered == "" {
 			if w.bar != nil {
 				w.bar.Clear()
 			}
-			err := w.prompt.ask(ctx, what, target)
+			err := w.prompt.ask(ctx, name, what, target)
 			if errors.Is(err, errInputClosed) {
 				fmt.Fprintf(w.out, "\n%v; the run waits for each reading until its timeout\n", err)
 				w.prompt = nil
@@ -230,7 +243,7 @@ func (w *runWatch) follow(ctx context.Context) {
 			// The step takes the reading at its next poll: until then it
 			// still shows as waiting, and must not be asked twice (a second
 			// entry would supersede the first).
-			w.answered = what
+			w.answered = key
 			continue
 		}
 		if w.bar != nil {

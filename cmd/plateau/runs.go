@@ -1,10 +1,12 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
 	"io"
+	"strings"
 	"text/tabwriter"
 	"time"
 
@@ -14,6 +16,7 @@ import (
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/analysis/readout"
+	"plateau/analysis/report"
 	"plateau/analysis/units"
 	"plateau/config"
 )
@@ -50,10 +53,17 @@ stay at hand with the daemon stopped.`,
 			if err != nil {
 				return err
 			}
-			if asJSON {
-				return printJSON(out, runs)
+			listed := make([]listedRun, len(runs))
+			for i, r := range runs {
+				listed[i].RunInfo = r
+				if d, err := src.Run(ctx, r.ID); err == nil {
+					listed[i].Devices = runDevices(d)
+				}
 			}
-			printRuns(out, runs)
+			if asJSON {
+				return printJSON(out, listed)
+			}
+			printRuns(out, listed)
 			return nil
 		}
 		run, err := src.Run(ctx, args[0])
@@ -65,7 +75,7 @@ stay at hand with the daemon stopped.`,
 			return err
 		}
 		if asJSON {
-			return printJSON(out, map[string]any{"run": run, "points": pts})
+			return printJSON(out, map[string]any{"run": run, "devices": runDevices(run), "points": pts})
 		}
 		show, err := runDisplay(run, unit)
 		if err != nil {
@@ -96,7 +106,8 @@ type runSource interface {
 	Runs(ctx context.Context) ([]api.RunInfo, error)
 	Run(ctx context.Context, id string) (api.RunDetail, error)
 	Points(ctx context.Context, id string) ([]analysis.Point, error)
-	Report(ctx context.Context, id, format string, w io.Writer) error
+	// Report writes the report of device ("" for every device).
+	Report(ctx context.Context, id, format, device string, w io.Writer) error
 	Close() error
 }
 
@@ -131,6 +142,29 @@ func (f *recordFlags) open(cmd *cobra.Command) (runSource, error) {
 type daemonSource struct{ *api.Client }
 
 func (daemonSource) Close() error { return nil }
+
+// Report asks the daemon for the whole run's report as JSON, evaluated
+// there from the run's frozen record, and renders it here: in text, or
+// for one device, which the daemon's report call cannot be asked for.
+func (d daemonSource) Report(ctx context.Context, id, format, device string, w io.Writer) error {
+	var doc bytes.Buffer
+	if err := d.Client.Report(ctx, id, "json", &doc); err != nil {
+		return err
+	}
+	ds, err := report.ReadJSON(&doc)
+	if err != nil {
+		return fmt.Errorf("report %s from the daemon: %w", id, err)
+	}
+	r := &runResult{Devices: ds}
+	if r.ID, err = store.ParseRunID(ds[0].Info.Run.ID); err != nil {
+		return fmt.Errorf("report %s from the daemon: %w", id, err)
+	}
+	one, err := r.only(device)
+	if err != nil {
+		return err
+	}
+	return renderReport(w, format, one)
+}
 
 // storeSource reads runs from an open store file.
 type storeSource struct{ st *store.Store }
@@ -187,16 +221,20 @@ func (s storeSource) Points(_ context.Context, raw string) ([]analysis.Point, er
 	return s.st.Points(id)
 }
 
-func (s storeSource) Report(_ context.Context, raw, format string, w io.Writer) error {
+func (s storeSource) Report(_ context.Context, raw, format, device string, w io.Writer) error {
 	id, err := s.id(raw)
 	if err != nil {
 		return err
 	}
-	res, err := evaluate(s.st, id)
+	all, err := evaluateAll(s.st, id)
 	if err != nil {
 		return err
 	}
-	return renderReport(w, format, res)
+	one, err := all.only(device)
+	if err != nil {
+		return err
+	}
+	return renderReport(w, format, one)
 }
 
 // display writes pressures in one unit with the digits of the device's
@@ -241,16 +279,80 @@ func runDisplay(r api.RunDetail, override string) (display, error) {
 
 const timeLayout = "2006-01-02 15:04"
 
-func printRuns(w io.Writer, runs []api.RunInfo) {
+// listedRun is a run in the list, with the devices it calibrated.
+type listedRun struct {
+	api.RunInfo
+	Devices []runDevice `json:"devices,omitempty"`
+}
+
+// runDevice is one device under test of a run: the instrument's name
+// (empty when the run has one device) and the device's identity number.
+type runDevice struct {
+	Name string `json:"name,omitempty"`
+	ID   string `json:"id,omitempty"`
+}
+
+func (d runDevice) String() string {
+	switch {
+	case d.Name == "" && d.ID == "":
+		return "—"
+	case d.Name == "":
+		return d.ID
+	case d.ID == "":
+		return d.Name
+	}
+	return d.Name + " (" + d.ID + ")"
+}
+
+// runDevices are the devices a run calibrated, from the configuration
+// kept with it; nil when it kept none.
+func runDevices(r api.RunDetail) []runDevice {
+	if r.Config == "" {
+		return nil
+	}
+	cfg, err := config.Parse([]byte(r.Config), "configuration kept with run "+r.ID)
+	if err != nil {
+		return nil
+	}
+	if len(cfg.Devices) < 2 {
+		return []runDevice{{ID: cfg.Device.ID}}
+	}
+	out := make([]runDevice, len(cfg.Devices))
+	for i, d := range cfg.Devices {
+		out[i] = runDevice{Name: d.Instrument, ID: d.Device.ID}
+	}
+	return out
+}
+
+// devicesColumn names a run's devices in the list: the one device's
+// identity, or the instruments of several (the first few, and how many).
+func devicesColumn(ds []runDevice) string {
+	switch len(ds) {
+	case 0:
+		return "—"
+	case 1:
+		return ds[0].String()
+	}
+	names := make([]string, 0, 4)
+	for _, d := range ds[:min(len(ds), 3)] {
+		names = append(names, d.Name)
+	}
+	if len(ds) > 3 {
+		names = append(names, "…")
+	}
+	return fmt.Sprintf("%d: %s", len(ds), strings.Join(names, ", "))
+}
+
+func printRuns(w io.Writer, runs []listedRun) {
 	if len(runs) == 0 {
 		fmt.Fprintln(w, "no runs yet; start one with: plateau start")
 		return
 	}
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "RUN\tSTATE\tCREATED\tLAST CHANGE\tLABEL\tREASON")
+	fmt.Fprintln(tw, "RUN\tSTATE\tCREATED\tLAST CHANGE\tDEVICES\tLABEL\tREASON")
 	for _, r := range runs {
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", r.ID, r.State, r.Created.Local().Format(timeLayout),
-			r.Updated.Local().Format(timeLayout), r.Label, r.Reason)
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\n", r.ID, r.State, r.Created.Local().Format(timeLayout),
+			r.Updated.Local().Format(timeLayout), devicesColumn(r.Devices), r.Label, r.Reason)
 	}
 	tw.Flush()
 }
@@ -258,13 +360,35 @@ func printRuns(w io.Writer, runs []api.RunInfo) {
 func printRun(w io.Writer, r api.RunDetail, pts []analysis.Point, show display) {
 	fmt.Fprintf(w, "run       %s %q\nstate     %s%s\ncreated   %s\nchanged   %s\npoints    %d\n",
 		r.ID, r.Label, r.State, prefixed(": ", r.Reason), r.Created.Local().Format(time.RFC3339), r.Updated.Local().Format(time.RFC3339), r.Points)
+	devs := runDevices(r)
+	if len(devs) > 0 {
+		names := make([]string, len(devs))
+		for i, d := range devs {
+			names[i] = d.String()
+		}
+		label := "device"
+		if len(devs) > 1 {
+			label = "devices"
+		}
+		fmt.Fprintf(w, "%-9s %s\n", label, strings.Join(names, ", "))
+	}
 	if len(pts) == 0 {
 		return
 	}
+	several := false
+	for _, p := range pts {
+		several = several || p.Device != ""
+	}
 	fmt.Fprintln(w)
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', tabwriter.AlignRight)
+	if several {
+		fmt.Fprint(tw, "INSTRUMENT\t")
+	}
 	fmt.Fprintf(tw, "CYCLE\tSERIES\tKIND\tNOMINAL %[1]s\tREFERENCE %[1]s\tDEVICE %[1]s\tDEVICE − REF %[1]s\t\n", show.unit.Symbol)
 	for _, p := range pts {
+		if several {
+			fmt.Fprintf(tw, "%s\t", p.Device)
+		}
 		fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t%s\t%s\t\n", p.Cycle, p.Direction, p.Kind,
 			show.one(p.Nominal), show.mean(p.Reference.Mean), show.mean(p.DUT.Mean), show.signed(p.DUT.Mean-p.Reference.Mean))
 	}
