@@ -54,6 +54,8 @@ type Instrument struct {
 	// Device describes this device under test when a run holds several;
 	// nil for other roles and for the one device of the top-level section.
 	Device *DeviceEntry `mapstructure:"device"`
+	// Balance describes the reference when it is a pressure balance (balance.go).
+	Balance *Balance `mapstructure:"balance"`
 	// Mode, Quantity and Uncertainty: see mode.go and ambient.go.
 	Measures `mapstructure:",squash"`
 }

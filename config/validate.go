@@ -24,7 +24,7 @@ var (
 
 var (
 	roles      = []string{RoleReference, RoleDevice, RoleSource, RoleAmbient}
-	linkKinds  = []string{LinkModbusTCP, LinkModbusRTU, LinkModbusRTUTCP, LinkSerial, LinkSim, LinkManual}
+	linkKinds  = []string{LinkModbusTCP, LinkModbusRTU, LinkModbusRTUTCP, LinkSerial, LinkSim, LinkManual, LinkBalance}
 	tables     = []string{"holding", "input"}
 	types      = []string{"int16", "uint16", "int32", "uint32", "float32", "float64"}
 	orders32   = []string{"ABCD", "CDAB", "BADC", "DCBA"}
@@ -70,6 +70,7 @@ func (c *Config) validate(p *Problems) {
 	c.validateSafety(p)
 	c.validateProcedure(p)
 	c.validateHead(p)
+	c.validateBalances(p)
 	c.validateSimulator(p)
 	c.validateLines(p)
 }

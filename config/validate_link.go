@@ -58,6 +58,9 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 		return
 	}
 	switch l.Kind {
+	case LinkBalance:
+		c.validateBalanceLink(p, key, in)
+		return
 	case LinkSim:
 		if oneOf(p, key+".sim_part", in.SimPart, simParts) && in.SimPart != in.Role && !(in.SimPart == "device" && in.Role == RoleDevice) {
 			p.bad(key+".sim_part", in.SimPart, "does not match the instrument's role %q", in.Role)
