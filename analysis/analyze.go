@@ -115,6 +115,10 @@ type reading struct {
 	refSD float64 // sample SD of the reference's settled window
 	refN  int     // samples in that window
 	t     time.Time
+	// ambientC is the ambient temperature over the reading's window, °C,
+	// when an ambient instrument measured it (hasAmbientC).
+	ambientC    float64
+	hasAmbientC bool
 }
 
 func (r reading) err() float64 { return r.dut - r.ref }
@@ -202,7 +206,7 @@ func checkPoint(p Point) error {
 	if !finite(p.Nominal) || math.Abs(p.Nominal) > maxPressurePa {
 		return fmt.Errorf("nominal %g Pa is not a finite pressure within ±%g Pa", p.Nominal, maxPressurePa)
 	}
-	return nil
+	return validateAmbient(p)
 }
 
 // basicMinimumPercent is the smallest expanded uncertainty the basic
@@ -304,8 +308,10 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 			return Result{}, fmt.Errorf("%s: a second %s reading at point %d in cycle %d (first was reading %d)", describe(i, p), p.Direction, p.Index+1, p.Cycle, j+1)
 		}
 		g.seen[key] = i
-		g.readings = append(g.readings, reading{cycle: p.Cycle, dir: p.Direction, ref: p.Reference.Mean + head, dut: p.DUT.Mean,
-			head: head, refSD: p.Reference.StdDev, refN: p.Reference.Count, t: readingTime(p)})
+		r := reading{cycle: p.Cycle, dir: p.Direction, ref: p.Reference.Mean + head, dut: p.DUT.Mean,
+			head: head, refSD: p.Reference.StdDev, refN: p.Reference.Count, t: readingTime(p)}
+		r.ambientC, r.hasAmbientC = temperatureOf(p)
+		g.readings = append(g.readings, r)
 	}
 	if len(groups) == 0 {
 		return Result{}, errors.New("no measurement points: only zero readings were given")
@@ -420,6 +426,8 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 	if res.Cycles >= 2 {
 		res.Drift = drift(res.Points, zeros)
 	}
+	amb, ambWarnings := ambientSummary(points, res)
+	res.Ambient, warnings = amb, append(warnings, ambWarnings...)
 	res.Warnings = append([]string{}, warnings...)
 	if err := withOutput(&res, points, dev, opt); err != nil {
 		return Result{}, err
@@ -749,7 +757,10 @@ func budget(pr PointResult, rs []reading, dev Device, ref Reference, opt Options
 		b = append(b, notEvaluated("reference_resolution", "no reference resolution configured"))
 	}
 	b = append(b, windowNoise(rs))
-	b = append(b, temperatureTerm(dev, opt))
+	b = append(b, temperatureTerm(dev, opt, rs))
+	if ref.Barometer != nil {
+		b = append(b, barometerTerm(ref))
+	}
 	switch {
 	case !opt.InterpolationInBudget:
 		b = append(b, notEvaluated("interpolation", "the correction curve is not used between the points"))
@@ -792,10 +803,23 @@ func windowNoise(rs []reading) Contribution {
 
 // temperatureTerm is the device's temperature effect: coefficient (% of
 // span per K) × span × |ambient − reference temperature|, rectangular.
-func temperatureTerm(dev Device, opt Options) Contribution {
+// The ambient temperature is the one measured over the readings' windows
+// (the largest deviation among the point's readings), else the one given
+// for the whole run.
+func temperatureTerm(dev Device, opt Options, rs []reading) Contribution {
+	dev2, measured := 0.0, false
+	for _, r := range rs {
+		if r.hasAmbientC {
+			dev2, measured = math.Max(dev2, math.Abs(r.ambientC-dev.ReferenceTemperatureC)), true
+		}
+	}
 	switch {
 	case dev.TempCoefficient == 0:
 		return notEvaluated("temperature", "no temperature coefficient configured")
+	case measured:
+		c := rect("temperature", dev.TempCoefficient/100*dev.Span()*dev2, math.Sqrt(3))
+		c.Note = fmt.Sprintf("measured: %.2f K from the reference temperature %g °C", dev2, dev.ReferenceTemperatureC)
+		return c
 	case opt.AmbientC == nil:
 		return notEvaluated("temperature", "no ambient temperature recorded")
 	}

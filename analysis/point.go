@@ -53,4 +53,7 @@ type Point struct {
 	// Signal flags a transmitter output outside the NE 43 measuring band
 	// (output.go); empty for an ordinary reading and in older records.
 	Signal Signal `json:"signal,omitempty"`
+	// Ambient holds the ambient conditions over the point's window, one
+	// entry per ambient instrument that had samples in it (ambient.go).
+	Ambient []AmbientMean `json:"ambient,omitempty"`
 }

@@ -53,6 +53,9 @@ type Result struct {
 	Warnings          []string `json:"warnings"`
 	// Output is a transmitter's calibration in mA (output.go); nil for other devices.
 	Output *OutputResult `json:"output,omitempty"`
+	// Ambient is the ambient conditions per point and over the run
+	// (ambient.go); nil when no ambient instrument was read.
+	Ambient *AmbientResult `json:"ambient,omitempty"`
 }
 
 // Coverage states how the expanded uncertainty was obtained.

@@ -25,6 +25,10 @@ type Device struct {
 	ReferenceTemperatureC float64 `json:"reference_temperature_c,omitempty"`
 	// Loop is a 4–20 mA transmitter's output, calibrated in mA (output.go); nil for other devices.
 	Loop *Loop `json:"loop,omitempty"`
+	// Mode is gauge or absolute ("" for a table that does not say);
+	// Conditions the reference conditions (ambient.go).
+	Mode       string      `json:"mode,omitempty"`
+	Conditions *Conditions `json:"conditions,omitempty"`
 }
 
 // Span is the upper minus the lower range value; compound ranges use the full span.
@@ -169,6 +173,10 @@ type Reference struct {
 	// Head is the height difference between the reference's and the DUT's
 	// pressure reference levels; the zero value means none.
 	Head HeadCorrection `json:"head_correction"`
+	// Mode is the reference's own mode; Barometer, when set, converted its
+	// readings to the device's mode (ambient.go).
+	Mode      string     `json:"mode,omitempty"`
+	Barometer *Barometer `json:"barometer,omitempty"`
 }
 
 // Expanded returns U_ref at reference value p, at the certificate's K.
@@ -195,7 +203,7 @@ func (r Reference) Validate() error {
 			return fmt.Errorf("reference %s = %g: must be a finite number ≥ 0", c.name, c.v)
 		}
 	}
-	return nil
+	return r.Barometer.validate()
 }
 
 // stability is the half-width of the drift since calibration at p.

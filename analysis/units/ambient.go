@@ -94,9 +94,10 @@ func LookupAmbient(k AmbientKind, name string) (AmbientUnit, error) {
 // Interval is a range of an ambient quantity in its base unit, as the
 // reference conditions of a device give it.
 type Interval struct {
-	Low, High float64
-	Nominal   float64 // the middle of a "20 ± 2 °C" range; the midpoint of "18 … 22 °C"
-	Text      string  // as configured, for messages and reports
+	Low     float64 `json:"low"`
+	High    float64 `json:"high"`
+	Nominal float64 `json:"nominal"` // the middle of a "20 ± 2 °C" range; the midpoint of "18 … 22 °C"
+	Text    string  `json:"text"`    // as configured, for messages and reports
 }
 
 // Holds says whether v lies within the interval (ends included, to the
