@@ -520,7 +520,13 @@ func (rr *runRecorder) Point(p analysis.Point) error {
 			v.Points++
 		}
 	})
-	e.emit(rr.r.id, slog.LevelInfo, "point", "",
+	// The event names its device, so the log of a run of several tells
+	// them apart.
+	inst := p.Device
+	if inst == "" && len(e.devs) == 1 {
+		inst = e.devs[0].poll.Name
+	}
+	e.emit(rr.r.id, slog.LevelInfo, "point", inst,
 		fmt.Sprintf("captured %s: reference %s, device %s (error %s)", describePoint(p), e.fmtPa(p.Reference.Mean), e.fmtPa(p.DUT.Mean), e.fmtPa(p.DUT.Mean-p.Reference.Mean)),
 		p)
 	return nil
