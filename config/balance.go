@@ -215,6 +215,8 @@ func (b *Balance) validateTemperature(c *Config, p *Problems, k func(string) str
 				found = true
 				if in.Role != RoleAmbient {
 					p.bad(k("piston_thermometer"), name, "names an instrument with role: %s; the piston thermometer is an instrument with role: ambient", in.Role)
+				} else if in.Quantity != "" && in.Quantity != "temperature" {
+					p.bad(k("piston_thermometer"), name, "names an ambient instrument that reads %s, not temperature", in.Quantity)
 				}
 			}
 		}
