@@ -32,6 +32,9 @@ func (r *Rig) Resolve(inst config.Instrument) (config.Instrument, error) {
 	if ep.TCP == "" {
 		return inst, fmt.Errorf("instrument %q: %w", inst.Name, ErrNotStarted)
 	}
+	if out, ok, err := r.resolveAmbient(inst); ok {
+		return out, err
+	}
 	part := inst.SimPart
 	if part == "" {
 		part = inst.Role

@@ -78,6 +78,8 @@ type Rig struct {
 	baud     int
 	dropHold time.Duration
 
+	amb *ambientSim // the simulated room (ambient.go)
+
 	mu      sync.Mutex
 	started bool
 	ep      Endpoints
@@ -216,6 +218,9 @@ func (r *Rig) Start(ctx context.Context) (Endpoints, error) {
 		defer r.mu.Unlock()
 		r.closeLocked()
 	}()
+	if err := r.startAmbient(ctx); err != nil {
+		return fail(err)
+	}
 	r.cancel, r.started, r.ep = cancel, true, ep
 	r.log.Info("simulated rig started", "tcp", ep.TCP, "rtu", ep.RTU,
 		"reference_line", ep.ReferenceLine, "device_line", ep.DeviceLine)
