@@ -37,6 +37,8 @@ type Run struct {
 	// several at once (their points carry the instrument's name); empty
 	// for a run with one, which the fields above describe.
 	Devices []DeviceRecord `json:"devices,omitempty"`
+	// Ambient lists the ambient instruments whose means the points carry (ambient.go).
+	Ambient []AmbientRecord `json:"ambient,omitempty"`
 }
 
 // DeviceRecord is the frozen description of one of several devices.
@@ -68,7 +70,7 @@ func (r Run) ForDevice(instrument string) (Run, bool) {
 func Of(cfg *config.Config) Run {
 	dev, ref, opt := AnalysisInputs(cfg)
 	run := Run{Version: Version, Device: dev, Reference: ref, Options: opt, Info: Info(cfg), Unit: cfg.Device.Unit,
-		Procedure: cfg.Procedure}
+		Procedure: cfg.Procedure, Ambient: ambientRecords(cfg)}
 	if len(cfg.Devices) > 1 {
 		for _, d := range cfg.Devices {
 			dev, ref, _ := inputsFor(cfg, d.Device, d.HeightM)
@@ -190,6 +192,7 @@ func inputsFor(cfg *config.Config, d config.Device, height float64) (analysis.De
 			ref.Head.Gas = &analysis.Gas{MolarMass: h.GasMolarMass, TemperatureK: h.GasTemperature + 273.15}
 		}
 	}
+	withModes(cfg, d, &dev, &ref)
 	opt := analysis.Options{Rule: analysis.DecisionRule(cfg.Procedure.Decision), Coverage: analysis.CoverageMethod(cfg.Procedure.Coverage)}
 	return dev, ref, opt
 }
