@@ -506,6 +506,7 @@ func (rr *runRecorder) Point(p analysis.Point) error {
 		e.storeTrouble(err)
 		return fmt.Errorf("the samples of %s could not be stored: %w", describePoint(p), err)
 	}
+	p.Signal = e.outputSignal(p)
 	_, existed, err := e.st.AddPoint(rr.r.id, p)
 	if err != nil {
 		e.storeTrouble(err)

@@ -119,6 +119,8 @@ type Reference struct {
 	Stability      float64 `mapstructure:"stability"`
 	StabilityFloor string  `mapstructure:"stability_floor"`
 	Resolution     string  `mapstructure:"resolution"`
+	// LoopMeter reads the 4–20 mA output of a transmitter under test (loop.go).
+	LoopMeter LoopMeter `mapstructure:"loop_meter"`
 
 	LowerPa        float64   `mapstructure:"-"`
 	UpperPa        float64   `mapstructure:"-"`

@@ -59,6 +59,11 @@ func defaults() map[string]any {
 		"reference.stability":       0.0,
 		"reference.stability_floor": "",
 		"reference.resolution":      "",
+		// the current meter of a transmitter's output (loop.go)
+		"reference.loop_meter.uncertainty": "",
+		"reference.loop_meter.floor":       "",
+		"reference.loop_meter.coverage":    2.0,
+		"reference.loop_meter.resolution":  "",
 
 		"procedure.mode":              "plan",
 		"procedure.points":            []string{"0 %", "25 %", "50 %", "75 %", "100 %"},

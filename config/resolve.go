@@ -19,6 +19,7 @@ const maxPressurePa = 1e10 // 100 000 bar
 // values that cannot be read; validate then judges the typed values only.
 func (c *Config) resolve(p *Problems) {
 	c.resolveReference(p)
+	c.resolveLoopMeter(p)
 	for i := range c.Instruments {
 		c.Instruments[i].resolve(p, fmt.Sprintf("instruments[%d]", i))
 	}

@@ -65,6 +65,7 @@ func (c *Config) validate(p *Problems) {
 	c.validateDevices(p)
 	c.validateReference(p)
 	c.validateInstruments(p)
+	c.validateLoops(p)
 	c.validateModes(p)
 	c.validateAmbient(p)
 	c.validateSafety(p)

@@ -74,6 +74,7 @@ func Of(cfg *config.Config) Run {
 	if len(cfg.Devices) > 1 {
 		for _, d := range cfg.Devices {
 			dev, ref, _ := inputsFor(cfg, d.Device, d.HeightM)
+			dev.Loop = loopOf(cfg, d.Instrument)
 			info := infoFor(cfg, d.Device)
 			run.Devices = append(run.Devices, DeviceRecord{Instrument: d.Instrument, Device: dev, Reference: ref, Info: info, Unit: d.Device.Unit})
 		}
@@ -154,7 +155,9 @@ func infoFor(cfg *config.Config, d config.Device) report.Info {
 // AnalysisInputs turns the configuration into the analysis's descriptions of
 // the device, the reference and the evaluation options.
 func AnalysisInputs(cfg *config.Config) (analysis.Device, analysis.Reference, analysis.Options) {
-	return inputsFor(cfg, cfg.Device, cfg.Head.DeviceHeight)
+	dev, ref, opt := inputsFor(cfg, cfg.Device, cfg.Head.DeviceHeight)
+	dev.Loop = loopOf(cfg, "")
+	return dev, ref, opt
 }
 
 // inputsFor is AnalysisInputs for one device under test mounted at height.
