@@ -46,6 +46,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strconv"
 	"strings"
 )
 
@@ -517,8 +518,26 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 // in a comparison (% of reading plus a floor). The budget's uncertainty
 // grows more slowly than in proportion to the pressure (its fixed terms),
 // so the line is tight at the top and at the worst point and conservative
-// between them.
+// between them. Both parts are rounded up to two significant digits, as a
+// certificate states an uncertainty.
 func Cover(results []Result, k float64) (pct, floorPa float64) {
+	pct, floorPa = cover(results, k)
+	return ceil2(pct), ceil2(floorPa)
+}
+
+// ceil2 rounds x > 0 up to two significant digits.
+func ceil2(x float64) float64 {
+	if !(x > 0) || math.IsInf(x, 0) {
+		return x
+	}
+	scale := math.Pow(10, math.Floor(math.Log10(x))-1)
+	// Through its two-digit decimal text, so that 0.0087 is the float
+	// nearest 0.0087 and prints as such.
+	v, _ := strconv.ParseFloat(strconv.FormatFloat(math.Ceil(x/scale*(1-1e-12))*scale, 'g', 2, 64), 64)
+	return v
+}
+
+func cover(results []Result, k float64) (pct, floorPa float64) {
 	top := -1.0
 	for _, r := range results {
 		if p := math.Abs(r.DevicePa); p > top && p > 0 {

@@ -410,7 +410,16 @@ func TestCover(t *testing.T) {
 		}
 	}
 	top := rs[len(rs)-1]
-	if line := pct / 100 * top.DevicePa; math.Abs(line-top.Expanded(2)) > 1e-9*line {
+	exact, _ := cover(rs, 2)
+	if line := exact / 100 * top.DevicePa; math.Abs(line-top.Expanded(2)) > 1e-9*line {
 		t.Errorf("at the top the line's slope part %g differs from U = %g", line, top.Expanded(2))
+	}
+	if !(pct >= exact && pct < exact*1.1) {
+		t.Errorf("rounded slope %g %%, exact %g %%", pct, exact)
+	}
+	for _, tc := range []struct{ in, want float64 }{{0.008649554, 0.0087}, {0.0087, 0.0087}, {75.0564, 76}, {0.1, 0.1}, {0, 0}} {
+		if got := ceil2(tc.in); math.Abs(got-tc.want) > 1e-12*tc.want {
+			t.Errorf("ceil2(%g) = %g, want %g", tc.in, got, tc.want)
+		}
 	}
 }

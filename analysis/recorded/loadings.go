@@ -277,11 +277,6 @@ func (t *table) loadingRow(rec []string, b Balance) (analysis.Point, *balance.Re
 		}
 		res = &r
 		p.Reference = analysis.Window{Mean: r.DevicePa, Count: 1, Start: at, End: at}
-		if p.Note == "" {
-			p.Note = "loading " + load
-		} else {
-			p.Note = "loading " + load + "; " + p.Note
-		}
 	}
 	if res == nil {
 		p.Reference = analysis.Window{Count: 1, Start: at, End: at}

@@ -15,6 +15,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"plateau/analysis"
+	"plateau/analysis/balance"
 	"plateau/analysis/recorded"
 	"plateau/analysis/report"
 	"plateau/analysis/units"
@@ -112,7 +113,8 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 		return fmt.Errorf("--format %q: use text, json, csv or html", f.format)
 	}
 	points, err := readRecorded(csvPath)
-	if err != nil {
+	loadings := errors.Is(err, errLoadings)
+	if err != nil && !loadings {
 		return err
 	}
 	cfg, err := config.Load(configPath)
@@ -121,6 +123,12 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 		cfg = nil // no default file: the flags must say everything
 	case err != nil:
 		return err
+	}
+	var balanceRef *analysis.Reference
+	if loadings {
+		if points, balanceRef, err = readLoadings(csvPath, cfg); err != nil {
+			return err
+		}
 	}
 
 	var (
@@ -137,6 +145,11 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 	}
 	if err := f.apply(&dev, &ref, &opt); err != nil {
 		return err
+	}
+	if balanceRef != nil {
+		// The balance's budget is the reference's uncertainty, and the
+		// head to the device is in its pressures already.
+		ref.PercentOfReading, ref.FloorPa, ref.K, ref.Head = balanceRef.PercentOfReading, balanceRef.FloorPa, balanceRef.K, balanceRef.Head
 	}
 	if opt.Rule == "" {
 		return errors.New("no decision rule: give --rule simple, guarded or four-state (or procedure.decision in the configuration); " +
@@ -190,6 +203,9 @@ func renderComparison(w io.Writer, f analyzeFlags, info report.Info, asLeft anal
 		return fmt.Errorf("--as-found works with --format text or json, not %q", f.format)
 	}
 	points, err := readRecorded(f.asFound)
+	if errors.Is(err, errLoadings) {
+		return fmt.Errorf("--as-found %s: give the as-found run as a comparison table; tables of loadings are evaluated as the main table only", f.asFound)
+	}
 	if err != nil {
 		return err
 	}
@@ -210,12 +226,22 @@ func renderComparison(w io.Writer, f analyzeFlags, info report.Info, asLeft anal
 	return report.ComparisonText(w, info, c, dev.ResolutionPa)
 }
 
+// errLoadings says a table names its loadings instead of reference
+// readings: it is read with the balance of the configuration (readLoadings).
+var errLoadings = errors.New("a table of loadings")
+
 func readRecorded(path string) ([]analysis.Point, error) {
 	file, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("open recorded run: %w", err)
 	}
 	defer file.Close()
+	if recorded.IsLoadings(file) {
+		return nil, errLoadings
+	}
+	if _, err := file.Seek(0, io.SeekStart); err != nil {
+		return nil, fmt.Errorf("read %s: %w", path, err)
+	}
 	points, err := recorded.Read(file)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
@@ -400,4 +426,35 @@ func (f analyzeFlags) displayUnit(cfg *config.Config) (units.Unit, error) {
 		}
 	}
 	return units.Pascal, nil
+}
+
+// readLoadings evaluates a table of loadings with the pressure balance
+// that is the configuration's reference, and gives the reference's
+// uncertainty as the line that covers every loading's expanded uncertainty
+// (k = 2); the head to the device is in the balance's pressures.
+func readLoadings(path string, cfg *config.Config) ([]analysis.Point, *analysis.Reference, error) {
+	if cfg == nil {
+		return nil, nil, fmt.Errorf("%s is a table of loadings (it has a loading column): its reference pressures are worked out from the pressure balance of the configuration file, and there is none (%s)", path, configPath)
+	}
+	b := cfg.ReferenceBalance()
+	if b == nil {
+		return nil, nil, fmt.Errorf("%s is a table of loadings (it has a loading column), but the reference of %s is not a pressure balance: give it link.kind: balance and a balance: section", path, cfg.File)
+	}
+	file, err := os.Open(path)
+	if err != nil {
+		return nil, nil, fmt.Errorf("open recorded run: %w", err)
+	}
+	defer file.Close()
+	run, err := recorded.ReadLoadings(file, recorded.Balance{
+		Setup:              b.Setup(),
+		Conditions:         cfg.BalanceConditions(b, cfg.Devices[0].HeightM),
+		TemperatureEntered: b.PistonTemperature != nil,
+	})
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	const k = 2
+	ref := analysis.Reference{K: k}
+	ref.PercentOfReading, ref.FloorPa = balance.Cover(run.Results, k)
+	return run.Points, &ref, nil
 }
