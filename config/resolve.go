@@ -257,4 +257,5 @@ func (c *Config) resolveSimulator(p *Problems) {
 	}
 	percent(p, "simulator.reference.error", s.Reference.Error, 100)
 	percent(p, "simulator.device.span", s.Device.Span, 100)
+	c.resolveSimulatedDevices(p)
 }

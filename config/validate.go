@@ -536,7 +536,7 @@ func (c *Config) validateHead(p *Problems) {
 func (c *Config) validateSimulator(p *Problems) {
 	s := &c.Simulator
 	for i, in := range c.Instruments {
-		if in.Role == RoleDevice && in.Link.Kind == LinkSim && s.Device.Kind != c.Device.Kind {
+		if in.Role == RoleDevice && in.Link.Kind == LinkSim && s.Device.Kind != c.Device.Kind && len(s.Devices) == 0 {
 			p.bad("simulator.device.kind", s.Device.Kind, "instruments[%d] is the simulated device, but device.kind is %q: make them the same", i, c.Device.Kind)
 		}
 	}
@@ -558,6 +558,7 @@ func (c *Config) validateSimulator(p *Problems) {
 	for key, d := range map[string]time.Duration{"slow_by": f.SlowBy, "stuck_for": f.StuckFor, "link_down": f.LinkDown, "link_every": f.LinkEvery} {
 		inRange(p, "simulator.faults."+key, d, 0, 24*time.Hour)
 	}
+	c.validateSimulatedDevices(p)
 }
 
 func joinInts(xs []int) string {
