@@ -195,6 +195,10 @@ func (b *Balance) validateAir(p *Problems, k func(string) string) {
 		}
 		return
 	}
+	if strings.TrimSpace(b.Residual) == "" {
+		p.bad(k("residual_pressure"), "", "is required in absolute mode: the residual pressure under the bell jar as its vacuum gauge reads it, e.g. \"0.5 Pa\"")
+		return
+	}
 	var ok bool
 	if b.ResidualPa, ok = pressure(p, k("residual_pressure"), b.Residual, true); ok && !(b.ResidualPa >= 0 && b.ResidualPa <= 1000) {
 		p.bad(k("residual_pressure"), b.Residual, "must be from 0 to 1 kPa: the residual pressure under an evacuated bell jar")

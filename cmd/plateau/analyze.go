@@ -149,7 +149,8 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 	if balanceRef != nil {
 		// The balance's budget is the reference's uncertainty, and the
 		// head to the device is in its pressures already.
-		ref.PercentOfReading, ref.FloorPa, ref.K, ref.Head = balanceRef.PercentOfReading, balanceRef.FloorPa, balanceRef.K, balanceRef.Head
+		ref.PercentOfReading, ref.FloorPa, ref.K = balanceRef.PercentOfReading, balanceRef.FloorPa, balanceRef.K
+		ref.Head = analysis.HeadCorrection{}
 	}
 	if opt.Rule == "" {
 		return errors.New("no decision rule: give --rule simple, guarded or four-state (or procedure.decision in the configuration); " +
