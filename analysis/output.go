@@ -155,7 +155,7 @@ func (l Loop) Validate(dev Device) error {
 type OutputResult struct {
 	Loop     Loop          `json:"loop"`
 	Points   []OutputPoint `json:"points"` // as Result.Points
-	Flagged  int           `json:"flagged_readings"`
+	Flagged  int           `json:"flagged_readings"` // measurement and zero readings outside the measuring band or at its limits
 	Decision Outcome       `json:"decision"`
 
 	MaxAbsErrorMA          float64 `json:"max_abs_error_ma"`
@@ -295,6 +295,21 @@ func output(res Result, points []Point, loop Loop, opt Options) (*OutputResult, 
 		out.Points[n] = op
 	}
 	out.MaxAbsErrorPercentSpan = out.MaxAbsErrorMA / LoopSpanMA * 100
+	// Zero readings enter the zero deviation as found; a flagged one says so.
+	for _, p := range points {
+		if p.Kind == Measurement {
+			continue
+		}
+		mA := loop.MilliAmps(p.DUT.Mean)
+		sig := ClassifyCurrent(mA)
+		if p.Signal.severity() > sig.severity() {
+			sig = p.Signal
+		}
+		if sig != SignalNone {
+			out.Flagged++
+			warnings = append(warnings, fmt.Sprintf("%s reading of cycle %d: the output read %.3f mA, %s; used for the zero deviation as found", p.Kind, p.Cycle, mA, sig.Describe()))
+		}
+	}
 	if m := loop.Meter; m.PercentOfReading == 0 && m.FloorMA == 0 {
 		warnings = append(warnings, "loop meter uncertainty not configured: the current meter's term is left out of the output budget")
 	}
