@@ -154,7 +154,7 @@ func (l Loop) Validate(dev Device) error {
 // meter, and its decision is the one a transmitter is judged by.
 type OutputResult struct {
 	Loop     Loop          `json:"loop"`
-	Points   []OutputPoint `json:"points"` // as Result.Points
+	Points   []OutputPoint `json:"points"`           // as Result.Points
 	Flagged  int           `json:"flagged_readings"` // measurement and zero readings outside the measuring band or at its limits
 	Decision Outcome       `json:"decision"`
 
