@@ -6,9 +6,12 @@ import (
 	"errors"
 	"os/exec"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/creack/pty"
 
 	"plateau/acquire/api"
 )
@@ -158,5 +161,69 @@ func TestEnterNamesTheDial(t *testing.T) {
 		if !strings.Contains(log, want) {
 			t.Errorf("the daemon's log lacks %q", want)
 		}
+	}
+}
+
+// plateau run with two dials read by a person, typed through a pseudo-
+// terminal: every prompt names the dial it is for, both dials are asked at
+// every step, and at the end the results of both devices are printed (the
+// summary, then each) and -o writes one HTML document with both.
+func TestRunPromptsEachDialAndReportsBoth(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the program and runs a procedure")
+	}
+	dir := t.TempDir()
+	bin := plateauBinary(t)
+	cfgPath := twoDials(t, dir, "run2")
+	html := filepath.Join(dir, "both.html")
+	ptmx, tty, err := pty.Open()
+	if err != nil {
+		t.Skipf("no pseudo-terminals: %v", err)
+	}
+	defer ptmx.Close()
+	cmd := exec.Command(bin, "--config", cfgPath, "run", "--label", "two dials", "-o", html)
+	cmd.Stdin, cmd.Stdout, cmd.Stderr = tty, tty, tty
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	tty.Close()
+	exited := make(chan error, 1)
+	go func() { exited <- cmd.Wait() }()
+	defer cmd.Process.Kill()
+
+	term := newTerminal(ptmx)
+	prompt := regexp.MustCompile(`\n(dial-[ab]), an entry for [^\n]*?: set (-?[0-9.]+) bar, read the dial: `)
+	asked := map[string]int{}
+	for {
+		m, err := term.expect(prompt, exited, 60*time.Second)
+		if errors.Is(err, errExited) {
+			break
+		}
+		if err != nil {
+			t.Fatalf("prompt %d: %v", len(asked)+1, err)
+		}
+		asked[m[1]]++
+		term.send(m[2])
+		term.must(t, `press Enter to take it`, exited)
+		term.send("")
+		term.must(t, `taken for `+m[1]+`: `, exited)
+	}
+	if err := <-exited; err != nil {
+		t.Fatalf("run: %v\n%s", err, term.text())
+	}
+	// 0, 8 and 16 bar up and down, with a zero reading before and after.
+	if asked["dial-a"] != 8 || asked["dial-b"] != 8 {
+		t.Errorf("prompts per dial %v, want 8 each", asked)
+	}
+	out := term.text()
+	for _, want := range []string{"2 DEVICES UNDER TEST", "dial-a  DG-A1 · serial A-1", "════ device 1 of 2: dial-a ════",
+		"════ device 2 of 2: dial-b ════", "wrote " + html} {
+		if !strings.Contains(out, want) {
+			t.Errorf("run's output lacks %q", want)
+		}
+	}
+	page := readFile(html)
+	if strings.Count(page, `<section class="device" id="device-dial-`) != 2 || !strings.Contains(page, `<a href="#device-dial-b">dial-b</a>`) {
+		t.Errorf("%s is not one document with both dials", html)
 	}
 }

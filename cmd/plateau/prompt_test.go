@@ -124,7 +124,7 @@ func TestRunPromptsForDial(t *testing.T) {
 			term.send("")
 			term.must(t, `looks wrong: .*\.\s+take it anyway\? \[y/N\] `, exited)
 			term.send("y")
-			term.must(t, `taken \(confirmed\): `, exited)
+			term.must(t, `taken \(confirmed\) for dut: `, exited)
 			typed = append(typed, want)
 			continue
 		case 2: // a decimal comma
@@ -135,7 +135,7 @@ func TestRunPromptsForDial(t *testing.T) {
 			term.must(t, `press Enter to take it`, exited)
 		}
 		term.send("")
-		term.must(t, `taken: `, exited)
+		term.must(t, `taken for dut: `, exited)
 		typed = append(typed, want)
 	}
 	if err := <-exited; err != nil {
