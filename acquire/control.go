@@ -502,6 +502,7 @@ func (rr *runRecorder) Captured() ([]analysis.Point, error) { return rr.e.st.Poi
 // point is never stored without the samples behind it.
 func (rr *runRecorder) Point(p analysis.Point) error {
 	e := rr.e
+	p = e.withAmbient(rr.r, p)
 	if err := e.samples.flush(); err != nil {
 		e.storeTrouble(err)
 		return fmt.Errorf("the samples of %s could not be stored: %w", describePoint(p), err)

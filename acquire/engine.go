@@ -113,6 +113,7 @@ type Engine struct {
 	guard  *safety.Guard
 
 	samples *recorder
+	ambient *ambientBook // the ambient instruments' recent readings (ambient.go)
 	runs    lifecycle
 
 	committedPoints atomic.Uint64
@@ -169,7 +170,9 @@ func New(opt Options) (*Engine, error) {
 		opt.SampleBuffer = 1 << 16
 	}
 	cfg := opt.Config
-	e := &Engine{cfg: cfg, yaml: opt.ConfigYAML, record: opt.Record, identity: opt.Identity, st: opt.Store,
+	amb := newAmbientBook(cfg, in.Others, opt.Clock)
+	in = amb.convert(in) // a reference or controller of another mode goes through the barometer
+	e := &Engine{cfg: cfg, ambient: amb, yaml: opt.ConfigYAML, record: opt.Record, identity: opt.Identity, st: opt.Store,
 		clk: opt.Clock, log: opt.Log, bus: NewBus(), source: in.Source,
 		ready: make(chan struct{})}
 	if procedure.Mode(cfg.Procedure.Mode) == procedure.Planned {
@@ -222,7 +225,7 @@ func New(opt Options) (*Engine, error) {
 		e.devs = append(e.devs, dv)
 	}
 	for _, o := range in.Others {
-		p, err := mk(o, rules, nil)
+		p, err := mk(o, rules, amb.observer(o.Name)) // observed, never guarded
 		if err != nil {
 			return nil, err
 		}

@@ -56,7 +56,13 @@ func Open(cfg *config.Config, env drivers.OpenEnv, rig Simulated) (Instruments, 
 			continue
 		}
 		one := Instrument{Name: inst.Name, Poll: inst.Poll}
-		if dial := simulatedDial(inst, rig); simulated && dial != nil {
+		if inst.Role == config.RoleAmbient {
+			g, err := openAmbient(inst, env)
+			if err != nil {
+				return fail(err)
+			}
+			one.Gauge = g
+		} else if dial := simulatedDial(inst, rig); simulated && dial != nil {
 			one.Gauge, one.ByPerson = dial, true
 		} else {
 			g, err := drivers.OpenGauge(inst, env)

@@ -124,8 +124,8 @@ func (in *Instrument) resolveMeasures(p *Problems, key string) {
 		p.bad(key+".unit", in.Unit, "%v", err)
 		return
 	}
-	if in.Loop.Enabled && k != units.Barometric {
-		p.bad(key+".current_loop.enabled", "true", "a 4–20 mA loop range is a pressure: scale a %s transmitter's value with value.scale and value.offset instead", k)
+	if in.Loop.Enabled {
+		p.bad(key+".current_loop.enabled", "true", "the 4–20 mA loop is for devices under test: scale a %s transmitter's value with value.scale and value.offset instead", k)
 	}
 	if s := strings.TrimSpace(in.Uncertainty); s != "" {
 		v, err := units.ParseDifference(k, s)

@@ -164,7 +164,8 @@ func (c *Config) safetyCeiling(allow float64) float64 {
 		l = math.Min(l, d.UpperPa+allow*(d.UpperPa-d.LowerPa))
 	}
 	if r := c.Reference; r.UpperPa > r.LowerPa {
-		l = math.Min(l, r.UpperPa+allow*(r.UpperPa-r.LowerPa))
+		// in the devices' mode: an absolute reference's full scale is 1 atm lower in gauge
+		l = math.Min(l, r.UpperPa-c.referenceShiftPa()+allow*(r.UpperPa-r.LowerPa))
 	}
 	return l
 }
