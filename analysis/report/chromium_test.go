@@ -3,6 +3,7 @@ package report
 import (
 	"bytes"
 	"context"
+	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -83,5 +84,87 @@ func TestHTMLInChromium(t *testing.T) {
 	}
 	if dst := os.Getenv("PLATEAU_KEEP_SCREENSHOT"); dst != "" {
 		_ = os.WriteFile(dst, b, 0o644) // for a person to look at; not part of the check
+	}
+}
+
+// pdftotext finds poppler's text extractor, skipping (or failing under
+// CI=true) when absent.
+func pdftotext(t *testing.T) string {
+	t.Helper()
+	if p, err := exec.LookPath("pdftotext"); err == nil {
+		return p
+	}
+	if os.Getenv("CI") == "true" {
+		t.Fatal("pdftotext not found; CI must install the Debian package poppler-utils")
+	}
+	t.Skip("pdftotext not found (Debian package poppler-utils); skipping the print check")
+	return ""
+}
+
+// The report of several devices printed by Chromium: the summary on the
+// first page, each device's section starting on a page of its own, and
+// every page carrying the report's identity and "page n of m"; the pages
+// of a device name it too.
+func TestSeveralDevicesPrintInChromium(t *testing.T) {
+	bin, text := chromium(t), pdftotext(t)
+	dir := t.TempDir()
+	page := filepath.Join(dir, "report.html")
+	var b bytes.Buffer
+	if err := HTMLDevices(&b, severalDevices(t)); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(page, b.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	pdf := filepath.Join(dir, "report.pdf")
+	_, stderr := runChromium(t, bin, dir, page, "--no-pdf-header-footer", "--print-to-pdf="+pdf)
+	if m := consoleError.FindString(stderr); m != "" {
+		t.Errorf("Chromium logged a console error (%q):\n%s", m, stderr)
+	}
+	out, err := exec.Command(text, "-layout", pdf, "-").Output()
+	if err != nil {
+		t.Fatalf("pdftotext: %v", err)
+	}
+	pages := strings.Split(strings.TrimRight(string(out), "\f\n "), "\f")
+	if len(pages) < 4 {
+		t.Fatalf("%d printed pages, want the summary and at least one per device", len(pages))
+	}
+	const identity = "Calibration report — as found & adjusted — 3 devices · run-0042"
+	firstLine := func(p string) string {
+		for _, l := range strings.Split(p, "\n") {
+			if s := strings.TrimSpace(l); s != "" {
+				return s
+			}
+		}
+		return ""
+	}
+	starts := map[string]int{} // device heading → page it opens
+	for i, p := range pages {
+		if !strings.Contains(p, identity) || !strings.Contains(p, fmt.Sprintf("page %d of %d", i+1, len(pages))) {
+			t.Errorf("printed page %d lacks the report's identity or its number:\n%s", i+1, p)
+		}
+		if h := firstLine(p); strings.HasPrefix(h, "Device ") {
+			starts[h[:len("Device 1 of 3")]] = i + 1
+		}
+	}
+	if !strings.HasPrefix(firstLine(pages[0]), "Pressure calibration by comparison") || !strings.Contains(pages[0], "Devices under test") {
+		t.Errorf("the first page is not the summary:\n%s", pages[0])
+	}
+	for k := 1; k <= 3; k++ {
+		h := fmt.Sprintf("Device %d of 3", k)
+		at, ok := starts[h]
+		if !ok {
+			t.Errorf("%s does not start a printed page", h)
+			continue
+		}
+		for _, p := range pages[at-1:] {
+			if strings.Contains(p, "· "+h+":") { // its pages' footer names it
+				continue
+			}
+			if strings.HasPrefix(firstLine(p), "Device ") {
+				break
+			}
+			t.Errorf("a page of %s does not name it in its footer:\n%s", h, p)
+		}
 	}
 }

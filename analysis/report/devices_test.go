@@ -72,8 +72,8 @@ func TestHTMLSeveralDevicesIsOneDocument(t *testing.T) {
 		"Device 2 of 3: gauge 2 — PG-0418", "counter(page)", "counter(pages)", "break-before: page",
 		// The report's identity on every page, CSS-escaped: "&" and "<" never raw.
 		`content: "Calibration report — as found \26  adjusted — 3 devices · run-0042";`,
-		`· Device 2 of 3: gauge 2 — PG-0418 · Example Gauges DG-10 \3c digital\3e  · serial A1235"`,
-		"Pressures in each device&#39;s unit",
+		`content: "Calibration report — as found \26  adjusted — 3 devices · run-0042 · Device 2 of 3: gauge 2";`,
+		"Device 2 of 3: gauge 2 — PG-0418 · Example Gauges DG-10 &lt;digital&gt; · serial A1235</h2>",
 	} {
 		if !strings.Contains(page, want) {
 			t.Errorf("document lacks %q", want)

@@ -60,9 +60,9 @@ func (n numbers) budgets(res analysis.Result) []budgetBlock {
 // deviceView is one device's report as the template shows it.
 type deviceView struct {
 	// Anchor is the section's id in a document of several devices; Page
-	// names its print page (whose footer names the device); Heading
-	// opens the section. All three are empty in a report of one device.
-	Anchor, Page, Heading string
+	// names its print page (whose footer names the device, Short);
+	// Heading opens the section. All are empty in a report of one device.
+	Anchor, Page, Short, Heading string
 	// Missing says why the device has no result; the rest is then empty.
 	Missing   string
 	Title     string
@@ -94,7 +94,6 @@ type pageView struct {
 	Run     []identityLine
 	Table   []summaryRow
 	Devices []deviceView
-	Unit    string // for the closing note: one device's unit, or ""
 }
 
 func deviceViewOf(info Info, res analysis.Result) (deviceView, error) {
@@ -138,7 +137,7 @@ func HTMLDevices(w io.Writer, ds []DeviceReport) error {
 		if err != nil {
 			return err
 		}
-		pv = pageView{Title: d.Title, Devices: []deviceView{d}, Unit: d.Unit}
+		pv = pageView{Title: d.Title, Devices: []deviceView{d}}
 		pv.Print = printCSS(joinNonEmpty(" · ", d.Title, ds[0].Info.Run.ID), nil)
 	} else {
 		pv = severalView(ds)
@@ -151,7 +150,8 @@ func HTMLDevices(w io.Writer, ds []DeviceReport) error {
 				}
 			}
 			d.Anchor, d.Page = pv.Table[i].Anchor, "d"+itoa(i+1)
-			d.Heading = joinNonEmpty(" — ", "Device "+itoa(i+1)+" of "+itoa(len(ds))+": "+dr.Info.DeviceName(), identityText(dr.Info.Device))
+			d.Short = "Device " + itoa(i+1) + " of " + itoa(len(ds)) + ": " + dr.Info.DeviceName()
+			d.Heading = joinNonEmpty(" — ", d.Short, identityText(dr.Info.Device))
 			pv.Devices = append(pv.Devices, d)
 		}
 		pv.Print = printCSS(joinNonEmpty(" · ", pv.Title, ds[0].Info.Run.ID), pv.Devices)
@@ -170,10 +170,10 @@ func printCSS(identity string, devices []deviceView) template.CSS {
 	var b strings.Builder
 	fmt.Fprintf(&b, "@page { size: auto; margin: 14mm 12mm 18mm 12mm;\n"+
 		"  @bottom-left { content: %s; %s }\n"+
-		"  @bottom-right { content: \"page \" counter(page) \" of \" counter(pages); %s }\n}\n", cssString(identity), small, small)
+		"  @bottom-right { content: \"page \" counter(page) \" of \" counter(pages); white-space: nowrap; %s }\n}\n", cssString(identity), small, small)
 	for _, d := range devices {
 		fmt.Fprintf(&b, "@page %s { @bottom-left { content: %s; %s } }\n#%s { page: %s; }\n",
-			d.Page, cssString(identity+" · "+d.Heading), small, d.Anchor, d.Page)
+			d.Page, cssString(identity+" · "+d.Short), small, d.Anchor, d.Page)
 	}
 	return template.CSS(b.String()) // names are [a-z0-9_-] (anchorsOf); text only through cssString
 }
