@@ -168,13 +168,26 @@ func ambientSummary(points []Point, res Result) (*AmbientResult, []string) {
 // AmbientText writes an ambient value in its base unit with the digits
 // its sensors usually show (common practice): 0.1 °C, 1 %RH, 0.1 hPa.
 func AmbientText(k units.AmbientKind, v float64) string {
+	return AmbientNumber(k, v) + " " + AmbientSymbol(k)
+}
+
+// AmbientNumber is AmbientText without the unit.
+func AmbientNumber(k units.AmbientKind, v float64) string {
 	switch k {
 	case units.Temperature:
-		return strconv.FormatFloat(v, 'f', 2, 64) + " °C"
+		return strconv.FormatFloat(v, 'f', 2, 64)
 	case units.Humidity:
-		return strconv.FormatFloat(v, 'f', 1, 64) + " %RH"
+		return strconv.FormatFloat(v, 'f', 1, 64)
 	}
-	return strconv.FormatFloat(v/100, 'f', 2, 64) + " hPa"
+	return strconv.FormatFloat(v/100, 'f', 2, 64)
+}
+
+// AmbientSymbol is the unit AmbientText writes a quantity in.
+func AmbientSymbol(k units.AmbientKind) string {
+	if k == units.Barometric {
+		return "hPa"
+	}
+	return k.BaseSymbol()
 }
 
 // barometerTerm is the barometer's share of a point's budget when the

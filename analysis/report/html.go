@@ -80,6 +80,7 @@ type deviceView struct {
 	Budgets   []budgetBlock
 	Charts    []chart
 	ChartSVGs []template.HTML
+	Ambient   *ambientView // pressure modes and ambient conditions (ambient.go)
 }
 
 // pageView is the whole document: one device's report, or a summary of
@@ -111,7 +112,7 @@ func deviceViewOf(info Info, res analysis.Result) (deviceView, error) {
 		Identity: n.identity(info, res), Rows: n.rows(res), Judged: n.judgements(res), Summary: n.summary(res),
 		Curve: n.curveLines(res), Complete: info.Run.finished(),
 		Verdict: outcomeText(res.Decision), Outcome: res.Decision, Rule: ruleText(res.DecisionRule),
-		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs,
+		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs, Ambient: ambientViewOf(n, res),
 	}, nil
 }
 

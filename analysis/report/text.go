@@ -59,6 +59,9 @@ func Text(w io.Writer, info Info, res analysis.Result) error {
 		fmt.Fprintf(bw, "  not evaluated: %s\n", why)
 	}
 
+	if err := writeAmbientText(bw, n, res); err != nil {
+		return err
+	}
 	fmt.Fprintln(bw, "\nSummary")
 	sw := tabwriter.NewWriter(bw, 0, 0, 2, ' ', 0)
 	for _, l := range n.summary(res) {
