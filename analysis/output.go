@@ -178,6 +178,7 @@ type OutputPoint struct {
 	CombinedUncertaintyMA float64              `json:"combined_standard_uncertainty_ma"`
 	CoverageFactor        float64              `json:"coverage_factor"`
 	ExpandedUncertaintyMA float64              `json:"expanded_uncertainty_ma"`
+	MinimumApplied        bool                 `json:"minimum_uncertainty_applied,omitempty"` // U raised to the short procedure's minimum
 	MPEMA                 float64              `json:"mpe_ma"`
 	Decision              Outcome              `json:"decision"`
 }
@@ -275,6 +276,7 @@ func output(res Result, points []Point, loop Loop, opt Options) (*OutputResult, 
 		op.CoverageFactor = k
 		minimum := res.MinimumUncertaintyPa * f
 		op.ExpandedUncertaintyMA = math.Max(k*op.CombinedUncertaintyMA, minimum)
+		op.MinimumApplied = k*op.CombinedUncertaintyMA < minimum
 		op.Decision = Decide(opt.Rule, math.Abs(op.ErrorMA), op.MPEMA, op.ExpandedUncertaintyMA)
 		// One reading of one direction: the budget without hysteresis, as
 		// in the pressure domain.

@@ -80,6 +80,7 @@ type deviceView struct {
 	Budgets   []budgetBlock
 	Charts    []chart
 	ChartSVGs []template.HTML
+	Output    *outputView  // a transmitter's output in mA (output.go); nil for other devices
 	Ambient   *ambientView // pressure modes and ambient conditions (ambient.go)
 }
 
@@ -112,7 +113,7 @@ func deviceViewOf(info Info, res analysis.Result) (deviceView, error) {
 		Identity: n.identity(info, res), Rows: n.rows(res), Judged: n.judgements(res), Summary: n.summary(res),
 		Curve: n.curveLines(res), Complete: info.Run.finished(),
 		Verdict: outcomeText(res.Decision), Outcome: res.Decision, Rule: ruleText(res.DecisionRule),
-		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs, Ambient: ambientViewOf(n, res),
+		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs, Output: n.output(res), Ambient: ambientViewOf(n, res),
 	}, nil
 }
 

@@ -58,6 +58,7 @@ func Text(w io.Writer, info Info, res analysis.Result) error {
 	for _, why := range notEvaluatedReasons(res) {
 		fmt.Fprintf(bw, "  not evaluated: %s\n", why)
 	}
+	textOutput(bw, n, res)
 
 	if err := writeAmbientText(bw, n, res); err != nil {
 		return err
