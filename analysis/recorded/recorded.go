@@ -167,6 +167,7 @@ type table struct {
 	col          map[string]int
 	decimalComma bool
 	problems     []string
+	modes        modeSeen // the mode the units carry (mode.go)
 }
 
 func (t *table) err() error {
@@ -249,6 +250,7 @@ func (t *table) row(rec []string) (analysis.Point, bool) {
 	}
 
 	s, i = field("unit")
+	t.noteMode(i, s)
 	u, err := units.Lookup(s)
 	if err != nil {
 		t.problem(i, "%v", err)
