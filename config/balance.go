@@ -3,6 +3,7 @@ package config
 import (
 	"fmt"
 	"math"
+	"path/filepath"
 	"strings"
 
 	"plateau/analysis/balance"
@@ -90,6 +91,13 @@ func (c *Config) validateBalanceLink(p *Problems, key string, in *Instrument) {
 	if in.Balance == nil {
 		p.bad(key+".balance", "", "is required with link.kind: balance: the piston–cylinder unit, the mass set and local gravity")
 	}
+	if strings.TrimSpace(in.Link.Address) == "" {
+		p.bad(key+".link.address", "", "is required with link.kind: balance: the loading file plateau load writes and the run reads, e.g. /var/lib/plateau/loading")
+	} else if !filepath.IsAbs(in.Link.Address) && c.File != "" {
+		// The daemon and plateau load may run in different directories:
+		// both find the file next to the configuration.
+		in.Link.Address = filepath.Join(filepath.Dir(c.File), in.Link.Address)
+	}
 }
 
 // ReferenceBalance returns the reference instrument's balance section, or
@@ -158,8 +166,10 @@ func (c *Config) validateBalance(p *Problems, key string, b *Balance) {
 	}
 	number("reference_temperature", *b.ReferenceTemperature, 0, 40, "must be the temperature the effective area is stated at, in °C (usually 20)")
 	number("reference_height", b.ReferenceHeight, -100, 100, "more than 100 m: heights are in metres")
-	if h := c.Head.ReferenceHeight; h != 0 && h != b.ReferenceHeight {
-		p.bad("head.reference_height", fmtNum(h), "the reference is a pressure balance: its reference level is %s (%s m); give the height there only", k("reference_height"), fmtNum(b.ReferenceHeight))
+	// The run's head correction starts at head.reference_height; with a
+	// balance that is its reference level, so the two must agree.
+	if h := c.Head.ReferenceHeight; h != b.ReferenceHeight {
+		p.bad("head.reference_height", fmtNum(h), "the reference is a pressure balance: head.reference_height must be its reference level, %s = %s m", k("reference_height"), fmtNum(b.ReferenceHeight))
 	}
 	if b.Gravity == 0 {
 		p.bad(k("gravity"), "", "is required: the local acceleration of gravity at the balance, m/s² (from a gravity survey; 9.80665 is only the standard value)")
@@ -303,31 +313,39 @@ func (b *Balance) Setup() balance.Setup {
 	return s
 }
 
-// BalanceConditions are the conditions of a loading that the file gives,
-// for a device at deviceHeight: air density, residual pressure, the piston
-// temperature when entered for the run, and the head from the head:
-// section (its half-widths taken as rectangular). The caller adds the
-// pieces loaded, and the piston temperature when it is read or given per
-// loading.
-func (c *Config) BalanceConditions(b *Balance, deviceHeight float64) balance.Conditions {
+// LevelConditions are the conditions of a loading that the balance
+// section gives, at the balance's own reference level (no head): air
+// density, residual pressure and the piston temperature when entered for
+// the run. The caller adds the pieces loaded, and the piston temperature
+// when it is read or given per loading.
+func (b *Balance) LevelConditions() balance.Conditions {
 	k := b.Coverage
-	h := c.Head
 	cond := balance.Conditions{
 		PistonTempU:  b.PistonTemperatureUncertainty / k,
 		ResidualPa:   b.ResidualPa,
 		ResidualU:    b.ResidualUPa / k,
-		DeviceHeight: deviceHeight,
-		HeightU:      h.HeightUncertainty / math.Sqrt(3),
-		Fluid:        balance.Fluid{Density: h.FluidDensity, DensityU: h.DensityUncertainty / math.Sqrt(3)},
+		DeviceHeight: b.ReferenceHeight,
 	}
 	if b.Mode == string(balance.Gauge) {
 		cond.AirDensity, cond.AirDensityU = *b.AirDensity, b.AirDensityUncertainty/k
 	}
-	if h.GasMolarMass > 0 {
-		cond.Fluid.MolarMass, cond.Fluid.TemperatureK = h.GasMolarMass, h.GasTemperature+273.15
-	}
 	if b.PistonTemperature != nil {
 		cond.PistonTempC = *b.PistonTemperature
+	}
+	return cond
+}
+
+// BalanceConditions are LevelConditions for a device at deviceHeight,
+// with the head from the head: section (its half-widths taken as
+// rectangular).
+func (c *Config) BalanceConditions(b *Balance, deviceHeight float64) balance.Conditions {
+	h := c.Head
+	cond := b.LevelConditions()
+	cond.DeviceHeight = deviceHeight
+	cond.HeightU = h.HeightUncertainty / math.Sqrt(3)
+	cond.Fluid = balance.Fluid{Density: h.FluidDensity, DensityU: h.DensityUncertainty / math.Sqrt(3)}
+	if h.GasMolarMass > 0 {
+		cond.Fluid.MolarMass, cond.Fluid.TemperatureK = h.GasMolarMass, h.GasTemperature+273.15
 	}
 	return cond
 }

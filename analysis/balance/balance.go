@@ -174,6 +174,9 @@ func ParseLoading(s string) ([]string, error) {
 		if id == "" {
 			return nil, fmt.Errorf("%q: piece %d is empty (two + in a row, or one at an end)", s, i+1)
 		}
+		if strings.ContainsAny(id, " \t") {
+			return nil, fmt.Errorf("%q: %q holds a space: join the pieces with +, e.g. P1+M1", s, id)
+		}
 		ids = append(ids, id)
 	}
 	return ids, nil

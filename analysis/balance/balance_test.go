@@ -344,6 +344,7 @@ func TestParseLoading(t *testing.T) {
 		{"", "", "no pieces"},
 		{"P1++M1", "", "piece 2 is empty"},
 		{"P1+", "", "piece 2 is empty"},
+		{"P1 M1", "", `"P1 M1" holds a space: join the pieces with +`},
 	} {
 		got, err := ParseLoading(tc.in)
 		if tc.err != "" {

@@ -1,0 +1,122 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	model "plateau/analysis/balance"
+	"plateau/analysis/readout"
+	"plateau/analysis/units"
+	"plateau/config"
+	"plateau/drivers/balance"
+)
+
+func init() { register(newLoadCmd) }
+
+func newLoadCmd() *cobra.Command {
+	var (
+		temperature string
+		vent        bool
+	)
+	cmd := &cobra.Command{
+		Use:   "load PIECES",
+		Short: "Say which weights are on the pressure balance that is the reference",
+		Long: `load tells plateau which pieces of the mass set are on the piston of the
+pressure balance (dead-weight tester) that is the reference: their ids joined
+by +, the piston and its carrier included, e.g. P1+M1+M2. plateau works out
+the pressure with the pressure-balance equation and the run reads it as the
+reference from then on. --vent says the balance is vented (zero gauge
+pressure).
+
+Put the weights on and float the piston before you run load: the run takes a
+point only when the device under test has settled too. Give the piston
+temperature with --temperature unless the configuration enters one for the
+run (balance.piston_temperature).
+
+Pressure can hurt: a loaded balance and its lines hold stored energy. Never
+load more than the range of the device under test, keep oxygen-service
+gauges free of oil (use a gas-operated balance or a separator), vent before
+disconnecting anything, and follow local codes and your laboratory's own
+procedure.`,
+		Example: `  plateau load P1+M1+M2 --temperature 21.3
+  plateau load "P1 + M1 + M2 + M3"
+  plateau load --vent`,
+		Args: cobra.ArbitraryArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			return runLoad(cmd, strings.Join(args, ""), temperature, vent)
+		},
+	}
+	cmd.Flags().StringVar(&temperature, "temperature", "", "piston temperature, °C, e.g. 21.3")
+	cmd.Flags().BoolVar(&vent, "vent", false, "the balance is vented: no weights, zero gauge pressure")
+	return cmd
+}
+
+func runLoad(cmd *cobra.Command, pieces, temperature string, vent bool) error {
+	cfg, err := config.Load(configPath)
+	if err != nil {
+		return err
+	}
+	var inst *config.Instrument
+	for i := range cfg.Instruments {
+		if in := &cfg.Instruments[i]; in.Role == config.RoleReference && in.Link.Kind == config.LinkBalance {
+			inst = in
+		}
+	}
+	if inst == nil {
+		return fmt.Errorf("load: the reference of %s is not a pressure balance (link.kind: balance)", cfg.File)
+	}
+	var l balance.Loading
+	switch {
+	case vent && (pieces != "" || temperature != ""):
+		return errors.New("load: --vent takes no pieces and no temperature")
+	case vent:
+		l.Vented = true
+	default:
+		if l.Pieces, err = model.ParseLoading(pieces); err != nil {
+			return fmt.Errorf("load: %w", err)
+		}
+	}
+	if temperature != "" {
+		t, err := strconv.ParseFloat(strings.TrimSpace(strings.TrimSuffix(strings.TrimSpace(strings.Replace(temperature, ",", ".", 1)), "°C")), 64)
+		if err != nil || math.IsNaN(t) || math.IsInf(t, 0) {
+			return fmt.Errorf("load: --temperature %q: give the piston temperature in °C, e.g. 21.3", temperature)
+		}
+		l.TemperatureC, l.HasTemperature = t, true
+	}
+	b := inst.Balance
+	msg := "vented: the reference reads 0"
+	if !l.Vented {
+		// Work the pressure out here too, so that a piece not in the set or
+		// a missing temperature is refused at the terminal.
+		c := b.LevelConditions()
+		c.Loaded = l.Pieces
+		switch {
+		case l.HasTemperature:
+			c.PistonTempC = l.TemperatureC
+		case b.PistonTemperature == nil:
+			return errors.New("load: give the piston temperature with --temperature (the configuration enters none for the run)")
+		}
+		r, err := b.Setup().Pressure(c)
+		if err != nil {
+			return fmt.Errorf("load %s: %w", l.Text(), err)
+		}
+		u, err := units.Lookup(inst.Unit)
+		if err != nil {
+			u = units.Bar
+		}
+		// Digits to the balance's standard uncertainty.
+		msg = fmt.Sprintf("%s at %s °C: %s at the balance's reference level (%s m), standard uncertainty %s", l.Text(),
+			strconv.FormatFloat(c.PistonTempC, 'f', -1, 64), readout.WithUnit(r.LevelPa, u, r.U),
+			strconv.FormatFloat(b.ReferenceHeight, 'f', -1, 64), readout.WithUnit(r.U, u, r.U/10))
+	}
+	if err := balance.WriteLoading(inst.Link.Address, l); err != nil {
+		return fmt.Errorf("load: %w", err)
+	}
+	fmt.Fprintln(cmd.OutOrStdout(), msg)
+	return nil
+}
