@@ -26,12 +26,10 @@ import (
 // sample, with its latest reading.
 
 // freshBarometric is how old the barometer's latest reading may be when
-// it converts a reading: the air pressure of a laboratory moves by a few
-// hectopascals a day and rarely more than 0.1 hPa in two minutes (common
-// practice, from memory), well below a pressure reference's uncertainty.
-// An older one makes the converted reading fail: a silent barometer is a
-// silent reference, and the guard acts on it.
-const freshBarometric = 2 * time.Minute
+// it converts a reading (why: config.BarometerFresh). An older one makes
+// the converted reading fail: a silent barometer is a silent reference,
+// and the guard acts on it.
+const freshBarometric = config.BarometerFresh
 
 // ambientRing bounds the readings kept per ambient instrument for the
 // window means: enough for windows of an hour at a poll of a second.

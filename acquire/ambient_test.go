@@ -35,9 +35,12 @@ func (g *fixedGauge) Close() error                                  { return nil
 
 type recordedSource struct{ set []float64 }
 
-func (s *recordedSource) SetPoint(_ context.Context, pa float64) error { s.set = append(s.set, pa); return nil }
-func (s *recordedSource) Vent(context.Context) error                   { return nil }
-func (s *recordedSource) Close() error                                 { return nil }
+func (s *recordedSource) SetPoint(_ context.Context, pa float64) error {
+	s.set = append(s.set, pa)
+	return nil
+}
+func (s *recordedSource) Vent(context.Context) error { return nil }
+func (s *recordedSource) Close() error               { return nil }
 
 func ambientSetup(t *testing.T) (*ambientBook, *clock.Manual, Instruments, *recordedSource) {
 	t.Helper()

@@ -2,6 +2,7 @@ package config
 
 import (
 	"fmt"
+	"time"
 
 	"plateau/analysis/units"
 )
@@ -153,11 +154,13 @@ func (c *Config) validateModes(p *Problems) {
 				dut.name(), dut.Device.Mode, c.Devices[0].name(), bench)
 		}
 	}
-	_, baro := c.Barometer()
+	b, baro := c.Barometer()
+	converts := false
 	for i, in := range c.Instruments {
 		if in.Role != RoleReference && in.Role != RoleSource {
 			continue
 		}
+		converts = converts || InstrumentMode(in) != bench
 		if m := InstrumentMode(in); m != bench && !baro {
 			what := "the reference standard"
 			if in.Role == RoleSource {
@@ -167,7 +170,30 @@ func (c *Config) validateModes(p *Problems) {
 				what, in.Name, m, bench)
 		}
 	}
+	if !converts || !baro {
+		return
+	}
+	for i, in := range c.Instruments {
+		if in.Name != b.Name {
+			continue
+		}
+		key := fmt.Sprintf("instruments[%d]", i)
+		if in.Link.Kind != LinkManual && in.Poll > BarometerFresh/2 {
+			p.bad(key+".poll", in.Poll.String(), "the barometer converts every reading between gauge and absolute pressure: poll it at least every %s (a reading older than %s is not used)",
+				fmtDuration(BarometerFresh/2), fmtDuration(BarometerFresh))
+		}
+		if b.UncertaintyBase == 0 {
+			p.warn(key+".uncertainty", "", "the barometer converts the readings between gauge and absolute pressure, so its uncertainty belongs in the budget: give it from its certificate, e.g. \"0.3 hPa\"")
+		}
+	}
 }
+
+// BarometerFresh is how old the barometer's latest reading may be when it
+// converts a reading: the air pressure of a laboratory moves by a few
+// hectopascals a day and rarely more than 0.1 hPa in two minutes (common
+// practice, from memory), well below a pressure reference's uncertainty.
+// An older one makes the converted reading fail.
+const BarometerFresh = 2 * time.Minute
 
 // Converted says whether an instrument's readings are converted to the
 // bench mode with the barometer's (a reference or a source of the other

@@ -112,3 +112,20 @@ func TestAmbientInstruments(t *testing.T) {
 		t.Errorf("quantity on a device: %v", err)
 	}
 }
+
+// A barometer that converts the reference is polled often enough for its
+// reading to be fresh, and its uncertainty is asked for.
+func TestConvertingBarometer(t *testing.T) {
+	file := modeFile("", "0 bar(a)", "20 bar(a)", ", mode: absolute", strings.Replace(barometer, "poll: 1s", "poll: 5m", 1))
+	if _, err := Parse([]byte(file), "mode.yaml"); err == nil || !strings.Contains(err.Error(), "instruments[2].poll = \"5m0s\": the barometer converts every reading") {
+		t.Errorf("a barometer polled every 5 min: %v", err)
+	}
+	file = modeFile("", "0 bar(a)", "20 bar(a)", ", mode: absolute", strings.Replace(barometer, "uncertainty: 0.3 hPa, ", "", 1))
+	cfg, err := Parse([]byte(file), "mode.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(cfg.Warnings) != 1 || !strings.Contains(cfg.Warnings[0].String(), "its uncertainty belongs in the budget") {
+		t.Errorf("warnings %v", cfg.Warnings)
+	}
+}
