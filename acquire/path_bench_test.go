@@ -1,29 +1,16 @@
 package acquire
 
 import (
-	"context"
-	"path/filepath"
 	"sort"
-	"syscall"
 	"testing"
 	"time"
 
+	"plateau/acquire/benchtest"
 	"plateau/acquire/poll"
 	"plateau/acquire/safety"
 	"plateau/acquire/settle"
-	"plateau/acquire/store"
-	"plateau/config"
-	"plateau/drivers"
-	_ "plateau/drivers/all"
 	"plateau/drivers/clock"
-	"plateau/drivers/sim"
 )
-
-func cpuTime() time.Duration {
-	var ru syscall.Rusage
-	syscall.Getrusage(syscall.RUSAGE_SELF, &ru)
-	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
-}
 
 // pathRounds measures, in interleaved rounds of n reads each, the CPU time
 // per read of the driver alone and of the whole acquisition path (the
@@ -31,44 +18,14 @@ func cpuTime() time.Duration {
 // writer goroutine, the settle detector) on the same connection, and
 // returns the median of the per-round ratios.
 func pathRounds(tb testing.TB, rounds, n int) (driver, whole time.Duration, ratio float64) {
-	cfg, err := config.Load("../testdata/config/sim.yaml")
-	if err != nil {
-		tb.Fatal(err)
-	}
-	ctx, cancel := context.WithCancel(context.Background())
-	defer cancel()
-	rig, err := sim.New(cfg.Simulator, clock.Wall{})
-	if err != nil {
-		tb.Fatal(err)
-	}
-	if _, err := rig.Start(ctx); err != nil {
-		tb.Fatal(err)
-	}
-	defer rig.Stop()
-	inst, err := rig.Resolve(cfg.Instruments[0])
-	if err != nil {
-		tb.Fatal(err)
-	}
-	g, err := drivers.OpenGauge(inst, drivers.OpenEnv{})
-	if err != nil {
-		tb.Fatal(err)
-	}
-	defer g.Close()
-	st, err := store.Open(filepath.Join(tb.TempDir(), "path.db"), store.Options{})
-	if err != nil {
-		tb.Fatal(err)
-	}
-	defer st.Close()
-	run, err := st.CreateRun("path", nil)
-	if err != nil {
-		tb.Fatal(err)
-	}
-	rec := newRecorder(st, 1<<16, func(err error) { tb.Error(err) })
-	rec.setRun(run.ID)
+	rp := benchtest.OpenReadPath(tb)
+	ctx, g := tb.Context(), rp.Gauge
+	rec := newRecorder(rp.Store, 1<<16, func(err error) { tb.Error(err) })
+	rec.setRun(rp.Run)
 	go rec.loop()
 	defer rec.close()
 	guard := safety.New(nil, safety.Options{Limit: 16.5e5, LimitSet: true})
-	p, err := poll.New(poll.Options{Name: inst.Name, Gauge: g, Interval: time.Millisecond, Clock: clock.Wall{},
+	p, err := poll.New(poll.Options{Name: rp.Name, Gauge: g, Interval: time.Millisecond, Clock: clock.Wall{},
 		Rules: settle.Rules{Window: 10 * time.Second, MinSamples: 10, MaxDrift: 10, MaxSpread: 100},
 		Sink:  rec, First: guard.Observe})
 	if err != nil {
@@ -76,11 +33,11 @@ func pathRounds(tb testing.TB, rounds, n int) (driver, whole time.Duration, rati
 	}
 	var ratios []float64
 	for r := 0; r < rounds; r++ {
-		t0 := cpuTime()
+		t0 := benchtest.CPUTime()
 		for i := 0; i < n; i++ {
 			g.Read(ctx)
 		}
-		t1 := cpuTime()
+		t1 := benchtest.CPUTime()
 		for i := 0; i < n; i++ {
 			rd, err := g.Read(ctx)
 			p.Record(rd, err)
@@ -88,7 +45,7 @@ func pathRounds(tb testing.TB, rounds, n int) (driver, whole time.Duration, rati
 		if err := rec.flush(); err != nil {
 			tb.Fatal(err)
 		}
-		t2 := cpuTime()
+		t2 := benchtest.CPUTime()
 		driver += t1 - t0
 		whole += t2 - t1
 		ratios = append(ratios, float64(t2-t1)/float64(t1-t0))

@@ -10,7 +10,6 @@ import (
 	"time"
 
 	"plateau/acquire/store"
-	"plateau/drivers"
 )
 
 // A backup taken through the daemon while samples are still being written
@@ -38,7 +37,7 @@ func TestBackupWhileWriting(t *testing.T) {
 				return
 			default:
 			}
-			h.st.AddSample(run, "ref", drivers.Reading{Time: at.Add(time.Duration(i) * time.Millisecond), Pa: float64(i), Raw: float64(i), RawUnit: "Pa"}, nil)
+			h.st.Put(run, "ref", store.Sample{Time: at.Add(time.Duration(i) * time.Millisecond), Pa: float64(i), Raw: float64(i), RawUnit: "Pa"})
 		}
 	}()
 	// Every sample is committed before the harness checks the store:

@@ -55,17 +55,23 @@ func healthyStore(t *testing.T) (string, fileReport) {
 	return path, rep
 }
 
-// pageOf finds the first (or last) page of the given type used by the
-// bucket named exactly owner (e.g. `bucket /"runs"/r000001/"samples"/"dut"`).
+// pageOf finds the first page of the given type used by the bucket named
+// exactly owner (e.g. `bucket /"runs"/r000001/"samples"/"dut"`), or with
+// last the leaf page holding its greatest key: bbolt reuses freed pages, so
+// the newest block need not sit on the highest page number.
 func pageOf(t *testing.T, b []byte, rep fileReport, owner string, flags uint16, last bool) int64 {
 	t.Helper()
 	ps := int64(rep.meta.pageSize)
 	var found int64 = -1
+	var greatest []byte
 	for p := uint64(2); p < rep.meta.hwm; p++ {
 		if rep.owner[p] == owner && binary.LittleEndian.Uint16(b[int64(p)*ps+8:]) == flags {
-			found = int64(p)
 			if !last {
+				found = int64(p)
 				break
+			}
+			if k := lastKey(b, int64(p), ps); found < 0 || bytes.Compare(k, greatest) > 0 {
+				found, greatest = int64(p), k
 			}
 		}
 	}
@@ -73,6 +79,18 @@ func pageOf(t *testing.T, b []byte, rep fileReport, owner string, flags uint16, 
 		t.Fatalf("no page of type %#x of %s", flags, owner)
 	}
 	return found
+}
+
+// lastKey is the key of a leaf page's last element.
+func lastKey(b []byte, page, ps int64) []byte {
+	le := binary.LittleEndian
+	n := int64(le.Uint16(b[page*ps+10:]))
+	if n == 0 {
+		return nil
+	}
+	e := page*ps + 16 + (n-1)*16
+	pos, ks := int64(le.Uint32(b[e+4:])), int64(le.Uint32(b[e+8:]))
+	return b[e+pos : e+pos+ks]
 }
 
 // valueIn is the offset in the file of the middle of the value of a leaf

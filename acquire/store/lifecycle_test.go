@@ -292,24 +292,15 @@ func TestDownsampleProperty(t *testing.T) {
 	}
 }
 
-func TestPutRefusals(t *testing.T) {
-	s, _ := openTest(t, Options{})
-	run := newRun(t, s)
-	for _, tc := range []struct {
-		name string
-		smp  Sample
-	}{
-		{"failed read with a value", Sample{Time: t0, Failed: true, Pa: 1}},
-		{"failed read with a unit", Sample{Time: t0, Failed: true, RawUnit: "bar"}},
-		{"no time", Sample{Pa: 1}},
-	} {
-		if err := s.Put(run.ID, "ref", tc.smp); !errors.Is(err, ErrBadInput) {
-			t.Errorf("%s: %v", tc.name, err)
-		}
-	}
-	ro, err := Open(filepath.Join(t.TempDir(), "none.db"), Options{ReadOnly: true})
+// Opening a file that does not exist read-only creates nothing.
+func TestReadOnlyOpenOfNoFile(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "none.db")
+	ro, err := Open(path, Options{ReadOnly: true})
 	if err == nil {
 		ro.Close()
 		t.Error("read-only open created a store")
+	}
+	if _, err := os.Stat(path); !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("read-only open left a file: %v", err)
 	}
 }

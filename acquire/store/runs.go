@@ -287,7 +287,7 @@ var failRetries = []time.Duration{0, 50 * time.Millisecond, 250 * time.Milliseco
 // FailRun ends a run as failed with the reason, retrying a failing write a
 // few times over about 1.3 s. A run that has already ended is left as it
 // is (ended true, no error). When every attempt fails the error says so:
-// the run is still stored unfinished, AddSample and Put refuse it from now
+// the run is still stored unfinished, Put refuses it from now
 // on, and CloseUnfinished closes it at the next start.
 func (s *Store) FailRun(id RunID, reason string) (r Run, err error) {
 	for _, wait := range failRetries {

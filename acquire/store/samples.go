@@ -22,14 +22,6 @@ type job struct {
 	committed func(Event, error)
 }
 
-// AddSample queues one reading of one instrument — good (err nil) or failed
-// (err from the driver; its kind and text are kept) — as Put does.
-//
-// Deprecated: use Put with the store's own Sample.
-func (s *Store) AddSample(run RunID, instrument string, r drivers.Reading, err error) error {
-	return s.Put(run, instrument, SampleOf(r, err))
-}
-
 // SampleOf is the stored form of a driver's reading: good (err nil), or a
 // failed read keeping its time, wire text, kind and message.
 func SampleOf(r drivers.Reading, err error) Sample {
@@ -99,6 +91,7 @@ type WriterStatus struct {
 	Pending    int       // items taken from the queue and not yet committed (retried until they are)
 	Failures   uint64    // failed commits since Open
 	Err        error     // the last commit error; nil once a commit succeeds again
+	Streams    int       // sample streams the writer keeps a block of: one per instrument of each run not yet ended
 }
 
 type writerState struct {
@@ -271,10 +264,12 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 	for k, st := range staged {
 		streams[k] = st
 	}
+	s.forgetEnded(streams)
 	now := s.opt.Clock.Now()
 	s.status.set(func(w *WriterStatus) {
 		w.LastCommit, w.Err, w.Pending = now, nil, 0
 		w.Committed += uint64(len(pending))
+		w.Streams = len(streams)
 	})
 	for _, j := range pending {
 		if j.committed != nil {
@@ -282,6 +277,20 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 		}
 	}
 	return nil
+}
+
+// forgetEnded drops the writer's blocks of runs that have ended: their
+// last block is committed and no sample of theirs is taken any more, so a
+// daemon that runs for months keeps no memory per past run. A sample queued
+// just before its run ended still lands, in a block of its own.
+func (s *Store) forgetEnded(streams map[streamKey]*stream) {
+	s.runsMu.Lock()
+	defer s.runsMu.Unlock()
+	for k := range streams {
+		if s.runs[k.run].Terminal() {
+			delete(streams, k)
+		}
+	}
 }
 
 // sampleStream returns the instrument's sample bucket of the run for

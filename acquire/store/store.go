@@ -20,7 +20,7 @@
 //
 // Synchronous, committed before return: CreateRun, SetState, SetCursor,
 // AddPoint, AddEvent. Asynchronous, through one writer goroutine that commits
-// one Update per FlushInterval or per BatchSamples items: AddSample and
+// one Update per FlushInterval or per BatchSamples items: Put and
 // QueueEvent; Flush waits until everything queued before it is committed.
 // A Store is safe for concurrent use.
 package store
@@ -86,7 +86,7 @@ type Options struct {
 	// BatchSamples commits early once this many items are queued (default 2000).
 	BatchSamples int
 	// QueueSize is the channel buffer in front of the writer (default 8192).
-	// When it is full AddSample blocks; samples are never dropped.
+	// When it is full Put blocks; samples are never dropped.
 	QueueSize int
 	// WireEvery keeps the wire text of every WireEvery-th good reading per
 	// instrument (default 100; 1 keeps all; negative keeps none). The wire
@@ -177,7 +177,7 @@ type Store struct {
 	closing atomic.Bool // set first thing in Close, read by the writer without locking
 
 	runsMu sync.Mutex
-	runs   map[RunID]State // every run's state, for cheap checks in AddSample
+	runs   map[RunID]State // every run's state, for cheap checks in Put
 
 	queue   chan job
 	flushes chan chan error

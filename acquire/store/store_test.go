@@ -425,40 +425,91 @@ func TestEvents(t *testing.T) {
 	}
 }
 
-func TestAddSampleRefusals(t *testing.T) {
+func TestPutRefusals(t *testing.T) {
 	s, _ := openTest(t, Options{})
 	run := newRun(t, s)
-	ok := drivers.Reading{Time: t0, Pa: 1}
+	ok := Sample{Time: t0, Pa: 1}
 	for _, tc := range []struct {
 		name string
 		run  RunID
 		inst string
-		r    drivers.Reading
+		smp  Sample
 		want error
 	}{
 		{"unknown run", 9, "ref", ok, ErrNoRun},
 		{"empty instrument", run.ID, "", ok, ErrBadInput},
-		{"no time", run.ID, "ref", drivers.Reading{Pa: 1}, ErrBadInput},
-		{"before 1970", run.ID, "ref", drivers.Reading{Time: time.Date(1960, 1, 1, 0, 0, 0, 0, time.UTC)}, ErrBadInput},
+		{"long instrument", run.ID, strings.Repeat("x", 256), ok, ErrBadInput},
+		{"no time", run.ID, "ref", Sample{Pa: 1}, ErrBadInput},
+		{"before 1970", run.ID, "ref", Sample{Time: time.Date(1960, 1, 1, 0, 0, 0, 0, time.UTC)}, ErrBadInput},
+		{"failed read with a value", run.ID, "ref", Sample{Time: t0, Failed: true, Pa: 1}, ErrBadInput},
+		{"failed read with a unit", run.ID, "ref", Sample{Time: t0, Failed: true, RawUnit: "bar"}, ErrBadInput},
 	} {
-		if err := s.AddSample(tc.run, tc.inst, tc.r, nil); !errors.Is(err, tc.want) {
+		if err := s.Put(tc.run, tc.inst, tc.smp); !errors.Is(err, tc.want) {
 			t.Errorf("%s: %v, want %v", tc.name, err, tc.want)
 		}
 	}
 	if _, err := s.SetState(run.ID, StateFailed, "hose burst"); err != nil {
 		t.Fatal(err)
 	}
-	if err := s.AddSample(run.ID, "ref", ok, nil); !errors.Is(err, ErrRunEnded) {
+	if err := s.Put(run.ID, "ref", ok); !errors.Is(err, ErrRunEnded) {
 		t.Errorf("ended run: %v", err)
 	}
 	open := newRun(t, s)
 	s.Close()
-	if err := s.AddSample(open.ID, "ref", ok, nil); !errors.Is(err, ErrClosed) {
+	if err := s.Put(open.ID, "ref", ok); !errors.Is(err, ErrClosed) {
 		t.Errorf("closed store: %v", err)
 	}
 	if err := s.Flush(); !errors.Is(err, ErrClosed) {
 		t.Errorf("flush closed: %v", err)
 	}
+}
+
+// The writer keeps the block being filled of each instrument of a run in
+// memory; once the run has ended it lets go of them, so a daemon that runs
+// for months holds nothing per past run. A sample queued just before its
+// run ended is still committed, and every sample reads back.
+func TestWriterForgetsEndedRuns(t *testing.T) {
+	s, _ := openTest(t, Options{})
+	put := func(run RunID, inst string, i int) {
+		t.Helper()
+		if err := s.Put(run, inst, Sample{Time: t0.Add(time.Duration(i) * time.Second), Pa: float64(i), Raw: float64(i), RawUnit: "Pa"}); err != nil {
+			t.Fatal(err)
+		}
+	}
+	flushStreams := func(want int) {
+		t.Helper()
+		if err := s.Flush(); err != nil {
+			t.Fatal(err)
+		}
+		if got := s.WriterStatus().Streams; got != want {
+			t.Fatalf("writer holds %d streams, want %d", got, want)
+		}
+	}
+	first := newRun(t, s)
+	for i := range 10 {
+		put(first.ID, "ref", i)
+		put(first.ID, "dut", i)
+	}
+	flushStreams(2)
+	put(first.ID, "ref", 10) // queued before the run ends
+	if _, err := s.SetState(first.ID, StateFinished, ""); err != nil {
+		t.Fatal(err)
+	}
+	second := newRun(t, s)
+	put(second.ID, "ref", 0)
+	flushStreams(1)
+	for inst, want := range map[string]int{"ref": 11, "dut": 10} {
+		got := collect(t, s, first.ID, inst, time.Time{}, time.Time{})
+		if len(got) != want || got[len(got)-1].Pa != float64(want-1) {
+			t.Errorf("%s of the ended run: %d samples, want %d", inst, len(got), want)
+		}
+	}
+	if _, err := s.SetState(second.ID, StateStopped, "operator"); err != nil {
+		t.Fatal(err)
+	}
+	third := newRun(t, s)
+	put(third.ID, "dut", 0)
+	flushStreams(1)
 }
 
 type sent struct {

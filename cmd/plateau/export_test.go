@@ -29,7 +29,7 @@ func TestExportSamples(t *testing.T) {
 	t0 := time.Date(2026, 3, 1, 21, 0, 0, 0, time.UTC)
 	for i := range 10 {
 		at := t0.Add(time.Duration(i) * time.Second)
-		if err := st.AddSample(run.ID, "ref", drivers.Reading{Time: at, Pa: 4e5 + float64(i), Raw: 4 + float64(i)*1e-5, RawUnit: "bar"}, nil); err != nil {
+		if err := st.Put(run.ID, "ref", store.Sample{Time: at, Pa: 4e5 + float64(i), Raw: 4 + float64(i)*1e-5, RawUnit: "bar"}); err != nil {
 			t.Fatal(err)
 		}
 		var readErr error
@@ -38,7 +38,7 @@ func TestExportSamples(t *testing.T) {
 			readErr = &drivers.ReadError{Instrument: "dut", Kind: drivers.KindTimeout, Err: errors.New("no reply within 300ms")}
 			r = drivers.Reading{Time: at}
 		}
-		if err := st.AddSample(run.ID, "dut", r, readErr); err != nil {
+		if err := st.Put(run.ID, "dut", store.SampleOf(r, readErr)); err != nil {
 			t.Fatal(err)
 		}
 	}
