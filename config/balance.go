@@ -293,21 +293,28 @@ func (b *Balance) validateMasses(p *Problems, k func(string) string) {
 // Setup is the balance as analysis/balance takes it: SI units, standard
 // uncertainties (each expanded one divided by Coverage).
 func (b *Balance) Setup() balance.Setup {
-	k := b.Coverage
+	k := b.coverage()
 	area := b.AreaMM2 * 1e-6
 	s := balance.Setup{
-		Mode: balance.Mode(b.Mode),
+		Mode: balance.Gauge,
 		Piston: balance.Piston{
 			AreaM2: area, AreaU: area * b.AreaUncertaintyPPM * 1e-6 / k,
 			Lambda: b.DistortionPPMPerMPa * 1e-12, LambdaU: b.DistortionUncertainty * 1e-12 / k,
 			Alpha: b.ExpansionPPMPerK * 1e-6, AlphaU: b.ExpansionUncertainty * 1e-6 / k,
-			RefTempC: *b.ReferenceTemperature, RefHeightM: b.ReferenceHeight,
+			RefTempC: orDefault(b.ReferenceTemperature, defaultBalanceRefTemp), RefHeightM: b.ReferenceHeight,
 		},
 		Gravity: b.Gravity, GravityU: b.GravityUncertainty / k,
 		MassesCorrelated: b.MassesCorrelated,
 	}
+	if b.Mode == string(balance.Absolute) {
+		s.Mode = balance.Absolute
+	}
 	for _, m := range b.Masses {
-		s.Pieces = append(s.Pieces, balance.Piece{ID: m.ID, Kind: balance.MassKind(m.Kind), MassKg: m.Mass, MassU: m.Uncertainty / k,
+		kind := balance.ConventionalMass
+		if m.Kind == string(balance.TrueMass) {
+			kind = balance.TrueMass
+		}
+		s.Pieces = append(s.Pieces, balance.Piece{ID: m.ID, Kind: kind, MassKg: m.Mass, MassU: m.Uncertainty / k,
 			Density: m.Density, DensityU: m.DensityUncertainty / k})
 	}
 	return s
@@ -319,15 +326,15 @@ func (b *Balance) Setup() balance.Setup {
 // the run. The caller adds the pieces loaded, and the piston temperature
 // when it is read or given per loading.
 func (b *Balance) LevelConditions() balance.Conditions {
-	k := b.Coverage
+	k := b.coverage()
 	cond := balance.Conditions{
 		PistonTempU:  b.PistonTemperatureUncertainty / k,
 		ResidualPa:   b.ResidualPa,
 		ResidualU:    b.ResidualUPa / k,
 		DeviceHeight: b.ReferenceHeight,
 	}
-	if b.Mode == string(balance.Gauge) {
-		cond.AirDensity, cond.AirDensityU = *b.AirDensity, b.AirDensityUncertainty/k
+	if b.Mode != string(balance.Absolute) {
+		cond.AirDensity, cond.AirDensityU = orDefault(b.AirDensity, defaultBalanceAir), b.AirDensityUncertainty/k
 	}
 	if b.PistonTemperature != nil {
 		cond.PistonTempC = *b.PistonTemperature
@@ -348,4 +355,20 @@ func (c *Config) BalanceConditions(b *Balance, deviceHeight float64) balance.Con
 		cond.Fluid.MolarMass, cond.Fluid.TemperatureK = h.GasMolarMass, h.GasTemperature+273.15
 	}
 	return cond
+}
+
+// coverage and orDefault give the defaults to a section that was not
+// validated (one built in code): validation fills them in the file's.
+func (b *Balance) coverage() float64 {
+	if b.Coverage == 0 {
+		return defaultBalanceCoverage
+	}
+	return b.Coverage
+}
+
+func orDefault(v *float64, def float64) float64 {
+	if v == nil {
+		return def
+	}
+	return *v
 }

@@ -110,3 +110,16 @@ func readFile(t *testing.T, path string) string {
 	}
 	return string(b)
 }
+
+// A section built in code, not validated, still gives the defaults.
+func TestBalanceNotValidated(t *testing.T) {
+	b := &Balance{AreaMM2: 100, Gravity: 9.81, Masses: []MassPiece{{ID: "P1", Mass: 1}}}
+	s, c := b.Setup(), b.LevelConditions()
+	if s.Mode != balance.Gauge || s.Piston.RefTempC != 20 || s.Pieces[0].Kind != balance.ConventionalMass || c.AirDensity != 1.2 {
+		t.Errorf("setup %+v, conditions %+v", s, c)
+	}
+	c.Loaded, c.PistonTempC = []string{"P1"}, 20
+	if _, err := s.Pressure(c); err != nil {
+		t.Error(err)
+	}
+}
