@@ -75,11 +75,14 @@ func (p *ptyPort) write(b []byte) error {
 var errIdle = errors.New("idle")
 
 // readFrame returns the bytes of one RTU frame — everything received until
-// the line has been silent for gap (t3.5) — and when its first byte
-// arrived. A pseudo-terminal has no character timing, so the t1.5 rule
-// inside a frame cannot be checked here; clients write a frame in one go,
-// which arrives in one piece.
-func (p *ptyPort) readFrame(gap, idle time.Duration) ([]byte, time.Time, error) {
+// the line has been silent for gap (t3.5), or until complete says the bytes
+// are a whole request — and when its first byte arrived. A pseudo-terminal
+// has no character timing, so the t1.5 rule inside a frame cannot be
+// checked here; clients write a frame in one go, which arrives in one
+// piece, and waiting out the silence after a frame that is plainly whole
+// would only slow the line (with wire time on, the reply is held back to
+// the wire's pace anyway).
+func (p *ptyPort) readFrame(gap, idle time.Duration, complete func([]byte) bool) ([]byte, time.Time, error) {
 	var frame []byte
 	var first time.Time
 	buf := make([]byte, 512)
@@ -94,6 +97,9 @@ func (p *ptyPort) readFrame(gap, idle time.Duration) ([]byte, time.Time, error) 
 			}
 			if len(frame) <= maxRTUFrame {
 				frame = append(frame, buf[:n]...)
+			}
+			if complete != nil && complete(frame) {
+				return frame, first, nil
 			}
 			if err := p.master.SetReadDeadline(time.Now().Add(gap)); err != nil {
 				return nil, first, err

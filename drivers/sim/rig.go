@@ -494,7 +494,7 @@ func (r *Rig) serveRTU(ctx context.Context, port *ptyPort, line *rtuLine) error 
 	gap := silence3_5(r.baud)
 	char := 11 * time.Second / time.Duration(r.baud)
 	for ctx.Err() == nil {
-		frame, arrived, err := port.readFrame(gap, 200*time.Millisecond)
+		frame, arrived, err := port.readFrame(gap, 200*time.Millisecond, wholeRequest)
 		if errors.Is(err, errIdle) {
 			continue
 		}

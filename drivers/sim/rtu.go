@@ -183,6 +183,25 @@ func (r *rtuResponder) pdu(unit uint8, req []byte) []byte {
 	return exception(exIllegalFunction)
 }
 
+// wholeRequest says whether b is exactly one complete request frame with a
+// good CRC: eight bytes for the reads and single writes, nine plus the byte
+// count for the multiple writes (MODBUS Application Protocol V1.1b3 §6).
+// Anything else waits for the silence that ends a frame.
+func wholeRequest(b []byte) bool {
+	if len(b) < 8 {
+		return false
+	}
+	n := 8
+	switch b[1] {
+	case fcReadCoils, fcReadDiscreteInputs, fcReadHolding, fcReadInput, fcWriteCoil, fcWriteRegister:
+	case fcWriteCoils, fcWriteRegisters:
+		n = 9 + int(b[6])
+	default:
+		return false
+	}
+	return len(b) == n && binary.LittleEndian.Uint16(b[n-2:]) == crc16.Modbus(b[:n-2])
+}
+
 // packBits packs coil states eight to a byte, first coil in the low bit.
 func packBits(v []bool) []byte {
 	out := make([]byte, (len(v)+7)/8)

@@ -206,6 +206,11 @@ func FuzzRTUFrame(f *testing.F) {
 	f.Fuzz(func(t *testing.T, frame []byte) {
 		h := &tableHandler{holding: map[uint16]uint16{0: 1, 1: 2}, input: map[uint16]uint16{0: 3}, coils: map[uint16]bool{0: true, 1: false}}
 		r := &rtuResponder{unit: 1, h: h}
+		// A frame taken as whole before its silence must be one the
+		// responder reads as a request: it checks the CRC the same way.
+		if wholeRequest(frame) && crc16.Modbus(frame[:len(frame)-2]) != uint16(frame[len(frame)-2])|uint16(frame[len(frame)-1])<<8 {
+			t.Fatalf("% X taken as a whole request with a bad CRC", frame)
+		}
 		got := r.respond(frame)
 		if got == nil {
 			return
@@ -214,4 +219,29 @@ func FuzzRTUFrame(f *testing.F) {
 			t.Fatalf("malformed reply % X to % X", got, frame)
 		}
 	})
+}
+
+// A request is taken as whole as soon as its last byte is in, not before,
+// and nothing else is.
+func TestWholeRequest(t *testing.T) {
+	read := unhex(t, "01 03 00 6B 00 03 74 17")
+	write := unhex(t, "01 10 00 01 00 02 04 00 0A 01 02 92 30")
+	for _, c := range []struct {
+		name  string
+		frame []byte
+		whole bool
+	}{
+		{"read", read, true},
+		{"read, one byte short", read[:7], false},
+		{"read, one byte more", append(append([]byte{}, read...), 0), false},
+		{"read, bad CRC", append(append([]byte{}, read[:7]...), read[7]^1), false},
+		{"write registers", write, true},
+		{"write registers, half", write[:9], false},
+		{"unknown function", crc16.Append(unhex(t, "01 2B 0E 01 00 00")), false},
+		{"empty", nil, false},
+	} {
+		if got := wholeRequest(c.frame); got != c.whole {
+			t.Errorf("%s: whole = %v, want %v", c.name, got, c.whole)
+		}
+	}
 }
