@@ -61,11 +61,19 @@ const maxProblems = 50
 // Read parses a recorded run. Its error lists every bad field, each named
 // by line, column letter and header.
 func Read(r io.Reader) ([]analysis.Point, error) {
+	pts, _, err := ReadWith(r, Options{})
+	return pts, err
+}
+
+func readWith(r io.Reader, opt *Options) ([]analysis.Point, error) {
 	br := bufio.NewReader(r)
 	if b, err := br.Peek(3); err == nil && string(b) == "\ufeff" {
 		br.Discard(3) // the byte-order mark spreadsheets put first
 	}
 	sep := separator(br)
+	if err := opt.headerLoop(br); err != nil {
+		return nil, err
+	}
 	cr := csv.NewReader(br)
 	cr.Comma = sep
 	cr.Comment = '#'
@@ -78,7 +86,7 @@ func Read(r io.Reader) ([]analysis.Point, error) {
 	if err != nil {
 		return nil, fmt.Errorf("recorded run: %w", err)
 	}
-	t := table{cr: cr, header: header, col: map[string]int{}, decimalComma: sep != ','}
+	t := table{cr: cr, header: header, col: map[string]int{}, decimalComma: sep != ',', opt: opt}
 	for i, h := range header {
 		name := strings.ToLower(strings.TrimSpace(h))
 		if _, known := columns[name]; !known {
@@ -167,6 +175,7 @@ type table struct {
 	col          map[string]int
 	decimalComma bool
 	problems     []string
+	opt          *Options // the loop range of currents (current.go)
 	modes        modeSeen // the mode the units carry (mode.go)
 }
 
@@ -275,7 +284,7 @@ func (t *table) row(rec []string) (analysis.Point, bool) {
 	}
 	p.Nominal = number("nominal", !measure)
 	ref := number("reference", false)
-	dut := number("dut", false)
+	dut := t.dut(field, number, &p)
 	var at time.Time
 	if s, i := field("time"); s != "" {
 		if at, err = time.Parse(time.RFC3339Nano, s); err != nil {

@@ -42,6 +42,7 @@ type analyzeFlags struct {
 	interpolation                                            bool
 	// How the run ended, for a table recorded elsewhere.
 	state, reason string
+	currents      currentFlags // a transmitter's table in mA (analyze_current.go)
 }
 
 var renderers = map[string]func(io.Writer, report.Info, analysis.Result) error{
@@ -104,6 +105,7 @@ effective degrees of freedom instead of the conventional k = 2.`,
 	fl.BoolVar(&f.interpolation, "interpolation-in-budget", false, "add the correction curve's interpolation term to every point's budget")
 	fl.StringVar(&f.state, "run-state", "", `how the recorded run ended when it did not finish, e.g. "stopped"`)
 	fl.StringVar(&f.reason, "run-reason", "", "why the recorded run did not finish (with --run-state)")
+	f.currents.register(fl)
 	return cmd
 }
 
@@ -114,7 +116,7 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 	}
 	points, err := readRecorded(csvPath)
 	loadings := errors.Is(err, errLoadings)
-	if err != nil && !loadings {
+	if err != nil && !loadings && !errors.Is(err, recorded.ErrNeedsLoop) {
 		return err
 	}
 	cfg, err := config.Load(configPath)
@@ -144,6 +146,9 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 		return fmt.Errorf("no configuration file %s, so these flags are required: %s", configPath, strings.Join(missing, ", "))
 	}
 	if err := f.apply(&dev, &ref, &opt); err != nil {
+		return err
+	}
+	if points, err = f.currents.read(csvPath, points, &dev, loadings); err != nil {
 		return err
 	}
 	if balanceRef != nil {
