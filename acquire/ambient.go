@@ -9,6 +9,7 @@ import (
 	"sync"
 	"time"
 
+	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/analysis/units"
 	"plateau/config"
@@ -66,6 +67,9 @@ func newAmbientBook(cfg *config.Config, others []Instrument, clk clock.Clock) *a
 	polls := map[string]time.Duration{}
 	for _, o := range others {
 		polls[o.Name] = o.Poll
+		if o.ByPerson {
+			polls[o.Name] = enteredHolds
+		}
 	}
 	for _, a := range cfg.Ambient() {
 		poll, opened := polls[a.Name]
@@ -336,4 +340,64 @@ func openAmbient(inst config.Instrument, env drivers.OpenEnv) (drivers.Gauge, er
 		return nil, err
 	}
 	return &ambientGauge{Gauge: g, unit: a.Unit}, nil
+}
+
+// enteredHolds is how long a typed ambient condition stands for the
+// points that follow when no newer one is entered (the fallback of over
+// takes two "polls").
+const enteredHolds = 30 * time.Minute
+
+// plausible bounds typed ambient values: a laboratory's conditions, with
+// room for an unheated workshop (common practice). A value outside is a
+// wrong unit or a typo: a barometric 1013 typed without its unit is read
+// as 1013 bar.
+var plausible = map[units.AmbientKind][2]float64{
+	units.Temperature: {-30, 60},     // °C
+	units.Humidity:    {0, 100},      // %RH
+	units.Barometric:  {50e3, 110e3}, // Pa
+}
+
+// enterAmbient takes an operator's reading of an ambient instrument with
+// link kind manual (handled false for any other name). The value is in
+// the unit given, when it is one of the quantity's, else in the
+// instrument's own unit (the enter command puts the device's unit on a
+// bare number). It is stored as the instrument's sample and stands for
+// the points of the next half hour.
+func (e *Engine) enterAmbient(en Entry) (handled bool, err error) {
+	var inst config.Instrument
+	found := false
+	for _, in := range e.cfg.Instruments {
+		if in.Name == en.Device && in.Role == config.RoleAmbient && in.Link.Kind == config.LinkManual {
+			inst, found = in, true
+		}
+	}
+	tr := e.ambient.byKey[en.Device]
+	if !found || tr == nil {
+		return false, nil
+	}
+	a, _ := config.AmbientOf(inst)
+	u := a.Unit
+	if given, err := units.LookupAmbient(a.Kind, en.Unit); err == nil {
+		u = given
+	}
+	if math.IsNaN(en.Value) || math.IsInf(en.Value, 0) {
+		return true, errors.New("the reading must be a finite number")
+	}
+	base := u.ToBase(en.Value)
+	if lim := plausible[a.Kind]; base < lim[0] || base > lim[1] {
+		return true, fmt.Errorf("%s: %g %s is no %s of a laboratory (%s … %s): check the value and give its unit",
+			inst.Name, en.Value, u.Symbol, a.Kind, analysis.AmbientText(a.Kind, lim[0]), analysis.AmbientText(a.Kind, lim[1]))
+	}
+	now := e.clk.Now()
+	r := drivers.Reading{Time: now, Pa: base, Raw: a.Unit.FromBase(base), RawUnit: a.Unit.Symbol,
+		Wire: fmt.Sprintf("entered %g %s", en.Value, u.Symbol)}
+	e.ambient.observer(inst.Name)(r, nil)
+	e.samples.Sample(inst.Name, r, nil)
+	run := store.RunID(0)
+	if ar := e.runs.active(); ar != nil {
+		run = ar.id
+	}
+	e.emit(run, slog.LevelInfo, "entry", inst.Name, fmt.Sprintf("%s: %s entered as %s", inst.Name, a.Kind, analysis.AmbientText(a.Kind, base)),
+		map[string]any{"value": en.Value, "unit": u.Symbol, "base": base})
+	return true, nil
 }

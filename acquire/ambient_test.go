@@ -4,9 +4,12 @@ import (
 	"context"
 	"errors"
 	"math"
+	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
+	"plateau/acquire/store"
 	"plateau/config"
 	"plateau/drivers"
 	"plateau/drivers/clock"
@@ -132,5 +135,51 @@ func TestAmbientGaugeUnits(t *testing.T) {
 	// t/°C = (t/°F − 32)/1.8 (NIST SP 811 (2008) B.8).
 	if err != nil || math.Abs(r.Pa-22) > 1e-12 || r.Raw != 71.6 || r.RawUnit != "°F" {
 		t.Errorf("71.6 °F read as %+v %v", r, err)
+	}
+}
+
+// An ambient instrument read by a person: its entries are taken by name,
+// in its quantity's units or, for a bare number (which the enter command
+// sends in the device's unit), in its own; an implausible one is refused.
+func TestAmbientEntries(t *testing.T) {
+	yaml := ambientYAML + `  - {name: hyg, role: ambient, quantity: humidity, unit: "%RH", link: {kind: manual}}` + "\n"
+	cfg, err := config.Parse([]byte(yaml), "ambient.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	st, err := store.Open(filepath.Join(t.TempDir(), "amb.db"), store.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	clk := clock.NewManual(time.Date(2026, 5, 4, 10, 0, 0, 0, time.UTC))
+	g := &fixedGauge{r: drivers.Reading{Pa: 1e5}}
+	in := Instruments{
+		Reference: Instrument{Name: "ref", Gauge: g, Poll: time.Second},
+		Devices:   []Instrument{{Name: "dut", Gauge: g, Poll: time.Second}},
+		Others:    []Instrument{{Name: "hyg", Gauge: g, ByPerson: true}},
+	}
+	e, err := New(Options{Config: cfg, Store: st, Clock: clk, Instruments: in})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(e.others) != 0 {
+		t.Fatal("an ambient instrument read by a person is polled")
+	}
+	if err := e.Enter(Entry{Device: "hyg", Value: 55, Unit: "bar"}); err != nil {
+		t.Fatal(err)
+	}
+	if m, ok := e.ambient.byKey["hyg"].over(clk.Now().Add(40*time.Minute), clk.Now().Add(50*time.Minute)); !ok || m.Mean != 55 {
+		t.Errorf("an entry stands for the next points: %+v %v", m, ok)
+	}
+	if err := e.Enter(Entry{Device: "hyg", Value: 150, Unit: "%"}); err == nil || !strings.Contains(err.Error(), "no humidity of a laboratory") {
+		t.Errorf("150 %%RH: %v", err)
+	}
+	if err := e.Enter(Entry{Device: "room", Value: 21}); err == nil {
+		t.Error("an entry for a polled thermometer was taken")
+	}
+	evs, err := st.Events(0, 100)
+	if err != nil || len(evs) != 1 || evs[0].Type != "entry" || evs[0].Message != "hyg: humidity entered as 55.0 %RH" {
+		t.Errorf("events %+v %v", evs, err)
 	}
 }

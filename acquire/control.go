@@ -262,6 +262,9 @@ func (e *ImplausibleError) Error() string {
 // procedure.entry_limit times the permissible error. Every entry taken,
 // including one a later entry supersedes, is in the record as an event.
 func (e *Engine) Enter(en Entry) error {
+	if handled, err := e.enterAmbient(en); handled {
+		return err
+	}
 	d, err := e.dialFor(en.Device)
 	if err != nil {
 		return err

@@ -225,6 +225,9 @@ func New(opt Options) (*Engine, error) {
 		e.devs = append(e.devs, dv)
 	}
 	for _, o := range in.Others {
+		if o.ByPerson {
+			continue // entered by an operator (ambient.go), not polled
+		}
 		p, err := mk(o, rules, amb.observer(o.Name)) // observed, never guarded
 		if err != nil {
 			return nil, err

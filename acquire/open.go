@@ -61,7 +61,7 @@ func Open(cfg *config.Config, env drivers.OpenEnv, rig Simulated) (Instruments, 
 			if err != nil {
 				return fail(err)
 			}
-			one.Gauge = g
+			one.Gauge, one.ByPerson = g, inst.Link.Kind == config.LinkManual
 		} else if dial := simulatedDial(inst, rig); simulated && dial != nil {
 			one.Gauge, one.ByPerson = dial, true
 		} else {

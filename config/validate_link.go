@@ -69,11 +69,11 @@ func (c *Config) validateLink(p *Problems, key string, in *Instrument) {
 		c.validateLinkTimes(p, key, l)
 		return
 	case LinkManual:
+		if in.Role == RoleAmbient {
+			return // an operator types the room's conditions; its unit is judged with its quantity (ambient.go)
+		}
 		if in.Role != RoleDevice {
 			p.bad(key+".link.kind", l.Kind, "operator entry is for reading a device under test (an analog dial), not a %s", in.Role)
-		}
-		if in.Role == RoleAmbient {
-			return // its unit is judged with its quantity (ambient.go)
 		}
 		if in.Unit == "" {
 			p.bad(key+".unit", "", "is required: the unit the operator reads off the dial and types in, e.g. bar")
