@@ -55,3 +55,7 @@ func (e *Engine) remaining(v runView, now time.Time) (step, run time.Duration, o
 	rest, _ := PlanDuration(e.cfg.Procedure, e.steps[v.Step+1:])
 	return step, step + scaled(rest), true
 }
+
+// Plan is the configured plan's steps (none in free mode); callers must not
+// change it.
+func (e *Engine) Plan() []procedure.Step { return e.steps }

@@ -55,6 +55,8 @@ type runView struct {
 	StepSince           time.Time
 	Timed               int
 	TimedFor, TimedPlan time.Duration
+	// Held: paused with the source at its setpoint (see Status.Held).
+	Held bool
 }
 
 func (l *lifecycle) active() *activeRun { return l.cur.Load() }
@@ -96,7 +98,7 @@ func (l *lifecycle) setState(id store.RunID, st store.State, reason string, at t
 	}
 	l.update(func(v *runView) {
 		if v.ID == id {
-			v.State, v.Reason, v.Since = st, reason, at
+			v.State, v.Reason, v.Since, v.Held = st, reason, at, false
 		}
 	})
 	if err != nil {

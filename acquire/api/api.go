@@ -144,8 +144,63 @@ type Status struct {
 	Trip string `json:"trip,omitempty"`
 	// StoreFault says why the store cannot write; empty when it can.
 	StoreFault string `json:"store_fault,omitempty"`
-	// Last is how the last run of this daemon ended, once one has.
+	// Last is how the last run ended: this daemon's, else the newest of
+	// the store (Earlier).
 	Last *LastRun `json:"last,omitempty"`
+	// StateSince is when the current run entered its state: the pause
+	// time while it is paused.
+	StateSince time.Time `json:"state_since,omitzero"`
+	// Current is the step the run is at; nil when idle.
+	Current *StepNow `json:"current,omitempty"`
+	// Settle is the rule a step waits for.
+	Settle *SettleRule `json:"settle,omitempty"`
+	// Plan lists the configured plan's steps in order (empty in free mode).
+	Plan []PlanStep `json:"plan,omitempty"`
+	// ExpectedSeconds and ExpectedMostSeconds bound the whole plan in wall
+	// time: every hold and settle window, or every point to its time-out;
+	// reaching each pressure comes on top.
+	ExpectedSeconds     float64 `json:"expected_seconds,omitempty"`
+	ExpectedMostSeconds float64 `json:"expected_most_seconds,omitempty"`
+	// Source says whether plateau drives a pressure source on this bench;
+	// without one the pressure is set by hand.
+	Source bool `json:"source"`
+	// Held says that the run is paused with the source holding the step's
+	// pressure; a pause by the safety guard, a store fault or a restart
+	// vents it instead.
+	Held bool `json:"held"`
+}
+
+// StepNow is where the current run is.
+type StepNow struct {
+	Index    int     `json:"index"` // 0-based position in Plan
+	Of       int     `json:"of"`
+	Phase    string  `json:"phase,omitempty"`
+	TargetPa float64 `json:"target_pa"`
+	// Estimated says whether StepLeftSeconds and RunLeftSeconds hold an
+	// estimate (wall time) of what the step and the whole run still need,
+	// from the plan scaled by how long the steps so far took.
+	Estimated       bool    `json:"estimated"`
+	StepLeftSeconds float64 `json:"step_left_seconds,omitempty"`
+	RunLeftSeconds  float64 `json:"run_left_seconds,omitempty"`
+}
+
+// SettleRule is when a step counts as settled: over a window of
+// WindowSeconds, drift and scatter within their limits and the mean within
+// BandPa of the target (0: not checked).
+type SettleRule struct {
+	WindowSeconds  float64 `json:"window_seconds"`
+	MaxDriftPaPerS float64 `json:"max_drift_pa_per_s"`
+	MaxSpreadPa    float64 `json:"max_spread_pa"`
+	BandPa         float64 `json:"band_pa"`
+}
+
+// PlanStep is one step of the plan.
+type PlanStep struct {
+	Kind      string  `json:"kind"` // exercise | capture
+	Cycle     int     `json:"cycle"`
+	Direction string  `json:"direction,omitempty"`
+	TargetPa  float64 `json:"target_pa"`
+	What      string  `json:"what"` // in words, e.g. "cycle 1 up point 2"
 }
 
 // LastRun is how a run ended.
@@ -153,6 +208,13 @@ type LastRun struct {
 	ID     string `json:"id"`
 	State  string `json:"state"`
 	Reason string `json:"reason,omitempty"`
+	// Verdict is the decision on its points ("pass", "fail", …; one per
+	// device, "PG-1 pass, PG-2 fail", when it calibrated several); empty
+	// when it has none.
+	Verdict string `json:"verdict,omitempty"`
+	// Earlier says the run ended before this daemon started (status shows
+	// the newest run of the store until the daemon ends one itself).
+	Earlier bool `json:"earlier,omitempty"`
 }
 
 // InstrumentInfo is one instrument's state. Reads and Errors count since
@@ -171,6 +233,18 @@ type InstrumentInfo struct {
 	// line share it), next to what its poll interval asks.
 	ReadsPerSecond float64 `json:"reads_per_second,omitempty"`
 	AskedPerSecond float64 `json:"asked_per_second,omitempty"`
+	// Device is the identity of a device under test (its serial or tag).
+	Device string `json:"device,omitempty"`
+	// Raw and RawUnit are the last good reading as the instrument gave it
+	// (bar, mA, counts…), before conversion to pascal.
+	Raw     float64 `json:"raw"`
+	RawUnit string  `json:"raw_unit,omitempty"`
+	// Why says what the instrument's settle rule still waits for ("drifting
+	// 0.004 bar/min, limit 0.002 bar/min"); empty when settled.
+	Why string `json:"why,omitempty"`
+	// Waiting says what a dial read by a person waits for; empty when no
+	// entry is due.
+	Waiting string `json:"waiting,omitempty"`
 }
 
 // RunInfo describes a run in lists and status.

@@ -20,6 +20,7 @@ type statusCollector struct {
 	status func(context.Context) Status
 
 	reads, readErrors, lastValue, lastRead, up, settled *prometheus.Desc
+	info                                                *prometheus.Desc
 	points, progress, runState, lastRunState            *prometheus.Desc
 	tripped, storeFault                                 *prometheus.Desc
 }
@@ -30,7 +31,9 @@ var runStates = []store.State{store.StatePending, store.StateRunning, store.Stat
 func newStatusCollector(status func(context.Context) Status) *statusCollector {
 	inst := []string{"instrument"}
 	return &statusCollector{
-		status:       status,
+		status: status,
+		info: prometheus.NewDesc("plateau_instrument_info", "Always 1: which instrument reads which device under test (its identity; empty for the reference and the source), to join the other instrument metrics with.",
+			[]string{"instrument", "role", "device"}, nil),
 		reads:        prometheus.NewDesc("plateau_instrument_reads_total", "Read attempts per instrument since the daemon started, good or failed.", inst, nil),
 		readErrors:   prometheus.NewDesc("plateau_instrument_read_errors_total", "Failed reads per instrument and reason (timeout, link_down, bad_reply, out_of_range, overload).", []string{"instrument", "kind"}, nil),
 		lastValue:    prometheus.NewDesc("plateau_instrument_last_value_pascals", "The instrument's last good reading in pascal.", inst, nil),
@@ -47,7 +50,7 @@ func newStatusCollector(status func(context.Context) Status) *statusCollector {
 }
 
 func (c *statusCollector) Describe(ch chan<- *prometheus.Desc) {
-	for _, d := range []*prometheus.Desc{c.reads, c.readErrors, c.lastValue, c.lastRead, c.up, c.settled, c.points, c.progress,
+	for _, d := range []*prometheus.Desc{c.info, c.reads, c.readErrors, c.lastValue, c.lastRead, c.up, c.settled, c.points, c.progress,
 		c.runState, c.lastRunState, c.tripped, c.storeFault} {
 		ch <- d
 	}
@@ -58,6 +61,7 @@ func (c *statusCollector) Collect(ch chan<- prometheus.Metric) {
 	defer cancel()
 	st := c.status(ctx)
 	for _, in := range st.Instruments {
+		ch <- prometheus.MustNewConstMetric(c.info, prometheus.GaugeValue, 1, in.Name, in.Role, in.Device)
 		ch <- prometheus.MustNewConstMetric(c.reads, prometheus.CounterValue, float64(in.Reads), in.Name)
 		for kind, n := range in.Errors {
 			ch <- prometheus.MustNewConstMetric(c.readErrors, prometheus.CounterValue, float64(n), in.Name, kind)
@@ -74,7 +78,7 @@ func (c *statusCollector) Collect(ch chan<- prometheus.Metric) {
 	for _, s := range runStates {
 		ch <- prometheus.MustNewConstMetric(c.runState, prometheus.GaugeValue, boolValue(st.Run != nil && st.Run.State == s), string(s))
 	}
-	if st.Last != nil {
+	if st.Last != nil && !st.Last.Earlier {
 		for _, s := range endStates {
 			ch <- prometheus.MustNewConstMetric(c.lastRunState, prometheus.GaugeValue, boolValue(st.Last.State == string(s)), string(s))
 		}

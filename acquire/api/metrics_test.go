@@ -206,3 +206,24 @@ func (r *recorder) MustRegister(cs ...prometheus.Collector) {
 	r.collectors = append(r.collectors, cs...)
 }
 func (r *recorder) Unregister(prometheus.Collector) bool { return false }
+
+// Several devices in one run: the metrics say which instrument reads which
+// device, so a dashboard shows "PG-0421" rather than "dut2".
+func TestInstrumentInfoNamesTheDevice(t *testing.T) {
+	st := Status{Instruments: []InstrumentInfo{
+		{Name: "ref", Role: "reference", Up: true},
+		{Name: "dut1", Role: "device", Device: "PG-0421", Up: true},
+		{Name: "dut2", Role: "device", Device: "PG-0422"},
+	}}
+	col := newStatusCollector(func(context.Context) Status { return st })
+	want := `
+# HELP plateau_instrument_info Always 1: which instrument reads which device under test (its identity; empty for the reference and the source), to join the other instrument metrics with.
+# TYPE plateau_instrument_info gauge
+plateau_instrument_info{device="",instrument="ref",role="reference"} 1
+plateau_instrument_info{device="PG-0421",instrument="dut1",role="device"} 1
+plateau_instrument_info{device="PG-0422",instrument="dut2",role="device"} 1
+`
+	if err := testutil.CollectAndCompare(col, strings.NewReader(want), "plateau_instrument_info"); err != nil {
+		t.Fatal(err)
+	}
+}

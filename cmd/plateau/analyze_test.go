@@ -44,7 +44,7 @@ func TestAnalyze(t *testing.T) {
 		{"text, simple rule", append([]string{"analyze", abs, "--rule", "simple"}, flags...),
 			[]string{"Range                  0.000 bar … 16.000 bar", "12.000     12.001  12.113  0.111", "VERDICT: PASS", "§4.2.1"}, ""},
 		{"csv, four-state", append([]string{"analyze", abs, "--rule", "four-state", "--format", "csv"}, flags...),
-			[]string{"point,nominal_bar,", "\n4,12,12.0011,12.1125,0.1114,",
+			[]string{"device,point,nominal_bar,", "\n,4,12,12.0011,12.1125,0.1114,",
 				",0.0938317251696,0.0989,0.1489,0.69625,2,,88.8807414876,2.41807724941,pass,conditional-pass,pass,conditional-pass\n"}, ""},
 		{"psi display", append([]string{"analyze", abs, "--rule", "simple", "--unit", "psi"}, flags...),
 			[]string{"pressures in psi"}, ""},

@@ -1,7 +1,9 @@
 package main
 
 import (
+	"bytes"
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -93,11 +95,11 @@ func serve(ctx context.Context, cfg *config.Config, log *slog.Logger) (err error
 		}
 	}()
 
-	ctl := &engineControl{eng: b.engine, st: b.store, cfg: cfg, since: time.Now()}
 	var render api.RenderFunc
 	if newReportRenderer != nil {
 		render = newReportRenderer(b.store, cfg)
 	}
+	ctl := &engineControl{eng: b.engine, st: b.store, cfg: cfg, since: time.Now(), render: render}
 	srv, err := api.New(api.Options{
 		Control: ctl, Records: b.store, Feed: busFeed{b.engine.Bus()}, Render: render,
 		Token: token, Version: version, Logger: log.With("component", "api"), Hosts: listenHosts(cfg.Listen.TCP),
@@ -225,10 +227,16 @@ func (f busFeed) Subscribe(buffer int) (<-chan store.Event, func()) {
 
 // engineControl adapts the engine to the API's Control.
 type engineControl struct {
-	eng   *acquire.Engine
-	st    *store.Store
-	cfg   *config.Config
-	since time.Time
+	eng    *acquire.Engine
+	st     *store.Store
+	cfg    *config.Config
+	since  time.Time
+	render api.RenderFunc // nil: no reports here
+
+	mu         sync.Mutex
+	verdicts   map[string]string // by run id: an ended run's points never change
+	stored     *api.LastRun      // the newest ended run of the store at start-up
+	storedRead bool
 }
 
 func (c *engineControl) currentRun() string { return c.eng.Status().Run }
@@ -241,7 +249,9 @@ func (c *engineControl) Status(context.Context) api.Status {
 		out.State, out.Reason = es.State, es.Reason
 	}
 	if es.Last != nil {
-		out.Last = &api.LastRun{ID: es.Last.Run, State: es.Last.State, Reason: es.Last.Reason}
+		out.Last = &api.LastRun{ID: es.Last.Run, State: es.Last.State, Reason: es.Last.Reason, Verdict: c.verdict(es.Last.Run)}
+	} else if es.Run == "" {
+		out.Last = c.lastStored()
 	}
 	if es.TotalPoints > 0 {
 		out.Progress = float64(es.Points) / float64(es.TotalPoints)
@@ -261,9 +271,16 @@ func (c *engineControl) Status(context.Context) api.Status {
 			out.Step += ": " + es.Phase
 		}
 	}
-	roles := map[string]string{}
+	c.describePlan(&out, es)
+	roles, ids := map[string]string{}, map[string]string{}
 	for _, in := range c.cfg.Instruments {
 		roles[in.Name] = in.Role
+		if in.Role == config.RoleSource {
+			out.Source = true
+		}
+	}
+	for _, d := range c.cfg.Devices {
+		ids[d.Instrument] = d.Device.ID
 	}
 	for _, p := range es.Instruments {
 		// An instrument read by a person is not down while it waits for
@@ -273,9 +290,117 @@ func (c *engineControl) Status(context.Context) api.Status {
 			Name: p.Name, Role: roles[p.Name], Up: up,
 			Reads: p.Reads, Errors: p.Failures, LastPa: p.Last.Pa, LastAt: p.Last.Time,
 			Settled: p.Settled, LastError: p.LastErr, ReadsPerSecond: p.ReadsPerSecond, AskedPerSecond: p.Asked,
+			Device: ids[p.Name], Raw: p.Last.Raw, RawUnit: p.Last.RawUnit, Why: p.Why, Waiting: p.Waiting,
 		})
 	}
 	return out
+}
+
+// describePlan adds the plan, its expected duration, the settle rule and
+// where the run is; times are wall time, so a simulated bench that runs its
+// clock faster shows how long a person waits.
+func (c *engineControl) describePlan(out *api.Status, es acquire.Status) {
+	wall := func(d time.Duration) float64 { return d.Seconds() / c.speed() }
+	for _, st := range c.eng.Plan() {
+		out.Plan = append(out.Plan, api.PlanStep{Kind: string(st.Kind), Cycle: st.Cycle, Direction: string(st.Direction),
+			TargetPa: st.TargetPa, What: st.String()})
+	}
+	if least, most, ok := runLength(c.cfg); ok {
+		out.ExpectedSeconds, out.ExpectedMostSeconds = wall(least), wall(most)
+	}
+	rule := c.cfg.Procedure.Settle
+	out.Settle = &api.SettleRule{WindowSeconds: rule.Window.Seconds(), MaxDriftPaPerS: rule.MaxDriftPaPerS,
+		MaxSpreadPa: rule.MaxSpreadPa, BandPa: rule.BandPa}
+	if es.Run == "" {
+		return
+	}
+	out.StateSince, out.Held = es.Since, es.Held
+	out.Current = &api.StepNow{Index: es.Step, Of: es.Steps, Phase: es.Phase, TargetPa: es.TargetPa, Estimated: es.Estimated}
+	if es.Estimated {
+		out.Current.StepLeftSeconds, out.Current.RunLeftSeconds = wall(es.StepLeft), wall(es.RunLeft)
+	}
+}
+
+// lastStored is the newest run of the store that has ended, for a daemon
+// that has run none itself (status after a restart still shows it).
+// It is read once: until this daemon ends a run, no other one can.
+func (c *engineControl) lastStored() *api.LastRun {
+	c.mu.Lock()
+	done, last := c.storedRead, c.stored
+	c.mu.Unlock()
+	if done {
+		return last
+	}
+	if runs, err := c.st.Runs(); err == nil {
+		for i := len(runs) - 1; i >= 0; i-- {
+			if r := runs[i]; r.State.Terminal() {
+				id := r.ID.String()
+				last = &api.LastRun{ID: id, State: string(r.State), Reason: r.Reason, Verdict: c.verdict(id), Earlier: true}
+				break
+			}
+		}
+	}
+	c.mu.Lock()
+	c.stored, c.storedRead = last, true
+	c.mu.Unlock()
+	return last
+}
+
+// verdict is the decision of an ended run, read from its report once;
+// empty when it has none (no points, no report renderer).
+func (c *engineControl) verdict(id string) string {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if v, ok := c.verdicts[id]; ok {
+		return v
+	}
+	v := ""
+	var b bytes.Buffer
+	if c.render != nil && c.render("json", &b, id, "") == nil {
+		v = verdictOf(b.Bytes())
+	}
+	if c.verdicts == nil {
+		c.verdicts = map[string]string{}
+	}
+	c.verdicts[id] = v
+	return v
+}
+
+// verdictOf reads the decision from a report in JSON: one object, or an
+// array of them when the run calibrated several devices.
+func verdictOf(report []byte) string {
+	type one struct {
+		Info struct {
+			Device struct {
+				ID string `json:"id"`
+			} `json:"device"`
+		} `json:"info"`
+		Result struct {
+			Decision string `json:"decision"`
+		} `json:"result"`
+	}
+	var single one
+	if json.Unmarshal(report, &single) == nil {
+		return single.Result.Decision
+	}
+	var several []one
+	if json.Unmarshal(report, &several) != nil {
+		return ""
+	}
+	parts := make([]string, 0, len(several))
+	for _, d := range several {
+		parts = append(parts, strings.TrimSpace(d.Info.Device.ID+" "+d.Result.Decision))
+	}
+	return strings.Join(parts, ", ")
+}
+
+// speed is how much faster than the wall the acquisition clock runs: the
+// simulated bench's speed, else 1.
+func (c *engineControl) speed() float64 {
+	if usesSimulator(c.cfg) && c.cfg.Simulator.Speed > 1 {
+		return c.cfg.Simulator.Speed
+	}
+	return 1
 }
 
 func (c *engineControl) Start(_ context.Context, req api.StartRequest) (store.RunID, error) {

@@ -32,7 +32,13 @@ configured procedure and prints its id. Follow it with 'plateau tail'.`,
 		if err != nil {
 			return err
 		}
-		fmt.Fprintf(cmd.OutOrStdout(), "run %s started; follow it with: plateau tail --run %s\n", id, id)
+		out := cmd.OutOrStdout()
+		if st, err := c.Status(cmd.Context()); err == nil && st.ExpectedSeconds > 0 {
+			fmt.Fprintf(out, "run %s started: %d steps, %s\n", id, len(st.Plan), expectedText(st))
+		} else {
+			fmt.Fprintf(out, "run %s started\n", id)
+		}
+		fmt.Fprintf(out, "follow it with: plateau tail --run %s, or plateau status\n", id)
 		return nil
 	}
 	return cmd

@@ -140,6 +140,12 @@ func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
 		fmt.Fprintln(w, "run       none (idle)")
 		if l := st.Last; l != nil {
 			fmt.Fprintf(w, "last run  %s %s%s\n", l.ID, l.State, prefixed(": ", l.Reason))
+			if l.Verdict != "" {
+				fmt.Fprintf(w, "verdict   %s\n", strings.ToUpper(l.Verdict))
+			}
+		}
+		if st.ExpectedSeconds > 0 {
+			fmt.Fprintf(w, "a run     %d steps, %s\n", len(st.Plan), expectedText(st))
 		}
 	} else {
 		r := st.Run
@@ -151,9 +157,24 @@ func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
 		if state == "" {
 			state = string(r.State)
 		}
-		fmt.Fprintf(w, "run       %s%s %s%s\n", r.ID, label, state, prefixed(": ", st.Reason))
+		fmt.Fprintf(w, "run       %s%s %s%s%s\n", r.ID, label, state, sinceText(st.StateSince, now), prefixed(": ", st.Reason))
 		// Step already reads "step 3 of 29, …": no label of its own.
 		fmt.Fprintf(w, "progress  %.0f %%%s\n", 100*st.Progress, prefixed(" — ", st.Step))
+		if cur := st.Current; cur != nil && cur.Phase != "" {
+			fmt.Fprintf(w, "target    %s%s\n", show.withUnit(cur.TargetPa), settleText(st.Settle, show))
+		}
+		if cur := st.Current; cur != nil && cur.Estimated {
+			fmt.Fprintf(w, "left      this step ~%s, the run ~%s (the plan, scaled by how long the steps so far took)\n",
+				roundDuration(seconds(cur.StepLeftSeconds)), roundDuration(seconds(cur.RunLeftSeconds)))
+		}
+		for _, in := range st.Instruments {
+			switch {
+			case in.Waiting != "":
+				fmt.Fprintf(w, "waiting   %s: a dial reading for %s (plateau enter VALUE)\n", instrumentName(in), in.Waiting)
+			case st.Current != nil && st.Current.Phase != "" && !in.Settled && in.Why != "" && in.Role != config.RoleSource:
+				fmt.Fprintf(w, "waiting   %s: %s\n", instrumentName(in), in.Why)
+			}
+		}
 	}
 	if st.Trip != "" {
 		fmt.Fprintf(w, "SAFETY    tripped: %s — no setpoint is sent until a person resumes or starts a run\n", st.Trip)
@@ -185,13 +206,57 @@ func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
 		if in.Settled {
 			settled = "yes"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%d\t%s\n", in.Name, in.Role, state, last, settled, in.Reads, failures(in.Errors))
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%d\t%s\n", instrumentName(in), in.Role, state, last, settled, in.Reads, failures(in.Errors))
 		if in.LastError != "" {
 			fmt.Fprintf(tw, "\t\t\t└ %s\t\t\t\n", in.LastError)
 		}
 	}
 	tw.Flush()
 }
+
+// instrumentName is an instrument's name, with the identity of the device
+// under test it reads: "dut (PG-0421)".
+func instrumentName(in api.InstrumentInfo) string {
+	if in.Device != "" && in.Device != in.Name {
+		return in.Name + " (" + in.Device + ")"
+	}
+	return in.Name
+}
+
+// sinceText says since when a run has been in its state, as the time of
+// day (the acquisition clock's, as tail shows it) and how long ago.
+func sinceText(at, now time.Time) string {
+	if at.IsZero() {
+		return ""
+	}
+	s := " since " + at.Local().Format("15:04:05")
+	if ago := now.Sub(at); ago >= time.Second {
+		s += " (" + roundDuration(ago) + " ago)"
+	}
+	return s
+}
+
+// settleText is the settle rule a step waits for.
+func settleText(r *api.SettleRule, show display) string {
+	if r == nil || r.WindowSeconds <= 0 {
+		return ""
+	}
+	mean := func(pa float64) string { return show.mean(pa) + " " + show.unit.Symbol }
+	s := fmt.Sprintf("; settled when steady over %s: drift within %s/min, scatter within %s", roundDuration(seconds(r.WindowSeconds)),
+		mean(60*r.MaxDriftPaPerS), mean(r.MaxSpreadPa))
+	if r.BandPa > 0 {
+		s += ", mean within " + mean(r.BandPa) + " of the target"
+	}
+	return s
+}
+
+// expectedText is how long a whole run takes by its plan.
+func expectedText(st api.Status) string {
+	return fmt.Sprintf("at least %s, at most %s (reaching each pressure comes on top)",
+		roundDuration(seconds(st.ExpectedSeconds)), roundDuration(seconds(st.ExpectedMostSeconds)))
+}
+
+func seconds(s float64) time.Duration { return time.Duration(s * float64(time.Second)) }
 
 // displayUnit is the device's unit, or kPa when it has none or is unknown.
 func displayUnit(symbol string) units.Unit {

@@ -38,7 +38,24 @@ func newPauseCmd() *cobra.Command {
 	}
 	df := addDaemonFlags(cmd)
 	cmd.RunE = func(cmd *cobra.Command, _ []string) error {
-		return runControl(cmd, df, "paused", (*api.Client).Pause)
+		c, err := df.client(cmd)
+		if err != nil {
+			return err
+		}
+		if err := c.Pause(cmd.Context()); err != nil {
+			return err
+		}
+		st, err := c.Status(cmd.Context())
+		if err != nil {
+			fmt.Fprintln(cmd.OutOrStdout(), "run paused")
+			return err
+		}
+		show, err := statusDisplay(st.Unit, "")
+		if err != nil {
+			return err
+		}
+		fmt.Fprintln(cmd.OutOrStdout(), pausedText(st, show))
+		return nil
 	}
 	return cmd
 }
@@ -68,4 +85,29 @@ func runControl(cmd *cobra.Command, df *daemonFlags, done string, call func(*api
 	}
 	fmt.Fprintf(cmd.OutOrStdout(), "run %s\n", done)
 	return nil
+}
+
+// pausedText says what became of the run and of the pressure on the bench.
+func pausedText(st api.Status, show display) string {
+	where := ""
+	if cur := st.Current; cur != nil {
+		where = fmt.Sprintf(" at step %d of %d", cur.Index+1, cur.Of)
+	}
+	id := ""
+	if st.Run != nil {
+		id = " " + st.Run.ID
+	}
+	switch {
+	case st.Trip != "":
+		return fmt.Sprintf("run%s paused%s; the pressure is NOT held: the safety guard vented the source (%s)", id, where, st.Trip)
+	case !st.Source:
+		return fmt.Sprintf("run%s paused%s; plateau drives no pressure source here: the pressure is whatever the bench holds", id, where)
+	case !st.Held:
+		return fmt.Sprintf("run%s paused%s; the pressure is NOT held: the source was vented (%s)", id, where, st.Reason)
+	}
+	held := "the pressure is held: the controller keeps its setpoint"
+	if cur := st.Current; cur != nil && cur.Phase != "" {
+		held += " of " + show.withUnit(cur.TargetPa)
+	}
+	return fmt.Sprintf("run%s paused%s; %s; 'plateau resume' carries it on, 'plateau stop' vents and ends it", id, where, held)
 }

@@ -305,25 +305,47 @@ function onStatus(st) {
 function renderHeader(st) {
   const r = st.run;
   $("run-line").textContent = r ? "run " + r.id + (r.label ? " · " + r.label : "") + " · " + r.state + (st.reason ? " (" + st.reason + ")" : "")
-    : st.last ? "idle · last run " + st.last.id + " " + st.last.state : "idle";
+    : st.last ? "idle · last run " + st.last.id + " " + st.last.state + (st.last.verdict ? " · " + st.last.verdict.toUpperCase() : "") : "idle";
   const p = r ? st.progress : st.last && st.last.state === "finished" ? 1 : 0;
   $("progress-bar").style.width = (100 * p).toFixed(1) + "%";
-  // Expected end: the time so far stretched to the whole plan.
-  if (r && p > 0.02 && p < 1 && r.state === "running") {
-    const t0 = Date.parse(r.created), now = Date.now();
-    $("eta").textContent = Math.round(100 * p) + " % · ends about " + new Date(t0 + (now - t0) / p).toLocaleTimeString();
+  // Expected end: the daemon's estimate from the plan and the steps so far.
+  const cur = st.current;
+  if (r && cur && cur.estimated && r.state === "running") {
+    $("eta").textContent = Math.round(100 * p) + " % · step ~" + span(cur.step_left_seconds) + " · ends about " +
+      new Date(Date.now() + 1000 * cur.run_left_seconds).toLocaleTimeString();
   } else {
     $("eta").textContent = r ? Math.round(100 * p) + " %" : "";
   }
+  let target = "";
+  if (r && cur && cur.phase) {
+    target = "target " + fmt(cur.target_pa);
+    const rule = st.settle;
+    if (rule) target += " · settled when steady over " + span(rule.window_seconds);
+  } else if (!r && st.expected_seconds) {
+    target = "a run: " + (st.plan || []).length + " steps, at least " + span(st.expected_seconds) +
+      (st.source ? "" : " · no pressure source: pressures are set by hand");
+  }
+  $("target-line").textContent = target;
+}
+
+// span writes a duration in seconds the way people say it: 45 s, 12 min, 2 h 5 min.
+function span(s) {
+  s = Math.max(0, Math.round(s));
+  if (s < 120) return s + " s";
+  const m = Math.round(s / 60);
+  return m < 120 ? m + " min" : Math.floor(m / 60) + " h " + (m % 60) + " min";
 }
 
 function renderInstruments(st) {
   const rows = st.instruments.map((i) => {
-    const waiting = !i.up ? (i.last_error || "no reading") : i.settled ? "settled" : i.role === "source" ? "—" : "waiting to settle";
+    const waiting = !i.up ? (i.last_error || "no reading") : i.waiting ? "waits for a dial reading: " + i.waiting
+      : i.settled ? "settled" : i.role === "source" ? "—" : i.why || "waiting to settle";
+    // As the instrument gave it, in fixed notation (never 1e-7).
+    const asRead = i.last_at && i.raw_unit ? i.raw.toLocaleString("en", { maximumFractionDigits: 9, useGrouping: false }) + " " + i.raw_unit : "—";
     return el("tr", { "data-name": i.name },
-      el("td", {}, i.name), el("td", {}, i.role || ""),
+      el("td", {}, i.device ? i.name + " (" + i.device + ")" : i.name), el("td", {}, i.role || ""),
       el("td", { class: "num reading" }, i.last_at ? fmt(i.last_pa) : "—"),
-      el("td", { class: "num" }, i.last_at ? i.last_pa.toFixed(1) : "—"),
+      el("td", { class: "num raw" }, asRead),
       el("td", { class: i.up ? "up-yes" : "up-no" }, i.up ? "up" : "down"),
       el("td", {}, waiting), el("td", {}, clock(i.last_at)));
   });

@@ -1,0 +1,85 @@
+package main
+
+import (
+	"context"
+	"os/exec"
+	"path/filepath"
+	"regexp"
+	"strings"
+	"testing"
+	"time"
+
+	"plateau/acquire/api"
+)
+
+// A technician's day on the simulated bench, as processes: a run in the
+// foreground; runs, report and verify on the store with no daemon; then the
+// daemon: status shows the last run and its verdict, start says how long a
+// run takes, status shows the target, the settle rule and the time left,
+// pause says the pressure is held, backup copies the store while the daemon
+// runs, tail names the device of each point. No output meant for a person
+// holds scientific notation.
+func TestTechniciansDayAsProcesses(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs two calibrations and the daemon as processes")
+	}
+	dir := t.TempDir()
+	bin := plateauBinary(t)
+	cfgPath := simConfig(t, dir, "day",
+		"points: [0 %, 20 %, 40 %, 60 %, 80 %, 100 %]", "points: [0 %, 50 %, 100 %]",
+		"cycles: 2", "cycles: 1", "exercise: 1", "exercise: 0")
+	ctx, cancel := context.WithTimeout(context.Background(), 4*time.Minute)
+	defer cancel()
+	plateau := func(args ...string) string {
+		t.Helper()
+		line := "plateau " + strings.Join(args, " ")
+		cmd := exec.CommandContext(ctx, bin, append([]string{"-c", cfgPath}, args...)...)
+		cmd.Env, cmd.Dir = cleanEnv(), dir
+		out, err := cmd.CombinedOutput()
+		if err != nil {
+			t.Fatalf("%s: %v\n%s", line, err, out)
+		}
+		checkHuman(t, line, string(out))
+		return string(out)
+	}
+	has := func(line, out string, want ...string) {
+		t.Helper()
+		for _, w := range want {
+			if !regexp.MustCompile(w).MatchString(out) {
+				t.Errorf("%s: no %q in\n%s", line, w, out)
+			}
+		}
+	}
+
+	has("run", plateau("run"), `VERDICT: `)
+	has("runs", plateau("runs"), `r000001\s+finished`)
+	has("runs last", plateau("runs", "last"), `CYCLE`)
+	has("report last", plateau("report", "last"), `VERDICT: `)
+	has("verify", plateau("verify"), `OK — 1 runs`)
+
+	d := startDaemon(t, ctx, bin, cfgPath, filepath.Join(dir, "serve.log"))
+	c := api.NewUnixClient(filepath.Join(dir, "day.sock"), "")
+	waitReady(t, ctx, c)
+	has("status after a restart", plateau("status"), `last run  r000001 finished`, `verdict   (PASS|FAIL|CONDITIONAL)`, `a run     \d+ steps, at least`)
+	has("start", plateau("start"), `run r000002 started: \d+ steps, at least \S+, at most`)
+	waitStatus(t, ctx, c, "a capture step", func(st api.Status) bool {
+		return st.Current != nil && st.Current.Phase != "" && st.Current.Estimated
+	})
+	has("status while running", plateau("status"), `run       r000002 running since`, `target    \d+\.\d\d bar; settled when steady over 10s`, `left      this step ~`)
+	has("pause", plateau("pause"), `paused at step \d+ of \d+; the pressure is held`)
+	has("status while paused", plateau("status"), `r000002 paused since \d\d:\d\d:\d\d`)
+	has("backup", plateau("backup", filepath.Join(dir, "copy.db")), `.`)
+	has("verify the copy", plateau("verify", "--store", filepath.Join(dir, "copy.db")), `OK — 2 runs`)
+	plateau("resume")
+	waitStatus(t, ctx, c, "the run to end", func(st api.Status) bool { return st.Run == nil && st.Last != nil && st.Last.ID == "r000002" })
+	has("status after the run", plateau("status"), `last run  r000002 finished`, `verdict   `)
+
+	tailCtx, stopTail := context.WithTimeout(ctx, 3*time.Second)
+	defer stopTail()
+	tail := exec.CommandContext(tailCtx, bin, "-c", cfgPath, "tail", "-n", "200")
+	tail.Env = cleanEnv()
+	out, _ := tail.CombinedOutput() // ended by its context: it follows for ever
+	checkHuman(t, "plateau tail", string(out))
+	has("tail", string(out), `r000002 dut\s+captured cycle 1 up point 1: reference \d+\.\d\d bar, device \d+\.\d\d bar`)
+	stopDaemon(t, d)
+}
