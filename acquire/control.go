@@ -58,6 +58,10 @@ type Status struct {
 	StepLeft  time.Duration `json:"step_left_ns"`
 	RunLeft   time.Duration `json:"run_left_ns"`
 	Estimated bool          `json:"estimated"`
+	// Held says that the run is paused with the source holding the step's
+	// pressure (an operator's pause); a trip, a store fault and a restart
+	// vent it instead.
+	Held bool `json:"held"`
 	// PointsCommitted counts points committed since the engine started.
 	PointsCommitted uint64 `json:"points_committed"`
 	// Last is the run that ended most recently in this process.
@@ -79,6 +83,7 @@ func (e *Engine) Status() Status {
 		s.Run, s.State, s.Reason, s.Since = v.ID.String(), string(v.State), v.Reason, v.Since
 		s.Step, s.Points, s.Phase, s.TargetPa = v.Step, v.Points, v.Phase, v.Target
 		s.StepLeft, s.RunLeft, s.Estimated = e.remaining(v, e.clk.Now())
+		s.Held = v.Held && v.State == store.StatePaused
 	}
 	if l := e.runs.last.Load(); l != nil {
 		s.Last = &LastRun{Run: l.ID.String(), State: string(l.State), Reason: l.Reason}
@@ -195,6 +200,9 @@ func (e *Engine) Stop(reason string) error {
 
 // Pause holds the run at the current step; the pressure is held where it is.
 func (e *Engine) Pause() error {
+	if e.source == nil {
+		return e.pause("paused by operator", slog.LevelInfo)
+	}
 	return e.pause("paused by operator; the pressure is held", slog.LevelInfo)
 }
 
@@ -207,6 +215,13 @@ func (e *Engine) pause(why string, level slog.Level) error {
 		return nil
 	}
 	err := e.runs.setState(r.id, store.StatePaused, why, e.clk.Now())
+	// Only this pause leaves the source at its setpoint: a trip, a store
+	// fault and a restart vent it.
+	e.runs.update(func(v *runView) {
+		if v.ID == r.id {
+			v.Held = e.source != nil
+		}
+	})
 	e.emit(r.id, level, "state", "", why, map[string]string{"state": string(store.StatePaused)})
 	return err
 }
@@ -398,8 +413,13 @@ func (e *Engine) resumeUnfinished() error {
 		e.emit(r.ID, slog.LevelError, "state", "", fmt.Sprintf("run %s not resumed: %s", r.ID, reason), map[string]string{"state": string(store.StateFailed)})
 		return nil
 	}
+	why := r.Reason
+	if r.State == store.StatePaused {
+		// The daemon vented the source when it stopped: nothing is held now.
+		why = strings.TrimSuffix(why, "; the pressure is held") + "; the source was vented when the daemon stopped"
+	}
 	e.runs.mu.Lock()
-	e.launch(r.ID, c.Step, r.State == store.StatePaused, r.Reason)
+	e.launch(r.ID, c.Step, r.State == store.StatePaused, why)
 	e.runs.mu.Unlock()
 	total := len(e.steps)
 	msg := fmt.Sprintf("resuming %s at step %d of %d after a restart", r.ID, c.Step+1, total)
@@ -407,7 +427,7 @@ func (e *Engine) resumeUnfinished() error {
 		msg = fmt.Sprintf("resuming the free run %s after a restart", r.ID)
 	}
 	if r.State == store.StatePaused {
-		msg += " (still paused: " + r.Reason + ")"
+		msg += " (still paused: " + why + ")"
 	}
 	e.emit(r.ID, slog.LevelInfo, "state", "", msg, nil)
 	return nil
