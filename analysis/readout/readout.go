@@ -109,10 +109,16 @@ func isNegativeZero(s string) bool {
 // Plain is a value in its own unit (an instrument's raw reading, a loop
 // current) with the decimals of a resolution in that same unit; 0 for an
 // unknown resolution.
-// Without a resolution it is written exactly as read, in fixed notation.
+// Without a resolution it is written exactly as read, in fixed notation:
+// a value an instrument sent as a 32-bit float (it widens to a float64
+// exactly) gets the shortest digits of that float, so a register holding
+// 0.00014 reads "0.00014", not "0.00014000000373926014".
 func Plain(v, resolution float64) string {
 	if d := Decimals(resolution, units.Pascal); d >= 0 || math.IsNaN(v) || math.IsInf(v, 0) {
 		return format(v, d)
+	}
+	if float64(float32(v)) == v {
+		return strconv.FormatFloat(v, 'f', -1, 32)
 	}
 	return strconv.FormatFloat(v, 'f', -1, 64)
 }

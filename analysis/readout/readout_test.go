@@ -91,6 +91,11 @@ func TestPlain(t *testing.T) {
 		{12.5, 0.01, "12.50"},
 		{1e-7, 0, "0.0000001"},
 		{4e6, 0, "4000000"},
+		// A float32 register as read, widened: the float's own digits.
+		{float64(float32(0.00014)), 0, "0.00014"},
+		{float64(float32(-0.15)), 0, "-0.15"},
+		// A decimal reply parsed as a float64 keeps all its digits.
+		{0.1234567891, 0, "0.1234567891"},
 	}
 	for _, c := range cases {
 		if got := Plain(c.v, c.res); got != c.want {
