@@ -56,8 +56,17 @@ type Error struct {
 	Message string
 }
 
+// Error says in words whether the daemon refused the call (it is fine,
+// the request is not possible or not allowed) or failed at it; the HTTP
+// status is for whoever debugs the daemon, so it comes last.
 func (e *Error) Error() string {
-	return fmt.Sprintf("daemon answered %d %s: %s", e.Status, http.StatusText(e.Status), e.Message)
+	switch {
+	case e.Status == http.StatusUnauthorized || e.Status == http.StatusForbidden:
+		return fmt.Sprintf("the daemon refused the call: %s (not authorised, HTTP %d)", e.Message, e.Status)
+	case e.Status >= 500:
+		return fmt.Sprintf("the daemon failed: %s (HTTP %d)", e.Message, e.Status)
+	}
+	return fmt.Sprintf("the daemon refused: %s", e.Message)
 }
 
 // IsStatus reports whether err is a daemon refusal with the given status.

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"os"
 	"os/exec"
 	"path/filepath"
 	"regexp"
@@ -10,6 +11,7 @@ import (
 	"time"
 
 	"plateau/acquire/api"
+	"plateau/acquire/store"
 )
 
 // A technician's day on the simulated bench, as processes: a run in the
@@ -81,5 +83,51 @@ func TestTechniciansDayAsProcesses(t *testing.T) {
 	out, _ := tail.CombinedOutput() // ended by its context: it follows for ever
 	checkHuman(t, "plateau tail", string(out))
 	has("tail", string(out), `r000002 dut\s+captured cycle 1 up point 1: reference \d+\.\d\d bar, device \d+\.\d\d bar`)
+	stopDaemon(t, d)
+}
+
+// A run with no points yet: report says so plainly, on the store and
+// through the daemon, and the daemon does not fail at it.
+func TestReportOfARunWithoutPoints(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs the program and the daemon as processes")
+	}
+	dir := t.TempDir()
+	bin := plateauBinary(t)
+	cfgPath := simConfig(t, dir, "empty")
+	st, err := store.Open(filepath.Join(dir, "empty.db"), store.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	yaml, err := os.ReadFile(cfgPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	run, err := st.CreateRun("nothing captured", yaml)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := st.SetState(run.ID, store.StateStopped, "stopped by operator"); err != nil {
+		t.Fatal(err)
+	}
+	if err := st.Close(); err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	report := func(how string) {
+		t.Helper()
+		cmd := exec.CommandContext(ctx, bin, "-c", cfgPath, "report", "last")
+		cmd.Env = cleanEnv()
+		out, err := cmd.CombinedOutput()
+		if err == nil || !strings.Contains(string(out), "r000001 has no captured points yet (stopped: stopped by operator): nothing to evaluate") ||
+			strings.Contains(string(out), "failed") || strings.Contains(string(out), "500") {
+			t.Errorf("report of a run without points, %s: %v\n%s", how, err, out)
+		}
+	}
+	report("on the store")
+	d := startDaemon(t, ctx, bin, cfgPath, filepath.Join(dir, "serve.log"))
+	waitReady(t, ctx, api.NewUnixClient(filepath.Join(dir, "empty.sock"), ""))
+	report("through the daemon")
 	stopDaemon(t, d)
 }

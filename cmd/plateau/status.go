@@ -141,7 +141,11 @@ func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
 		if l := st.Last; l != nil {
 			fmt.Fprintf(w, "last run  %s %s%s\n", l.ID, l.State, prefixed(": ", l.Reason))
 			if l.Verdict != "" {
-				fmt.Fprintf(w, "verdict   %s\n", strings.ToUpper(l.Verdict))
+				note := ""
+				if l.State != "finished" {
+					note = " — on the points captured before the run " + l.State + "; the calibration is incomplete"
+				}
+				fmt.Fprintf(w, "verdict   %s%s\n", strings.ToUpper(l.Verdict), note)
 			}
 		}
 		if st.ExpectedSeconds > 0 {

@@ -38,6 +38,8 @@ func TestStatusGoldenTechniciansView(t *testing.T) {
 	idle := api.Status{Version: "1.2.0", Since: now.Add(-3 * time.Hour), PointsCaptured: 28, Unit: "bar", LastEventID: 120,
 		Last: &api.LastRun{ID: "r000002", State: "finished", Reason: "every step done", Verdict: "conditional pass"},
 		Plan: plan, ExpectedSeconds: 475, ExpectedMostSeconds: 8580, Settle: rule}
+	stopped := idle
+	stopped.Last = &api.LastRun{ID: "r000002", State: "stopped", Reason: "stopped by operator", Verdict: "pass", Earlier: true}
 	for _, c := range []struct {
 		name string
 		st   api.Status
@@ -74,6 +76,13 @@ pg1 (PG-0421)  device     up     6.41 bar (1s ago)  yes      5000   0
 run       none (idle)
 last run  r000002 finished: every step done
 verdict   CONDITIONAL PASS
+a run     29 steps, at least 7m55s, at most 2h23m (reaching each pressure comes on top)
+points    28 captured since the daemon started; last event 120
+`},
+		{"after a stopped run", stopped, `daemon    plateau 1.2.0, up 3h0m0s
+run       none (idle)
+last run  r000002 stopped: stopped by operator
+verdict   PASS — on the points captured before the run stopped; the calibration is incomplete
 a run     29 steps, at least 7m55s, at most 2h23m (reaching each pressure comes on top)
 points    28 captured since the daemon started; last event 120
 `},
