@@ -13,8 +13,8 @@ import (
 )
 
 // A transmitter's output may be recorded as it was read, in mA: the
-// optional column dut_unit names the unit of the dut column when it is not
-// the row's unit, and "mA" makes it a loop current. A current needs the
+// optional column dut_unit, "mA" on such a row, makes the dut column a loop
+// current (blank: a pressure in the row's unit). A current needs the
 // loop range — the pressures of 4 and 20 mA — from the command line or
 // from a line before the header of the table:
 //
@@ -134,8 +134,8 @@ func sameLoop(a, b Loop) bool {
 	return math.Abs(a.LowerPa-b.LowerPa) <= slack && math.Abs(a.UpperPa-b.UpperPa) <= slack
 }
 
-// dut reads the row's dut value in Pa: in the row's unit (pressure), in
-// the unit dut_unit names, or as a loop current that flags p.
+// dut reads the row's dut value in Pa: a pressure in the row's unit, or a
+// loop current (dut_unit mA) that flags p.
 func (t *table) dut(field func(string) (string, int), pressure func(string, bool) float64, p *analysis.Point) float64 {
 	unit, ui := field("dut_unit")
 	if unit == "" {
@@ -148,17 +148,8 @@ func (t *table) dut(field func(string) (string, int), pressure func(string, bool
 		return 0
 	}
 	if unit != "mA" {
-		u, err := units.Lookup(unit)
-		if err != nil {
-			t.problem(ui, "%v (or mA for a transmitter's output current)", err)
-			return 0
-		}
-		pa := u.ToPa(v)
-		if math.IsInf(pa, 0) {
-			t.problem(i, "%q %s is too large", s, u.Symbol)
-			return 0
-		}
-		return pa
+		t.problem(ui, "%q: dut_unit is for a transmitter's output current, mA (a pressure takes the row's unit)", unit)
+		return 0
 	}
 	loop := t.opt.Loop
 	if loop == nil {
