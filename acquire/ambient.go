@@ -165,6 +165,11 @@ func (b *ambientBook) barometric() (float64, error) {
 	if age := b.clk.Now().Sub(at); age > freshBarometric {
 		return 0, fmt.Errorf("%w: the last of %s is %s old", errNoBarometric, b.baro.name, age.Round(time.Second))
 	}
+	// A barometer that reads wrong would move the safety guard's view of
+	// the pressure by as much: one outside any laboratory's air is not used.
+	if lim := plausible[units.Barometric]; v < lim[0] || v > lim[1] {
+		return 0, fmt.Errorf("%w: %s reads %s, which no laboratory's air has: check its unit and scale", errNoBarometric, b.baro.name, analysis.AmbientText(units.Barometric, v))
+	}
 	return v, nil
 }
 
@@ -175,9 +180,9 @@ func (b *ambientBook) convert(in Instruments) Instruments {
 		if !b.cfg.Converted(inst) {
 			continue
 		}
-		sign := 1.0 // an absolute reading made gauge: p_gauge = p_abs − p_baro
+		sign := 1.0 // a gauge reading made absolute: p_abs = p_gauge + p_baro
 		if config.InstrumentMode(inst) == config.ModeAbsolute {
-			sign = -1
+			sign = -1 // an absolute one made gauge: p_gauge = p_abs − p_baro
 		}
 		switch {
 		case inst.Role == config.RoleReference && inst.Name == in.Reference.Name && in.Reference.Gauge != nil:

@@ -83,6 +83,11 @@ func TestBarometerConverts(t *testing.T) {
 	if err := in.Source.SetPoint(context.Background(), 4e5); err != nil || len(src.set) != 1 || src.set[0] != 4e5+101000 {
 		t.Fatalf("setpoint 4 bar gauge sent as %v (%v), want %g Pa absolute", src.set, err, 4e5+101000)
 	}
+	observe(drivers.Reading{Time: clk.Now(), Pa: 1013}, nil) // 1013 Pa: a barometer scaled wrong
+	if _, err := ref.Read(context.Background()); !errors.Is(err, errNoBarometric) || !strings.Contains(err.Error(), "10.13 hPa, which no laboratory's air has") {
+		t.Errorf("an implausible barometric reading was used: %v", err)
+	}
+	observe(drivers.Reading{Time: clk.Now(), Pa: 101000}, nil)
 	clk.Advance(freshBarometric + time.Second)
 	if _, err := ref.Read(context.Background()); !errors.Is(err, errNoBarometric) {
 		t.Errorf("stale barometer: %v", err)
