@@ -131,3 +131,30 @@ func TestReportOfARunWithoutPoints(t *testing.T) {
 	report("through the daemon")
 	stopDaemon(t, d)
 }
+
+// Everything a person reads of a demo run: what demo prints, and the text
+// of the HTML report it writes (its tables and the labels of its charts,
+// not their drawing instructions), in fixed notation.
+func TestDemoHasNoScientificNotation(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs a whole demo calibration")
+	}
+	dir := t.TempDir()
+	cmd := exec.Command(plateauBinary(t), "demo", "--dir", filepath.Join(dir, "demo"))
+	cmd.Env, cmd.Dir = cleanEnv(), dir
+	out, err := cmd.CombinedOutput()
+	if err != nil {
+		t.Fatalf("demo: %v\n%s", err, out)
+	}
+	checkHuman(t, "plateau demo", string(out))
+	html, err := os.ReadFile(filepath.Join(dir, "demo", "report.html"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := regexp.MustCompile(`(?s)<(script|style)\b.*?</(script|style)>`).ReplaceAllString(string(html), " ")
+	text = regexp.MustCompile(`<[^>]*>`).ReplaceAllString(text, " ")
+	if !strings.Contains(text, "VERDICT") && !strings.Contains(strings.ToUpper(text), "PASS") {
+		t.Fatalf("the report's text holds no verdict:\n%.2000s", text)
+	}
+	checkHuman(t, "the demo's report.html", text)
+}
