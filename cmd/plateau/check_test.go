@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"plateau/config"
 )
 
 // runCheck runs the built program's check on path with extra environment
@@ -124,5 +126,34 @@ func TestVersionCommand(t *testing.T) {
 	first, _, _ := strings.Cut(string(cmd), "\n")
 	if strings.TrimSpace(string(flag)) != first || !strings.Contains(string(cmd), "go1.") {
 		t.Fatalf("plateau version:\n%s\nplateau --version:\n%s", cmd, flag)
+	}
+}
+
+// What check prints of a clean file, whole: pressures in the device's unit
+// with the digits of its resolution, the plan's duration, the store.
+func TestCheckDescribesGolden(t *testing.T) {
+	cfg, err := config.Load("../../testdata/config/sim.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var b strings.Builder
+	describe(&b, cfg)
+	// sim.yaml: one exercise (10s dwell, 5s hold at the bottom), 2 cycles ×
+	// 14 captures × (5s hold + 10s window, or 5m time-out), 20s at the top
+	// of each cycle; the simulated clock runs 20× faster.
+	want := `  device under test  DEMO-16, 0.00 bar … 16.00 bar, resolution 0.01 bar
+  reference          SIM-REF, U = 0.01 % of reading + 0.1 mbar (k = 2)
+  instrument         ref          reference sim
+  instrument         dut          device    sim
+  instrument         controller   source    sim
+  procedure          plan: 6 points × 2 cycle(s), 1 exercise cycle(s), decision rule four-state
+  points             0.00 bar, 3.20 bar, 6.40 bar, 9.60 bar, 12.80 bar, 16.00 bar
+  safety limit       16.50 bar
+  duration           at least 7m55s (holds and settle windows), at most 2h23m (every point to its time-out); reaching each pressure comes on top
+                     the simulated bench runs 20× faster: at least 24s of wall time
+  store              plateau-sim.db
+`
+	if got := trimTrailing(b.String()); got != want {
+		t.Errorf("got\n%s\nwant\n%s", got, want)
 	}
 }
