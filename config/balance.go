@@ -7,6 +7,8 @@ import (
 	"strings"
 
 	"plateau/analysis/balance"
+	"plateau/analysis/readout"
+	"plateau/analysis/units"
 )
 
 // Balance is the balance: section of the reference instrument when the
@@ -179,7 +181,43 @@ func (c *Config) validateBalance(p *Problems, key string, b *Balance) {
 	number("gravity_uncertainty", b.GravityUncertainty, 0, 0.01, "must be an uncertainty in m/s², from 0 to 0.01")
 	b.validateAir(p, k)
 	b.validateTemperature(c, p, k)
-	b.validateMasses(p, k)
+	before := p.Errors()
+	if b.validateMasses(p, k) && p.Errors() == before {
+		c.compareCertificate(p, b)
+	}
+}
+
+// compareCertificate warns when the reference: section states a smaller
+// uncertainty than the balance's own budget gives with the piston alone
+// and with every piece loaded (at the reference temperature): a run takes
+// the reference's uncertainty from that section.
+func (c *Config) compareCertificate(p *Problems, b *Balance) {
+	s := b.Setup()
+	if s.Validate() != nil {
+		return
+	}
+	r := c.Reference
+	unit, err := units.Lookup(c.Device.Unit)
+	if err != nil {
+		unit = units.Pascal
+	}
+	for _, load := range [][]MassPiece{b.Masses[:1], b.Masses} {
+		cond := b.LevelConditions()
+		cond.PistonTempC = s.Piston.RefTempC
+		for _, m := range load {
+			cond.Loaded = append(cond.Loaded, m.ID)
+		}
+		res, err := s.Pressure(cond)
+		if err != nil {
+			return
+		}
+		stated := r.UncertaintyPct/100*math.Abs(res.LevelPa) + r.FloorPa
+		if u := res.Expanded(2); stated < u*(1-1e-9) {
+			p.warn("reference.uncertainty", r.Uncertainty, "states %s at %s (%s loaded), but the pressure balance's own budget gives an expanded uncertainty of %s there (k = 2): a run takes the reference's uncertainty from the reference: section",
+				readout.WithUnit(stated, unit, u/100), readout.WithUnit(res.LevelPa, unit, c.Device.ResolutionPa), strings.Join(cond.Loaded, "+"), readout.WithUnit(u, unit, u/100))
+			return
+		}
+	}
 }
 
 func (b *Balance) validateAir(p *Problems, k func(string) string) {
@@ -246,10 +284,11 @@ func (b *Balance) validateTemperature(c *Config, p *Problems, k func(string) str
 	}
 }
 
-func (b *Balance) validateMasses(p *Problems, k func(string) string) {
+// validateMasses judges the mass set; it says whether there is one.
+func (b *Balance) validateMasses(p *Problems, k func(string) string) bool {
 	if len(b.Masses) == 0 {
 		p.bad(k("masses"), "", "is required: every piece of the mass set with its id and mass (the piston and its carrier are pieces too)")
-		return
+		return false
 	}
 	seen := map[string]int{}
 	for i := range b.Masses {
@@ -288,6 +327,7 @@ func (b *Balance) validateMasses(p *Problems, k func(string) string) {
 			p.bad(mk("density_uncertainty"), fmtNum(m.DensityUncertainty), "must be an uncertainty in kg/m³, from 0 to 5000")
 		}
 	}
+	return true
 }
 
 // Setup is the balance as analysis/balance takes it: SI units, standard
