@@ -14,6 +14,7 @@ import (
 // ambientView is the ambient conditions and the pressure modes of a run
 // as the report shows them; nil when the run has neither.
 type ambientView struct {
+	Unit string // of the nominal pressures
 	// Modes says what the device and the reference read and, when they
 	// differ, which barometer converted the reference.
 	Modes string
@@ -39,7 +40,7 @@ type ambientCell struct {
 const outsideMark = " (outside)"
 
 func ambientViewOf(n numbers, res analysis.Result) *ambientView {
-	v := &ambientView{Modes: modesText(res)}
+	v := &ambientView{Unit: n.u.Symbol, Modes: modesText(res)}
 	a := res.Ambient
 	if a == nil {
 		if v.Modes == "" {
@@ -156,7 +157,7 @@ const ambientSource = `
 {{- end}}
 {{- if .Columns}}
 <table>
-<thead><tr><th class="num">#</th><th class="num">nominal</th>{{range .Columns}}<th class="num">{{.}}</th>{{end}}</tr></thead>
+<thead><tr><th class="num">#</th><th class="num">nominal<br>{{.Unit}}</th>{{range .Columns}}<th class="num">{{.}}</th>{{end}}</tr></thead>
 <tbody>
 {{- range .Rows}}
 <tr><td class="num">{{.Index}}</td><td class="num">{{.Nominal}}</td>{{range .Values}}<td class="num{{if .Outside}} o-fail{{end}}">{{.Value}}{{if .Outside}} (outside){{end}}</td>{{end}}</tr>
