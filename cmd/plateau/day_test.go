@@ -76,11 +76,7 @@ func TestTechniciansDayAsProcesses(t *testing.T) {
 	waitStatus(t, ctx, c, "the run to end", func(st api.Status) bool { return st.Run == nil && st.Last != nil && st.Last.ID == "r000002" })
 	has("status after the run", plateau("status"), `last run  r000002 finished`, `verdict   `)
 
-	tailCtx, stopTail := context.WithTimeout(ctx, 3*time.Second)
-	defer stopTail()
-	tail := exec.CommandContext(tailCtx, bin, "-c", cfgPath, "tail", "-n", "200")
-	tail.Env = cleanEnv()
-	out, _ := tail.CombinedOutput() // ended by its context: it follows for ever
+	out := tailFor(ctx, bin, cfgPath, 200, 3*time.Second)
 	checkHuman(t, "plateau tail", string(out))
 	has("tail", string(out), `r000002 dut\s+captured cycle 1 up point 1: reference \d+\.\d\d bar, device \d+\.\d\d bar`)
 	stopDaemon(t, d)

@@ -6,6 +6,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -54,11 +55,7 @@ func TestTailShowsLinkLostAndRestored(t *testing.T) {
 	if !lost || !restored {
 		t.Fatalf("link events of ref: lost %t, restored %t (%v)\n%s", lost, restored, err, readFile(filepath.Join(dir, "serve.log")))
 	}
-	tailCtx, stopTail := context.WithTimeout(ctx, 2*time.Second)
-	defer stopTail()
-	tail := exec.CommandContext(tailCtx, bin, "-c", cfgPath, "tail", "-n", "100")
-	tail.Env = cleanEnv()
-	out, _ := tail.CombinedOutput() // ended by its context: it follows for ever
+	out := tailFor(ctx, bin, cfgPath, 100, 2*time.Second)
 	for _, want := range []string{` WARN  - +ref\s+ref: link lost \(`, ` INFO  - +ref\s+ref: link restored`} {
 		if !regexp.MustCompile(want).Match(out) {
 			t.Errorf("tail shows no line like %q:\n%s", want, out)
@@ -66,4 +63,15 @@ func TestTailShowsLinkLostAndRestored(t *testing.T) {
 	}
 	checkHuman(t, "plateau tail", string(out))
 	stopDaemon(t, d)
+}
+
+// tailFor runs plateau tail for a while and returns what it printed of the
+// last n events and after: it follows for ever, so its context ends it.
+func tailFor(ctx context.Context, bin, cfgPath string, n int, d time.Duration) []byte {
+	ctx, cancel := context.WithTimeout(ctx, d)
+	defer cancel()
+	tail := exec.CommandContext(ctx, bin, "-c", cfgPath, "tail", "-n", strconv.Itoa(n))
+	tail.Env = cleanEnv()
+	out, _ := tail.CombinedOutput()
+	return out
 }
