@@ -96,6 +96,10 @@ func simulatedDial(inst config.Instrument, rig Simulated) drivers.Gauge {
 	if inst.Role != config.RoleDevice || rig == nil || inst.Link.Kind != config.LinkManual {
 		return nil
 	}
+	// A rig of several devices names the operator of each dial.
+	if r, ok := rig.(interface{ DialReaderFor(string) drivers.Gauge }); ok {
+		return r.DialReaderFor(inst.Name)
+	}
 	return rig.DialReader()
 }
 

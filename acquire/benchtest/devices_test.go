@@ -316,3 +316,42 @@ func TestCutLinkMidRunOthersComplete(t *testing.T) {
 	}
 	t.Logf("%s: %d points before the cut, %d steps marked missed after it", victim, len(have), len(missed))
 }
+
+// Two of the four devices are dials read by the simulated operator: each
+// dial's operator reads its own dial, so each dial's errors match its own
+// truth, as the polled devices' do.
+func TestSeveralDialsEachReadTheirOwn(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs a whole procedure")
+	}
+	dials := map[string]bool{"pg-2": true, "pg-4": true}
+	b := devicesBench(t, func(c *config.Config) {
+		for i := range c.Simulator.Devices {
+			if dials[c.Simulator.Devices[i].Instrument] {
+				c.Simulator.Devices[i].Kind = sim.KindDial
+				c.Simulator.Devices[i].OperatorDelay = 2 * time.Second
+			}
+		}
+		for i := range c.Devices {
+			if dials[c.Devices[i].Instrument] {
+				c.Devices[i].Device.Kind = sim.KindDial
+			}
+		}
+		c.Procedure.PointsPa = []float64{0, 16e5}
+		c.Procedure.Cycles = 1
+	})
+	id, state, reason := b.run(t, 120*time.Second)
+	if state != store.StateFinished {
+		b.logInstruments(t)
+		t.Fatalf("run ended %q: %s", state, reason)
+	}
+	per := byDevice(b.points(t, id))
+	tol := tolerances(t, b.cfg)
+	want := procedure.CaptureCount(procedure.Plan(b.cfg.Procedure, b.cfg.Device.LowerPa))
+	for _, dut := range b.cfg.Devices {
+		if len(per[dut.Instrument]) != want {
+			t.Errorf("%s: %d points, want %d", dut.Instrument, len(per[dut.Instrument]), want)
+		}
+		checkDeviceErrors(t, b.rig, dut.Instrument, per[dut.Instrument], 1, tol[dut.Instrument])
+	}
+}

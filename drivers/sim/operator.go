@@ -25,13 +25,15 @@ type Operator struct {
 // Operator returns the reader of the rig's first dial.
 func (r *Rig) Operator() *Operator { return &Operator{r: r, Watch: time.Second} }
 
-// DialReader is the operator when the (first) simulated device is a dial,
-// else nil.
+// DialReader is the operator reading the first simulated device that is a
+// dial, nil when none is.
 func (r *Rig) DialReader() drivers.Gauge {
-	if r.p.kind != KindDial {
-		return nil
+	for _, d := range r.devs {
+		if d.p.kind == KindDial {
+			return &Operator{r: r, k: d.k, Watch: time.Second}
+		}
 	}
-	return r.Operator()
+	return nil
 }
 
 // DialReaderFor is the operator reading the dial the named instrument
