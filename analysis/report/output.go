@@ -32,6 +32,7 @@ type outputView struct {
 	Readings []outputReadingRow
 	Points   []outputPointRow
 	Flagged  int
+	Minimum  bool // some U was raised to the short procedure's minimum (marked *)
 	Verdict  string
 	Outcome  analysis.Outcome
 }
@@ -101,6 +102,7 @@ func (n numbers) output(res analysis.Result) *outputView {
 		u := ma(p.ExpandedUncertaintyMA)
 		if p.MinimumApplied {
 			u += "*" // as in the pressure table
+			v.Minimum = true
 		}
 		v.Points = append(v.Points, outputPointRow{Index: itoa(p.Index + 1), Applied: n.p(p.AppliedPa), Ideal: ma(p.IdealMA),
 			Measured: ma(p.MeasuredMA), Error: signedMA(ma, p.ErrorMA), ErrorPct: pct(p.ErrorPercentSpan), U: u,
@@ -142,6 +144,9 @@ func textOutput(w io.Writer, n numbers, res analysis.Result) {
 		fmt.Fprintf(pw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", r.Index, r.Applied, r.Ideal, r.Measured, r.Error, r.ErrorPct, r.U, r.K, r.MPE, r.Decision, r.Flag)
 	}
 	pw.Flush()
+	if v.Minimum {
+		fmt.Fprintln(w, "  * U raised to the short procedure's minimum (0.2 % of span)")
+	}
 	if v.Flagged > 0 {
 		fmt.Fprintf(w, "  %d readings outside the NE 43 measuring band or at its limits: kept and evaluated as found (see the warnings)\n", v.Flagged)
 	}

@@ -54,7 +54,7 @@ func TestOutputSection(t *testing.T) {
 		want []string
 	}{
 		{"text", text.String(), []string{"Output 4–20 mA (loop 4 mA at 0.00000 bar … 20 mA at 10.00000 bar; loop meter U = 0.01 % of reading + 0.001 mA (k = 2), resolution 0.001 mA)",
-			"3.7000", "-0.3000", "-1.875 %", "under-range", "12.0000", "11.7000", "19.7000", "output verdict: FAIL"}},
+			"3.7000", "-0.3000", "-1.875 %", "under-range", "12.0000", "11.7000", "19.7000", "0.0320*", "* U raised to the short procedure's minimum", "output verdict: FAIL"}},
 		{"html", page.String(), []string{"<h2>Output 4–20 mA</h2>", `<td class="num">3.7000</td>`, `<td class="num">-0.3000</td>`, `<td class="num">-1.875 %</td>`,
 			`<td class="o-fail">under-range</td>`, "Output verdict:"}},
 	} {
