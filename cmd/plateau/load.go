@@ -109,6 +109,12 @@ func runLoad(cmd *cobra.Command, pieces, temperature string, vent bool) error {
 		if err != nil {
 			u = units.Bar
 		}
+		// The guard cannot see what a loading does before it is on the
+		// piston: refuse one above the limit here.
+		if s := cfg.Safety; s.Set && r.LevelPa > s.MaxPressurePa {
+			return fmt.Errorf("load %s: %s is above safety.max_pressure (%s): take weights off; never load more than the range of the device under test",
+				l.Text(), readout.WithUnit(r.LevelPa, u, r.U), readout.WithUnit(s.MaxPressurePa, u, r.U))
+		}
 		// Digits to the balance's standard uncertainty.
 		msg = fmt.Sprintf("%s at %s °C: %s at the balance's reference level (%s m), standard uncertainty %s", l.Text(),
 			strconv.FormatFloat(c.PistonTempC, 'f', -1, 64), readout.WithUnit(r.LevelPa, u, r.U),

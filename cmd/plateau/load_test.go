@@ -59,6 +59,23 @@ func TestLoad(t *testing.T) {
 	if b, _ := os.ReadFile(loading); string(b) != "# plateau loading\nvented\n" {
 		t.Errorf("loading file changed by a refused loading: %q", b)
 	}
+	// A 12 bar dial with its limit at 12.2 bar: the whole set (16 bar) is refused and
+	// the file keeps the last loading.
+	limited := filepath.Join(dir, "limited.yaml")
+	text := strings.Replace(string(src), "  upper: 16 bar\n  resolution", "  upper: 12 bar\n  resolution", 1) + "safety:\n  max_pressure: 12.2 bar\n"
+	if err := os.WriteFile(limited, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err = runPlateau(t, "load", "-c", limited, "P1+M1+M2+M3+M4+M5", "--temperature", "21")
+	if err == nil || !strings.Contains(err.Error(), "load P1+M1+M2+M3+M4+M5: 16.0041 bar is above safety.max_pressure (12.2000 bar): take weights off") {
+		t.Errorf("over the limit: %v", err)
+	}
+	if b, _ := os.ReadFile(loading); string(b) != "# plateau loading\nvented\n" {
+		t.Errorf("loading file changed by a refused loading: %q", b)
+	}
+	if _, err := runPlateau(t, "load", "-c", limited, "P1+M1+M2+M3+M4", "--temperature", "21"); err != nil {
+		t.Errorf("12 bar under a 12.2 bar limit: %v", err)
+	}
 	if _, err := runPlateau(t, "load", "-c", sim, "P1"); err == nil || !strings.Contains(err.Error(), "is not a pressure balance") {
 		t.Errorf("sim config: %v", err)
 	}
