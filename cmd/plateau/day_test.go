@@ -18,8 +18,8 @@ import (
 // foreground; runs, report and verify on the store with no daemon; then the
 // daemon: status shows the last run and its verdict, start says how long a
 // run takes, status shows the target, the settle rule and the time left,
-// pause says the pressure is held, backup copies the store while the daemon
-// runs, tail names the device of each point. No output meant for a person
+// pause says the pressure is held, backup copies the store and verify checks
+// it while the daemon runs, tail names the device of each point. No output meant for a person
 // holds scientific notation.
 func TestTechniciansDayAsProcesses(t *testing.T) {
 	if testing.Short() {
@@ -72,6 +72,7 @@ func TestTechniciansDayAsProcesses(t *testing.T) {
 	has("status while paused", plateau("status"), `r000002 paused since \d\d:\d\d:\d\d`)
 	has("backup", plateau("backup", filepath.Join(dir, "copy.db")), `.`)
 	has("verify the copy", plateau("verify", "--store", filepath.Join(dir, "copy.db")), `OK — 2 runs`)
+	has("verify while the daemon runs", plateau("verify"), `the running daemon's store: OK — 2 runs, \d+ points, 1 unfinished`)
 	plateau("resume")
 	waitStatus(t, ctx, c, "the run to end", func(st api.Status) bool { return st.Run == nil && st.Last != nil && st.Last.ID == "r000002" })
 	has("status after the run", plateau("status"), `last run  r000002 finished`, `verdict   `)

@@ -4,10 +4,10 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
-	"plateau/acquire/api"
 
 	"github.com/spf13/cobra"
 
+	"plateau/acquire/api"
 	"plateau/acquire/store"
 	"plateau/config"
 )
@@ -31,6 +31,7 @@ func storePath(flag string) (string, error) {
 
 func newVerifyCmd() *cobra.Command {
 	var path string
+	var df *daemonFlags
 	cmd := &cobra.Command{
 		Use:   "verify",
 		Short: "Check the store file for damage, e.g. after a power cut (reads only)",
@@ -38,45 +39,89 @@ func newVerifyCmd() *cobra.Command {
 file size against the pages in use, every page of the tree, bbolt's own
 consistency check, and every run, point, event and sample block against its
 checksum. It writes nothing, creates nothing and refuses an empty file or one
-that is not a plateau store, so it can check a read-only copy. The daemon
-holds the file while it runs: stop it first, or use 'plateau backup' and
-verify the copy. When verify finds damage, 'plateau salvage' copies out what
+that is not a plateau store, so it can check a read-only copy. While the
+daemon runs it holds the file: verify then checks a consistent copy the
+daemon makes (in the temporary directory, removed afterwards); --store reads
+a file directly. When verify finds damage, 'plateau salvage' copies out what
 can still be read.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
+			if c, err := df.client(cmd); err == nil && path == "" {
+				if _, err := c.Status(cmd.Context()); err == nil {
+					return verifyThroughDaemon(cmd, c)
+				}
+			}
 			p, err := existingStore("verify", path)
 			if err != nil {
 				return err
 			}
-			st, err := store.Open(p, store.Options{ReadOnly: true, StartCheck: store.CheckPagesOnly})
+			sum, err := verifyFile(p)
 			if err != nil {
-				return fmt.Errorf("verify: %w", err)
+				return err
 			}
-			defer st.Close()
-			if err := st.Check(); err != nil {
-				return fmt.Errorf("verify: %w; copy out what can be read with: %s", err, store.SalvageHint(p))
-			}
-			runs, err := st.Runs()
-			if err != nil {
-				return fmt.Errorf("verify: %w", err)
-			}
-			points, open := 0, 0
-			for _, r := range runs {
-				pts, err := st.Points(r.ID)
-				if err != nil {
-					return fmt.Errorf("verify: run %s: %w", r.ID, err)
-				}
-				points += len(pts)
-				if !r.State.Terminal() {
-					open++
-				}
-			}
-			fmt.Fprintf(cmd.OutOrStdout(), "%s: OK — %d runs, %d points, %d unfinished\n", p, len(runs), points, open)
+			fmt.Fprintf(cmd.OutOrStdout(), "%s: OK — %s\n", p, sum)
 			return nil
 		},
 	}
-	cmd.Flags().StringVar(&path, "store", "", "the store file (default: store.path of the configuration)")
+	cmd.Flags().StringVar(&path, "store", "", "the store file, read directly (default: ask the daemon, else store.path of the configuration)")
+	df = addDaemonFlags(cmd)
 	return cmd
+}
+
+// verifyFile reads all of the store file p and says what it holds.
+func verifyFile(p string) (string, error) {
+	st, err := store.Open(p, store.Options{ReadOnly: true, StartCheck: store.CheckPagesOnly})
+	if err != nil {
+		return "", fmt.Errorf("verify: %w", err)
+	}
+	defer st.Close()
+	if err := st.Check(); err != nil {
+		return "", fmt.Errorf("verify: %w; copy out what can be read with: %s", err, store.SalvageHint(p))
+	}
+	runs, err := st.Runs()
+	if err != nil {
+		return "", fmt.Errorf("verify: %w", err)
+	}
+	points, open := 0, 0
+	for _, r := range runs {
+		pts, err := st.Points(r.ID)
+		if err != nil {
+			return "", fmt.Errorf("verify: run %s: %w", r.ID, err)
+		}
+		points += len(pts)
+		if !r.State.Terminal() {
+			open++
+		}
+	}
+	return fmt.Sprintf("%d runs, %d points, %d unfinished", len(runs), points, open), nil
+}
+
+// verifyThroughDaemon checks a consistent copy of the store the running
+// daemon makes, in the temporary directory, and removes it.
+func verifyThroughDaemon(cmd *cobra.Command, c *api.Client) error {
+	dir, err := os.MkdirTemp("", "plateau-verify-")
+	if err != nil {
+		return fmt.Errorf("verify: %w", err)
+	}
+	defer os.RemoveAll(dir)
+	copyPath := filepath.Join(dir, "copy.db")
+	f, err := os.OpenFile(copyPath, os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o600)
+	if err != nil {
+		return fmt.Errorf("verify: %w", err)
+	}
+	_, err = c.Backup(cmd.Context(), f)
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		return fmt.Errorf("verify: a copy from the running daemon: %w", err)
+	}
+	sum, err := verifyFile(copyPath)
+	if err != nil {
+		return fmt.Errorf("the running daemon's consistent copy of its store is damaged (%v): stop the daemon, then verify and salvage the file itself", err)
+	}
+	fmt.Fprintf(cmd.OutOrStdout(), "the running daemon's store: OK — %s (checked in a consistent copy it made)\n", sum)
+	return nil
 }
 
 // existingStore is the store file of --store (or the configuration) for a
