@@ -413,22 +413,21 @@ func (e *Engine) resumeUnfinished() error {
 		e.emit(r.ID, slog.LevelError, "state", "", fmt.Sprintf("run %s not resumed: %s", r.ID, reason), map[string]string{"state": string(store.StateFailed)})
 		return nil
 	}
-	why := r.Reason
-	if r.State == store.StatePaused {
-		// The daemon vented the source when it stopped: nothing is held now.
-		why = strings.TrimSuffix(why, "; the pressure is held") + "; the source was vented when the daemon stopped"
-	}
-	e.runs.mu.Lock()
-	e.launch(r.ID, c.Step, r.State == store.StatePaused, why)
-	e.runs.mu.Unlock()
 	total := len(e.steps)
 	msg := fmt.Sprintf("resuming %s at step %d of %d after a restart", r.ID, c.Step+1, total)
 	if total == 0 {
 		msg = fmt.Sprintf("resuming the free run %s after a restart", r.ID)
 	}
+	// Status says the run was resumed, and a paused one that nothing is
+	// held: the daemon vented the source when it stopped.
+	why := "resumed after a restart"
 	if r.State == store.StatePaused {
+		why = strings.TrimSuffix(r.Reason, "; the pressure is held") + "; the source was vented when the daemon stopped"
 		msg += " (still paused: " + why + ")"
 	}
+	e.runs.mu.Lock()
+	e.launch(r.ID, c.Step, r.State == store.StatePaused, why)
+	e.runs.mu.Unlock()
 	e.emit(r.ID, slog.LevelInfo, "state", "", msg, nil)
 	return nil
 }

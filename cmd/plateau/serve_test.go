@@ -107,8 +107,10 @@ func TestServeTermAndResume(t *testing.T) {
 	}
 
 	second := startDaemon(t, ctx, bin, cfgPath, filepath.Join(dir, "second.log"))
+	statusSaysResumed := false
 	for {
 		st, err := c.Status(ctx)
+		statusSaysResumed = statusSaysResumed || (err == nil && st.Run != nil && st.Reason == "resumed after a restart")
 		if err == nil && st.Run == nil {
 			if r, err := c.Run(ctx, id); err == nil && r.State.Terminal() {
 				break
@@ -170,6 +172,9 @@ func TestServeTermAndResume(t *testing.T) {
 	resumed := false
 	for _, ev := range events {
 		resumed = resumed || strings.Contains(ev.Message, "after a restart") && strings.HasPrefix(ev.Message, "resuming ")
+	}
+	if !statusSaysResumed {
+		t.Error("status never said the run was resumed after a restart")
 	}
 	if !resumed {
 		t.Fatal("no event says the run was resumed")
