@@ -28,6 +28,7 @@ func newSimCmd() *cobra.Command {
 		faults   []string
 		writeTo  string
 		showRegs bool
+		devices  int
 	)
 	cmd := &cobra.Command{
 		Use:   "sim",
@@ -67,6 +68,12 @@ Try it:
 			if !fromFile || fl.Changed("device-kind") {
 				s.Device.Kind = kind
 			}
+			if fl.Changed("devices") {
+				if devices < 1 || devices > maxDemoDevices {
+					return fmt.Errorf("--devices %d: from 1 to %d simulated devices", devices, maxDemoDevices)
+				}
+				s.Devices = simDevices(devices, s.Device)
+			}
 			for _, f := range faults {
 				if err := sim.SetFault(&s.Faults, f); err != nil {
 					return err
@@ -85,7 +92,26 @@ Try it:
 	f.StringArrayVar(&faults, "fault", nil, "switch a fault on, e.g. drop=0.05, bad_crc=0.02, link_down=5s,link_every=60s (repeatable; names: "+strings.Join(sim.FaultNames, ", ")+")")
 	f.StringVar(&writeTo, "write", "", "also write the configuration to this file")
 	f.BoolVar(&showRegs, "registers", true, "print the register map")
+	f.IntVar(&devices, "devices", 1, fmt.Sprintf("simulate this many devices under test on the one RTU line, each with the demo's invented errors (1 to %d; replaces simulator.devices)", maxDemoDevices))
 	return cmd
+}
+
+// simDevices is n simulated devices named sim-device-1 … with the demo's
+// invented errors; with one, the one device of simulator.device as always.
+// What the demo's table leaves to the kind (the range, the unit) comes
+// from the template.
+func simDevices(n int, template config.SimDevice) []config.SimUnit {
+	if n <= 1 {
+		return nil
+	}
+	out := make([]config.SimUnit, n)
+	for i := range out {
+		d := demoDevices[i]
+		u := template
+		u.Kind, u.Zero, u.Span, u.Nonlinearity, u.DeadBand, u.Resolution, u.Noise = d.kind, d.zero, d.span, d.bow, d.deadBand, d.resolution, d.noise
+		out[i] = config.SimUnit{Instrument: fmt.Sprintf("sim-device-%d", i+1), SimDevice: u}
+	}
+	return out
 }
 
 // runSim starts the rig, prints what a user needs and serves until ctx ends.
@@ -124,19 +150,40 @@ func runSim(ctx context.Context, s config.Simulator, tcp, writeTo string, showRe
 	return nil
 }
 
+func wireTimed(s config.Simulator) string {
+	if s.RTU.WireTime {
+		return ", replies at the wire's pace"
+	}
+	return ""
+}
+
 // simBanner is the human part of the output, as YAML comments.
 func simBanner(rig *sim.Rig, ep sim.Endpoints, writeTo string, showRegs bool) string {
 	s := rig.Settings()
 	var b strings.Builder
 	line := func(format string, a ...any) { fmt.Fprintf(&b, "# "+format+"\n", a...) }
-	line("plateau simulated bench — seed %d, speed ×%g, device: %s %s … %s", s.Seed, s.Speed, s.Device.Kind, s.Device.Lower, s.Device.Upper)
+	if len(s.Devices) > 1 {
+		line("plateau simulated bench — seed %d, speed ×%g, %d devices under test", s.Seed, s.Speed, len(s.Devices))
+	} else {
+		line("plateau simulated bench — seed %d, speed ×%g, device: %s %s … %s", s.Seed, s.Speed, s.Device.Kind, s.Device.Lower, s.Device.Upper)
+	}
 	line("A simulator: no real pressure. On a real bench never exceed a gauge's range, vent before")
 	line("disconnecting and keep oxygen gauges oil-free; 'plateau run' shows the full safety notice.")
 	line("")
-	line("Modbus TCP        %s (any unit id)", ep.TCP)
-	line("Modbus RTU        %s (unit %d, %d baud 8E1 timing)", ep.RTU, ep.UnitID, ep.RTUBaud)
-	line("reference line    %s (send %q, CR LF)", ep.ReferenceLine, sim.CmdRead)
-	line("device line       %s (send %q, CR LF)", ep.DeviceLine, sim.CmdRead)
+	if len(ep.Devices) > 1 {
+		line("Modbus TCP        %s (the reference and source at any unit id, each device at its own)", ep.TCP)
+		line("Modbus RTU        %s (units %d–%d, one per device, %d baud 8E1 timing%s)", ep.RTU,
+			ep.Devices[0].UnitID, ep.Devices[len(ep.Devices)-1].UnitID, ep.RTUBaud, wireTimed(s))
+		line("reference line    %s (send %q, CR LF)", ep.ReferenceLine, sim.CmdRead)
+		for _, d := range ep.Devices {
+			line("%-17s unit %d, line %s (%s)", d.Instrument, d.UnitID, d.Line, d.Kind)
+		}
+	} else {
+		line("Modbus TCP        %s (any unit id)", ep.TCP)
+		line("Modbus RTU        %s (unit %d, %d baud 8E1 timing%s)", ep.RTU, ep.UnitID, ep.RTUBaud, wireTimed(s))
+		line("reference line    %s (send %q, CR LF)", ep.ReferenceLine, sim.CmdRead)
+		line("device line       %s (send %q, CR LF)", ep.DeviceLine, sim.CmdRead)
+	}
 	if writeTo != "" {
 		line("configuration written to %s", writeTo)
 	}
