@@ -129,6 +129,8 @@ func defaults() map[string]any {
 		"simulator.faults.spike":          0.0,
 		"simulator.faults.link_down":      0 * time.Second,
 		"simulator.faults.link_every":     0 * time.Second,
+		"simulator.rtu.baud":              19200,
+		"simulator.rtu.wire_time":         false,
 	}
 }
 
