@@ -6,19 +6,21 @@
 // are exercised end to end:
 //
 //   - Modbus TCP on loopback (the server of github.com/simonvetter/modbus);
-//   - Modbus RTU on a pseudo-terminal pair, one line for every device (the
+//   - Modbus RTU on a pseudo-terminal pair, one line all devices share (the
 //     project's own responder: t3.5 framing, CRC-16/MODBUS, function codes
 //     01 02 03 04 05 06 15 16), the n-th device at unit id n, silent for
-//     every other id as a real line is;
+//     every other id as a real line is, optionally at the wire's pace;
 //   - one ASCII line instrument per measuring part (the reference, each
 //     device), each on its own pseudo-terminal pair: send "READ?" and a line
 //     end, get "+12.3456 bar".
 //
 // Every unit id serves one register map (see RegisterMap and the Reg…
-// constants): the shared reference and controller, and its own device. The physics reads the acquisition clock, so a scaled clock
-// accelerates a run, and it is deterministic given the seed. Faults (dropped
-// or slow replies, bad CRC, garbage lines, link outages, stuck values,
-// spikes) are switched on by config.SimFaults.
+// constants): the shared reference and controller, and its own device. The
+// physics reads the acquisition clock, so a scaled clock accelerates a run,
+// and it is deterministic given the seed. Faults (dropped or slow replies,
+// bad CRC, garbage lines, link outages, stuck values, spikes) are switched
+// on by config.SimFaults; CutLink (or simulator.devices[i].cut_at) cuts one
+// device's link for good.
 package sim
 
 import (
