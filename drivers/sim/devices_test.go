@@ -35,6 +35,23 @@ func fourDevices() config.Simulator {
 	}
 }
 
+// startDevices starts a rig of s on a manual clock at epoch; it stops
+// when the test ends.
+func startDevices(t *testing.T, s config.Simulator, opts ...sim.Option) (*sim.Rig, sim.Endpoints, *clock.Manual) {
+	t.Helper()
+	clk := clock.NewManual(epoch)
+	rig, err := sim.New(s, clk, opts...)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ep, err := rig.Start(t.Context())
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(rig.Stop)
+	return rig, ep, clk
+}
+
 // openDevice resolves a simulated device instrument onto the rig's real
 // transport via and opens the project's driver on it.
 func openDevice(t *testing.T, rig *sim.Rig, name, via string, clk clock.Clock) drivers.Gauge {
@@ -56,16 +73,7 @@ func openDevice(t *testing.T, rig *sim.Rig, name, via string, clk clock.Clock) d
 // RTU line, at its own unit id over TCP and on its own line instrument, and
 // each reads its own indication; the truth each exposes is its own.
 func TestSeveralDevicesEachServeTheirOwn(t *testing.T) {
-	clk := clock.NewManual(epoch)
-	rig, err := sim.New(fourDevices(), clk)
-	if err != nil {
-		t.Fatal(err)
-	}
-	ep, err := rig.Start(t.Context())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer rig.Stop()
+	rig, ep, clk := startDevices(t, fourDevices())
 	if rig.Devices() != 4 || len(ep.Devices) != 4 {
 		t.Fatalf("%d devices, %d endpoints", rig.Devices(), len(ep.Devices))
 	}
@@ -140,16 +148,7 @@ func unitPa(t *testing.T, symbol string) float64 {
 // Cutting one device's link silences it on every transport, for good; the
 // other devices and the reference go on answering.
 func TestCutLinkSilencesOneDevice(t *testing.T) {
-	clk := clock.NewManual(epoch)
-	rig, err := sim.New(fourDevices(), clk, sim.WithDropHold(50*time.Millisecond))
-	if err != nil {
-		t.Fatal(err)
-	}
-	ep, err := rig.Start(t.Context())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer rig.Stop()
+	rig, ep, clk := startDevices(t, fourDevices(), sim.WithDropHold(50*time.Millisecond))
 	ctx, cancel := context.WithTimeout(t.Context(), 20*time.Second)
 	defer cancel()
 	vias := []string{config.LinkModbusRTU, config.LinkModbusTCP, config.LinkSerial}
@@ -200,17 +199,9 @@ func TestCutLinkSilencesOneDevice(t *testing.T) {
 
 // simulator.devices[i].cut_at cuts a link at a moment of the rig's clock.
 func TestCutAtTime(t *testing.T) {
-	clk := clock.NewManual(epoch)
 	s := fourDevices()
 	s.Devices[1].CutAt = 10 * time.Minute
-	rig, err := sim.New(s, clk)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := rig.Start(t.Context()); err != nil {
-		t.Fatal(err)
-	}
-	defer rig.Stop()
+	rig, _, clk := startDevices(t, s)
 	g := openDevice(t, rig, "pt-2", config.LinkModbusRTU, clk)
 	ctx := t.Context()
 	clk.Advance(9 * time.Minute)
@@ -247,16 +238,7 @@ func TestSeveralDevicesSettingsErrors(t *testing.T) {
 // unit ids, each with its own device section; the config package accepts
 // it and each instrument reads its own device.
 func TestConfigYAMLSeveralDevices(t *testing.T) {
-	clk := clock.NewManual(epoch)
-	rig, err := sim.New(fourDevices(), clk)
-	if err != nil {
-		t.Fatal(err)
-	}
-	ep, err := rig.Start(t.Context())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer rig.Stop()
+	rig, ep, clk := startDevices(t, fourDevices())
 	text, err := rig.ConfigYAML()
 	if err != nil {
 		t.Fatal(err)
@@ -301,15 +283,7 @@ func TestConfigYAMLSeveralDevices(t *testing.T) {
 func TestWireTimeHoldsReplies(t *testing.T) {
 	s := fourDevices()
 	s.RTU = config.SimRTU{Baud: 9600, WireTime: true}
-	clk := clock.NewManual(epoch)
-	rig, err := sim.New(s, clk)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := rig.Start(t.Context()); err != nil {
-		t.Fatal(err)
-	}
-	defer rig.Stop()
+	rig, _, clk := startDevices(t, s)
 	g := openDevice(t, rig, "pt-1", config.LinkModbusRTU, clk)
 	// Request 8 characters, 3.5 of silence, reply 5 + 2·2: 20.5 characters
 	// of 11 bits (Modbus over Serial Line V1.02 §2.5.1).
