@@ -40,8 +40,8 @@ func identityText(d DeviceIdentity) string {
 
 // summaryRow is one device of the table that opens a report of several.
 type summaryRow struct {
-	Index, Name, Anchor, Identity, Range, Largest, Span, Verdict, Missed string
-	Outcome                                                              analysis.Outcome
+	Index, Name, Anchor, Identity, Range, Accuracy, Largest, Span, Verdict, Missed string
+	Outcome                                                                        analysis.Outcome
 }
 
 func summaryRows(ds []DeviceReport, anchors []string) []summaryRow {
@@ -52,10 +52,11 @@ func summaryRows(ds []DeviceReport, anchors []string) []summaryRow {
 			r.Anchor = anchors[i]
 		}
 		if d.Missing != "" {
-			r.Range, r.Largest, r.Span, r.Verdict = "—", "—", "—", "NO RESULT: "+d.Missing
+			r.Range, r.Accuracy, r.Largest, r.Span, r.Verdict = "—", "—", "—", "—", "NO RESULT: "+d.Missing
 		} else {
 			n := newNumbers(d.Info.unit(), d.Result.Device.ResolutionPa)
 			r.Range = n.pu(d.Result.Device.LowerPa) + " … " + n.pu(d.Result.Device.UpperPa)
+			r.Accuracy = n.accuracy(d.Result.Device.Accuracy)
 			r.Largest = n.pu(d.Result.MaxAbsErrorPa)
 			r.Span = n.pu(d.Result.MaxErrorSpanPa) + " (" + pct(d.Result.MaxErrorSpanPercentSpan) + " of span)"
 			r.Verdict, r.Outcome = outcomeText(d.Result.Decision), d.Result.Decision
@@ -158,9 +159,9 @@ func TextDevices(w io.Writer, ds []DeviceReport) error {
 	}
 	fmt.Fprintln(bw, "\nDevices")
 	tw := tabwriter.NewWriter(bw, 0, 0, 2, ' ', 0)
-	fmt.Fprint(tw, "  #\tdevice\tidentity\tlargest |error|\tlargest |error| + U\tverdict\tmissed readings\n")
+	fmt.Fprint(tw, "  #\tdevice\tidentity\tpermissible error\tlargest |error|\tlargest |error| + U\tverdict\tmissed readings\n")
 	for _, r := range summaryRows(ds, nil) {
-		fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\t%s\t%s\t%s\n", r.Index, r.Name, r.Identity, r.Largest, r.Span, r.Verdict, r.Missed)
+		fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n", r.Index, r.Name, r.Identity, r.Accuracy, r.Largest, r.Span, r.Verdict, r.Missed)
 	}
 	if err := tw.Flush(); err != nil {
 		return err

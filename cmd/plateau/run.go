@@ -206,9 +206,16 @@ type runWatch struct {
 	bar    *progressbar.ProgressBar // nil: no bar
 	prompt *dialPrompt              // nil: nobody types readings here
 	// answered is the wait last answered (dial and what it waited for):
-	// not asked again while it lasts.
-	answered string
+	// not asked again while it lasts, unless it lasts past reaskAfter.
+	answered   string
+	answeredAt time.Time
 }
+
+// reaskAfter is how long after an answer a dial may still show the same
+// wait before it is asked again: far longer than a step takes to pick an
+// entry up (its next look at the dial), so that one answer is never asked
+// twice.
+const reaskAfter = 5 * time.Second
 
 func (w *runWatch) follow(ctx context.Context) {
 	tick := time.NewTicker(250 * time.Millisecond)
@@ -228,7 +235,15 @@ func (w *runWatch) follow(ctx context.Context) {
 		w.est.observe(st, time.Now())
 		name, what, target, ok := waiting(st)
 		key := name + ": " + what
-		if !ok || key != w.answered {
+		switch {
+		case !ok || key != w.answered:
+			w.answered = ""
+		case time.Since(w.answeredAt) > reaskAfter:
+			// Still waiting for the same long after the answer: the step
+			// asks again (the reference was not steady when the dial was
+			// read, say), and the gap between the two asks fell between
+			// two looks at the status.
+			fmt.Fprintf(w.out, "\n%s asks again for %s ('plateau tail' says why)", name, what)
 			w.answered = ""
 		}
 		if ok && w.prompt != nil && w.answered == "" {
@@ -243,7 +258,7 @@ func (w *runWatch) follow(ctx context.Context) {
 			// The step takes the reading at its next poll: until then it
 			// still shows as waiting, and must not be asked twice (a second
 			// entry would supersede the first).
-			w.answered = key
+			w.answered, w.answeredAt = key, time.Now()
 			continue
 		}
 		if w.bar != nil {
