@@ -2,6 +2,8 @@ package main
 
 import (
 	"bytes"
+	"os"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -135,6 +137,47 @@ func TestReportFormat(t *testing.T) {
 		}
 		if err != nil || got != c.want {
 			t.Errorf("%q %q: %q %v, want %q", c.flag, c.output, got, err, c.want)
+		}
+	}
+}
+
+// The list names each run's devices: the identity of the one device, or
+// how many and the first of several; a run of several shows each point's
+// device.
+func TestRunsNameTheDevices(t *testing.T) {
+	t.Setenv("TZ", "UTC")
+	r, pts := goldenRun()
+	eight := make([]runDevice, 8)
+	for i := range eight {
+		eight[i] = runDevice{Name: "pt-" + strconv.Itoa(i+1), ID: "PT-100" + strconv.Itoa(i+1)}
+	}
+	var b bytes.Buffer
+	printRuns(&b, []listedRun{{RunInfo: r.RunInfo, Devices: []runDevice{{ID: "PG-0417"}}}, {RunInfo: r.RunInfo, Devices: eight}, {RunInfo: r.RunInfo}})
+	want := `RUN      STATE     CREATED           LAST CHANGE       DEVICES                 LABEL    REASON
+r000007  finished  2026-03-01 21:04  2026-03-01 23:04  PG-0417                 WO-1182  every step done
+r000007  finished  2026-03-01 21:04  2026-03-01 23:04  8: pt-1, pt-2, pt-3, …  WO-1182  every step done
+r000007  finished  2026-03-01 21:04  2026-03-01 23:04  —                       WO-1182  every step done
+`
+	if got := trimTrailing(b.String()); got != want {
+		t.Errorf("got\n%s\nwant\n%s", got, want)
+	}
+
+	text, err := os.ReadFile("../../testdata/config/devices.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	r.Config = string(text)
+	for i := range pts {
+		pts[i].Device = "pt-" + strconv.Itoa(i+1)
+	}
+	b.Reset()
+	printRun(&b, r, pts, display{unit: units.Bar, res: 1e2})
+	for _, want := range []string{
+		"devices   pt-1 (PT-1001), pt-2 (PT-1002), pt-3 (PT-1003), pt-4 (PT-1004), pt-5 (PT-1005), pt-6 (PT-1006), pt-7 (PT-1007), pt-8 (PT-1008)\n",
+		"  INSTRUMENT  CYCLE  SERIES     KIND  NOMINAL bar", "        pt-3      1    down  measure       16.000        15.9999     15.9900           -0.0099",
+	} {
+		if !strings.Contains(b.String(), want) {
+			t.Errorf("run of several devices lacks %q:\n%s", want, b.String())
 		}
 	}
 }
