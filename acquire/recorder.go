@@ -32,7 +32,8 @@ type recorder struct {
 	wake    chan struct{} // a batch is worth writing now
 	done    chan struct{} // the loop has ended
 
-	putMu sync.Mutex // held while a batch goes to the store, so flushes keep order
+	putMu sync.Mutex     // held while a batch goes to the store, so flushes keep order
+	spare []recorderItem // the last batch's array, reused for the next (under putMu)
 }
 
 type recorderItem struct {
@@ -105,9 +106,13 @@ func (r *recorder) loop() {
 func (r *recorder) putPending() {
 	r.putMu.Lock()
 	defer r.putMu.Unlock()
+	next := r.spare
+	if next == nil {
+		next = make([]recorderItem, 0, recorderBatch)
+	}
 	r.mu.Lock()
 	batch := r.pending
-	r.pending = make([]recorderItem, 0, max(recorderBatch, len(batch)))
+	r.pending = next
 	r.mu.Unlock()
 	for _, it := range batch {
 		// A sample racing the end of its run is refused by the store; it
@@ -115,6 +120,14 @@ func (r *recorder) putPending() {
 		if err := r.st.Put(it.run, it.instrument, it.sample); err != nil && !errors.Is(err, store.ErrRunEnded) {
 			r.trouble(fmt.Errorf("store a sample of %s: %w", it.instrument, err))
 		}
+	}
+	// Two arrays take turns instead of a new one every tick (20 a second).
+	// One grown while the store lagged is let go, not kept for the
+	// daemon's lifetime.
+	r.spare = nil
+	if cap(batch) <= 4*recorderBatch {
+		clear(batch)
+		r.spare = batch[:0]
 	}
 }
 

@@ -155,9 +155,18 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 	if err != nil {
 		return fmt.Errorf("read captured points: %w", err)
 	}
+	// done holds the points of the steps ahead only, and each step's are
+	// forgotten once it is over: the plan never comes back to a step, so a
+	// run of many cycles keeps no memory per step behind it.
+	ahead := map[string]bool{}
+	for _, s := range p.Steps[min(from, len(p.Steps)):] {
+		ahead[s.Key()] = true
+	}
 	done := map[string]bool{}
 	for _, pt := range existing {
-		done[doneKey(pt.Device, PointKey(pt))] = true
+		if k := PointKey(pt); ahead[k] {
+			done[doneKey(pt.Device, k)] = true
+		}
 	}
 	points := len(existing)
 	p.Rec.Progress(from, points, 0, "")
@@ -167,6 +176,7 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 			return err
 		}
 		if s.Kind == StepCapture && len(p.pending(s, done)) == 0 {
+			p.forget(s, done)
 			continue // captured before a restart
 		}
 		for {
@@ -199,8 +209,16 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 			}
 			break
 		}
+		p.forget(s, done)
 	}
 	return p.Rec.Cursor(len(p.Steps))
+}
+
+// forget drops step s from done once it is over.
+func (p *Procedure) forget(s Step, done map[string]bool) {
+	for _, d := range p.Devices {
+		delete(done, doneKey(d.Label, s.Key()))
+	}
 }
 
 // pending lists the devices that still lack their point of step s.
