@@ -11,8 +11,6 @@ import (
 	"testing"
 	"time"
 
-	"github.com/creack/pty"
-
 	"plateau/acquire/api"
 )
 
@@ -177,22 +175,7 @@ func TestRunPromptsEachDialAndReportsBoth(t *testing.T) {
 	bin := plateauBinary(t)
 	cfgPath := twoDials(t, dir, "run2")
 	html := filepath.Join(dir, "both.html")
-	ptmx, tty, err := pty.Open()
-	if err != nil {
-		t.Skipf("no pseudo-terminals: %v", err)
-	}
-	defer ptmx.Close()
-	cmd := exec.Command(bin, "--config", cfgPath, "run", "--label", "two dials", "-o", html)
-	cmd.Stdin, cmd.Stdout, cmd.Stderr = tty, tty, tty
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	tty.Close()
-	exited := make(chan error, 1)
-	go func() { exited <- cmd.Wait() }()
-	defer cmd.Process.Kill()
-
-	term := newTerminal(ptmx)
+	term, exited := onTerminal(t, bin, "--config", cfgPath, "run", "--label", "two dials", "-o", html)
 	prompt := regexp.MustCompile(`\n(dial-[ab]), an entry for [^\n]*?: set (-?[0-9.]+) bar, read the dial: `)
 	asked := map[string]int{}
 	for {

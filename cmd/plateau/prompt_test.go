@@ -83,22 +83,7 @@ func TestRunPromptsForDial(t *testing.T) {
 		"points: [0 %, 20 %, 40 %, 60 %, 80 %, 100 %]", "points: [0 %, 50 %, 100 %]",
 		"cycles: 2", "cycles: 1", "exercise: 1", "exercise: 0",
 		"window: 10s", "window: 3s", "timeout: 5m", "timeout: 60m", "top_hold: 20s", "top_hold: 2s", "hold: 5s", "hold: 1s")
-	ptmx, tty, err := pty.Open()
-	if err != nil {
-		t.Skipf("no pseudo-terminals: %v", err)
-	}
-	defer ptmx.Close()
-	cmd := exec.Command(bin, "--config", cfgPath, "run", "--label", "dial test")
-	cmd.Stdin, cmd.Stdout, cmd.Stderr = tty, tty, tty
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	tty.Close()
-	exited := make(chan error, 1)
-	go func() { exited <- cmd.Wait() }()
-	defer cmd.Process.Kill()
-
-	term := newTerminal(ptmx)
+	term, exited := onTerminal(t, bin, "--config", cfgPath, "run", "--label", "dial test")
 	prompt := regexp.MustCompile(`set (-?[0-9.]+) bar, read the dial: `)
 	var typed []float64 // the readings taken, in order
 	for n := 0; ; n++ {
@@ -167,6 +152,28 @@ func TestRunPromptsForDial(t *testing.T) {
 }
 
 var errExited = errors.New("the program exited")
+
+// onTerminal runs bin with args on a new pseudo-terminal, as a person at
+// a terminal would; exited delivers how it ended. The program is killed
+// and the terminal closed when the test ends.
+func onTerminal(t *testing.T, bin string, args ...string) (term *terminal, exited <-chan error) {
+	t.Helper()
+	ptmx, tty, err := pty.Open()
+	if err != nil {
+		t.Skipf("no pseudo-terminals: %v", err)
+	}
+	t.Cleanup(func() { ptmx.Close() })
+	cmd := exec.Command(bin, args...)
+	cmd.Stdin, cmd.Stdout, cmd.Stderr = tty, tty, tty
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	tty.Close()
+	done := make(chan error, 1)
+	go func() { done <- cmd.Wait() }()
+	t.Cleanup(func() { cmd.Process.Kill() })
+	return newTerminal(ptmx), done
+}
 
 // terminal is the far side of a pseudo-terminal: what the program wrote,
 // read as it comes, and what a person types.

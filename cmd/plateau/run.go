@@ -42,8 +42,12 @@ and press Enter to take it, or type the right value over it first. A reading
 outside the dial's range or far from the step's target is taken only when
 you confirm it.
 
+With several devices under test the result opens with a table of every
+device (largest error, verdict, missed readings), then gives each device's
+table; with several dials each prompt names the dial to read.
+
 With -o the report is written at the end, in the format of the file's
-extension (.html, .txt, .csv, .json).`,
+extension (.html, .txt, .csv, .json): one file with every device.`,
 		Example: `  plateau run
   plateau run --label WO-1182 -o WO-1182.html`,
 		Args: cobra.NoArgs,
