@@ -10,6 +10,7 @@ import (
 	"net"
 	"net/http"
 	"net/url"
+	"os"
 	"strings"
 	"time"
 
@@ -97,6 +98,33 @@ func (c *Client) newRequest(ctx context.Context, method, path string, body any) 
 	return req, nil
 }
 
+// unreachable is a call that found no daemon. Its text keeps to what a
+// person can act on ("connection refused", "no such file or directory"),
+// not the request the library was making; errors.As still finds the rest.
+type unreachable struct {
+	where string
+	err   error
+}
+
+func (u *unreachable) Error() string {
+	why := u.err
+	var ue *url.Error
+	if errors.As(why, &ue) {
+		why = ue.Err
+	}
+	var oe *net.OpError
+	if errors.As(why, &oe) {
+		why = oe.Err
+	}
+	var se *os.SyscallError
+	if errors.As(why, &se) {
+		why = se.Err
+	}
+	return fmt.Sprintf("cannot reach the plateau daemon at %s (is `plateau serve` running?): %v", u.where, why)
+}
+
+func (u *unreachable) Unwrap() error { return u.err }
+
 // send makes a call and returns the response when its status is 2xx.
 func (c *Client) send(req *http.Request) (*http.Response, error) {
 	resp, err := c.hc.Do(req)
@@ -104,7 +132,7 @@ func (c *Client) send(req *http.Request) (*http.Response, error) {
 		if ctxErr := req.Context().Err(); ctxErr != nil {
 			return nil, ctxErr
 		}
-		return nil, fmt.Errorf("cannot reach the plateau daemon at %s (is `plateau serve` running?): %w", c.where, err)
+		return nil, &unreachable{where: c.where, err: err}
 	}
 	if resp.StatusCode/100 == 2 {
 		return resp, nil
