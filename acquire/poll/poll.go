@@ -6,6 +6,7 @@ package poll
 
 import (
 	"context"
+	"fmt"
 	"log/slog"
 	"math"
 	"sync"
@@ -283,6 +284,10 @@ func (p *Poller) State() State {
 		Settled: st.Settled, Why: st.Why, Window: st.Window, Beat: p.beat, Every: max(p.interval, p.cycle), Waiting: p.waiting, WaitingForPa: p.wantPa}
 	if p.lastErr != nil {
 		s.LastErr = p.lastErr.Error()
+	}
+	if left := p.since.Sub(p.clk.Now()); st.Window.Count == 0 && left > 0 {
+		// The detector is empty because the step's hold is still running.
+		s.Why = fmt.Sprintf("holding after the pressure change, %.1f s to go", left.Seconds())
 	}
 	if rr, ok := p.gauge.(drivers.RateReporter); ok {
 		s.ReadsPerSecond = rr.ReadRate().PerSecond

@@ -101,3 +101,21 @@ func TestWarnLimit(t *testing.T) {
 		t.Errorf("after the interval: %v, %d suppressed, want 5", ok, n)
 	}
 }
+
+// While the hold after a pressure change runs, the detector is empty and
+// the poller says it is holding, with the time to go, rather than "no
+// samples yet".
+func TestWhyDuringTheHold(t *testing.T) {
+	p := newTestPoller(t, Options{})
+	clk := p.clk.(*clock.Manual)
+	p.Restart(clk.Now().Add(5*time.Second), 1e5, true)
+	p.Record(drivers.Reading{Time: clk.Now(), Pa: 1e5}, nil)
+	if why := p.State().Why; why != "holding after the pressure change, 5.0 s to go" {
+		t.Errorf("why %q during the hold", why)
+	}
+	clk.Advance(6 * time.Second)
+	p.Record(drivers.Reading{Time: clk.Now(), Pa: 1e5}, nil)
+	if why := p.State().Why; why == "" || why[:7] == "holding" {
+		t.Errorf("why %q after the hold: the detector's own reason", why)
+	}
+}
