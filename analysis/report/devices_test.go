@@ -40,7 +40,7 @@ func TestHTMLSeveralDevicesIsOneDocument(t *testing.T) {
 	ds := severalDevices(t)
 	page := renderDevices(t, ds)
 
-	rows := regexp.MustCompile(`<tr><td class="num">(\d)</td><td><a href="#([^"]+)">([^<]+)</a></td>`).FindAllStringSubmatch(page, -1)
+	rows := regexp.MustCompile(`<tr><td class="num">(\d)</td><td class="name"><a href="#([^"]+)">([^<]+)</a></td>`).FindAllStringSubmatch(page, -1)
 	if len(rows) != 3 {
 		t.Fatalf("summary table has %d linked rows, want 3:\n%s", len(rows), page)
 	}
