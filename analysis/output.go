@@ -40,7 +40,7 @@ const (
 	SignalSaturated   Signal = "saturated"    // at a band limit: the output may be held there, so the error may be larger
 	SignalUnderRange  Signal = "under-range"  // below 3.8 mA, above the failure level
 	SignalOverRange   Signal = "over-range"   // above 20.5 mA, below the failure level
-	SignalFailureLow  Signal = "failure-low"  // at or below 3.6 mA: the NE 43 failure signal, or an open loop
+	SignalFailureLow  Signal = "failure-low"  // at or below 3.6 mA: the NE 43 failure signal (below 1 mA the driver calls the loop open)
 	SignalFailureHigh Signal = "failure-high" // at or above 21.0 mA: the NE 43 failure signal
 )
 

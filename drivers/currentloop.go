@@ -61,6 +61,18 @@ func quantityPa(s string) (float64, error) {
 // ErrLoopFault says a loop current lies outside the NAMUR NE 43 measurement band.
 var ErrLoopFault = fmt.Errorf("loop current outside %.1f–%.1f mA (NAMUR NE 43): failure signal, not a measurement", LoopValidLow, LoopValidHigh)
 
+// OpenLoopBelow is the current under which a device's loop counts as open (a
+// broken wire, no supply) rather than as an output to evaluate. A two-wire
+// transmitter draws about 3.5 mA just to power itself and signals a failure
+// at 3.6 mA or a little less, so nothing below 1 mA is its own output
+// (common practice; the threshold is our choice).
+const OpenLoopBelow = 1.0 // mA
+
+// ErrOpenLoop says a device's loop current is too small to come from the
+// transmitter: the loop is open or unpowered. The reading is a link fault,
+// so that device misses its points (with this reason) while the run goes on.
+var ErrOpenLoop = fmt.Errorf("loop current below %.1f mA: the loop is open or unpowered", OpenLoopBelow)
+
 // Pa converts a loop current in mA to pascal:
 // p = LRV + (I − 4 mA) / 16 mA × (URV − LRV) (REFERENCES.md §7).
 // Currents outside 3.8–20.5 mA return ErrLoopFault.
@@ -123,9 +135,13 @@ func (c Conversion) RawUnit() string {
 }
 
 // ToPa converts a raw value to pascal. A loop current outside the NAMUR band
-// gives an error that wraps ErrLoopFault, unless KeepOutOfBand.
+// gives an error that wraps ErrLoopFault, unless KeepOutOfBand; then only a
+// current below OpenLoopBelow is refused (ErrOpenLoop).
 func (c Conversion) ToPa(raw float64) (float64, error) {
 	if c.Loop != nil && c.KeepOutOfBand {
+		if raw < OpenLoopBelow {
+			return 0, fmt.Errorf("%.3f mA: %w", raw, ErrOpenLoop)
+		}
 		return c.Loop.scale(raw), nil
 	}
 	if c.Loop != nil {

@@ -64,7 +64,14 @@ func TestCurrentLoopDeviceKeepsOutOfBand(t *testing.T) {
 		t.Fatalf("keep: device %v, reference %v", dev.KeepOutOfBand, ref.KeepOutOfBand)
 	}
 	cases := []struct{ mA, bar float64 }{
-		{3.70, -0.1875}, {3.6, -0.25}, {0, -2.5}, {20.6, 10.375}, {21.0, 10.625}, {12, 5},
+		{3.70, -0.1875}, {3.6, -0.25}, {1.0, -1.875}, {20.6, 10.375}, {21.0, 10.625}, {12, 5},
+	}
+	// An open loop is no output to evaluate (common practice: a two-wire
+	// transmitter cannot draw less than it needs to power itself).
+	for _, mA := range []float64{0, 0.999, -0.2} {
+		if _, err := dev.Finish("tx", Reading{Raw: mA}); !errors.Is(err, ErrOpenLoop) {
+			t.Errorf("device at %g mA: %v, want an open loop", mA, err)
+		}
 	}
 	for _, c := range cases {
 		r, err := dev.Finish("tx", Reading{Raw: c.mA})
