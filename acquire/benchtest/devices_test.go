@@ -1,111 +1,64 @@
 package benchtest
 
 import (
-	"context"
 	"encoding/json"
 	"math"
-	"path/filepath"
 	"testing"
 	"time"
 
-	"plateau/acquire"
 	"plateau/acquire/procedure"
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/analysis/units"
 	"plateau/config"
-	"plateau/drivers"
-	"plateau/drivers/clock"
 	"plateau/drivers/sim"
 )
 
 // devicesBench is the four-device example (testdata/config/sim-devices.yaml:
 // three devices on one simulated RTU line, one on a line instrument, each
-// with its own invented errors) over the real transports, with an engine
-// and a real store, on one scaled clock. The procedure is shortened. The
-// store is checked for consistency when the test ends.
+// with its own invented errors) on bench: the real transports, an engine
+// and a real store on one scaled clock, the procedure shortened.
 func devicesBench(t *testing.T, edit func(*config.Config)) *testBench {
 	t.Helper()
-	cfg, err := config.Load("../../testdata/config/sim-devices.yaml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	cfg.Procedure.PointsPa = []float64{0, 8e5, 16e5}
-	cfg.Procedure.Cycles = 2
-	cfg.Procedure.Exercise = 1
-	cfg.Procedure.ExerciseHold = 5 * time.Second
-	cfg.Procedure.TopHold = 5 * time.Second
-	cfg.Procedure.Hold = 3 * time.Second
-	cfg.Simulator.Speed = 40
-	// The guard's silence limit is clock time: at 40× its 2 s are 50 ms of
-	// wall time, which a loaded machine under -race can stall for. The
-	// guard's promise is tested in safety_test.go; here it must not trip.
-	cfg.Safety.Silence = 20 * time.Second
-	if edit != nil {
-		edit(cfg)
-	}
-	clk := clock.NewScaled(cfg.Simulator.Speed)
-	ctx, cancel := context.WithCancel(context.Background())
-	rig, err := sim.New(cfg.Simulator, clk)
-	if err != nil {
-		cancel()
-		t.Fatal(err)
-	}
-	if _, err := rig.Start(ctx); err != nil {
-		cancel()
-		t.Fatal(err)
-	}
-	st, err := store.Open(filepath.Join(t.TempDir(), "devices.db"), store.Options{})
-	if err != nil {
-		cancel()
-		rig.Stop()
-		t.Fatal(err)
-	}
-	in, closeInstruments, err := acquire.Open(cfg, drivers.OpenEnv{Clock: clk}, rig)
-	if err != nil {
-		cancel()
-		rig.Stop()
-		st.Close()
-		t.Fatal(err)
-	}
-	if len(in.Devices) != 4 {
-		t.Fatalf("%d devices opened, want 4", len(in.Devices))
-	}
-	eng, err := acquire.New(acquire.Options{Config: cfg, Store: st, Clock: clk, Instruments: in})
-	if err != nil {
-		cancel()
-		closeInstruments()
-		rig.Stop()
-		st.Close()
-		t.Fatal(err)
-	}
-	served := make(chan struct{})
-	go func() { eng.Serve(ctx); close(served) }()
-	t.Cleanup(func() {
-		cancel()
-		<-served
-		closeInstruments()
-		rig.Stop()
-		path := st.Path()
-		if err := st.Close(); err != nil {
-			t.Errorf("store close: %v", err)
+	b := bench(t, func(c *config.Config) {
+		// The guard's silence limit is clock time: at 40× its 2 s are 50 ms
+		// of wall time, which a loaded machine under -race can stall for.
+		// The guard's promise is tested in safety_test.go; here it must not
+		// trip.
+		c.Safety.Silence = 20 * time.Second
+		if edit != nil {
+			edit(c)
 		}
-		again, err := store.Open(path, store.Options{})
-		if err != nil {
-			t.Fatalf("reopen: %v", err)
-		}
-		if err := again.Check(); err != nil {
-			t.Errorf("store check: %v", err)
-		}
-		again.Close()
-	})
-	for range 100 {
-		if eng.Status().Instruments[0].Reads > 0 {
-			break
-		}
-		time.Sleep(20 * time.Millisecond)
+	}, withFile("../../testdata/config/sim-devices.yaml"))
+	if len(b.cfg.Devices) != 4 || b.rig.Devices() != 4 {
+		t.Fatalf("%d devices configured, %d simulated; want 4", len(b.cfg.Devices), b.rig.Devices())
 	}
-	return &testBench{eng: eng, st: st, rig: rig, cfg: cfg, clk: clk}
+	return b
+}
+
+// runAll runs the whole (shortened) procedure and checks that every device
+// got every planned point and that each device's errors match its own
+// simulated truth; it returns the points by device.
+func runAll(t *testing.T, b *testBench, top int) map[string][]analysis.Point {
+	t.Helper()
+	id, state, reason := b.run(t, 120*time.Second)
+	if state != store.StateFinished {
+		b.logInstruments(t)
+		t.Fatalf("run ended %q: %s", state, reason)
+	}
+	per := byDevice(b.points(t, id))
+	tol := tolerances(t, b.cfg)
+	want := procedure.CaptureCount(procedure.Plan(b.cfg.Procedure, b.cfg.Device.LowerPa))
+	for _, dut := range b.cfg.Devices {
+		if len(per[dut.Instrument]) != want {
+			t.Errorf("%s: %d points, want %d", dut.Instrument, len(per[dut.Instrument]), want)
+		}
+		checkDeviceErrors(t, b.rig, dut.Instrument, per[dut.Instrument], top, tol[dut.Instrument])
+	}
+	if len(per) != len(b.cfg.Devices) {
+		t.Errorf("points of %d devices, want %d", len(per), len(b.cfg.Devices))
+	}
+	return per
 }
 
 // tolerances of each simulated device: a point's error may differ from the
@@ -187,24 +140,8 @@ func TestFourDevicesMatchTheirOwnTruth(t *testing.T) {
 		t.Skip("runs a whole procedure")
 	}
 	b := devicesBench(t, nil)
-	id, state, reason := b.run(t, 90*time.Second)
-	if state != store.StateFinished {
-		b.logInstruments(t)
-		t.Fatalf("run ended %q: %s", state, reason)
-	}
-	per := byDevice(b.points(t, id))
+	per := runAll(t, b, 2)
 	tol := tolerances(t, b.cfg)
-	want := procedure.CaptureCount(procedure.Plan(b.cfg.Procedure, b.cfg.Device.LowerPa))
-	for _, dut := range b.cfg.Devices {
-		pts := per[dut.Instrument]
-		if len(pts) != want {
-			t.Errorf("%s: %d points, want %d", dut.Instrument, len(pts), want)
-		}
-		checkDeviceErrors(t, b.rig, dut.Instrument, pts, 2, tol[dut.Instrument])
-	}
-	if len(per) != 4 {
-		t.Errorf("points of %d devices, want 4: %v", len(per), keys(per))
-	}
 	// The devices differ by more than the tolerance, so matching its own
 	// truth is not matching any: pg-2's errors are not pg-1's.
 	for _, p := range per["pg-2"] {
@@ -217,14 +154,6 @@ func TestFourDevicesMatchTheirOwnTruth(t *testing.T) {
 			t.Errorf("pg-2 cycle %d %s point %d also matches pg-1's truth: the devices are not told apart", p.Cycle, p.Direction, p.Index)
 		}
 	}
-}
-
-func keys[V any](m map[string]V) []string {
-	var out []string
-	for k := range m {
-		out = append(out, k)
-	}
-	return out
 }
 
 // One device's link is cut mid-run and never comes back: the run finishes,
@@ -340,18 +269,5 @@ func TestSeveralDialsEachReadTheirOwn(t *testing.T) {
 		c.Procedure.PointsPa = []float64{0, 16e5}
 		c.Procedure.Cycles = 1
 	})
-	id, state, reason := b.run(t, 120*time.Second)
-	if state != store.StateFinished {
-		b.logInstruments(t)
-		t.Fatalf("run ended %q: %s", state, reason)
-	}
-	per := byDevice(b.points(t, id))
-	tol := tolerances(t, b.cfg)
-	want := procedure.CaptureCount(procedure.Plan(b.cfg.Procedure, b.cfg.Device.LowerPa))
-	for _, dut := range b.cfg.Devices {
-		if len(per[dut.Instrument]) != want {
-			t.Errorf("%s: %d points, want %d", dut.Instrument, len(per[dut.Instrument]), want)
-		}
-		checkDeviceErrors(t, b.rig, dut.Instrument, per[dut.Instrument], 1, tol[dut.Instrument])
-	}
+	runAll(t, b, 1)
 }

@@ -32,6 +32,7 @@ type testBench struct {
 type benchOption func(*benchSetup)
 
 type benchSetup struct {
+	file    string // the configuration (testdata/config/sim.yaml when empty)
 	rigOpts []sim.Option
 	dial    bool
 	store   func(*store.Store) acquire.Store
@@ -48,6 +49,9 @@ func withReference(f func(drivers.Gauge) drivers.Gauge) benchOption {
 	return func(b *benchSetup) { b.ref = f }
 }
 
+// withFile loads another example configuration than sim.yaml.
+func withFile(path string) benchOption { return func(b *benchSetup) { b.file = path } }
+
 // withDial lets the rig's simulated operator read the dial.
 func withDial() benchOption { return func(b *benchSetup) { b.dial = true } }
 
@@ -56,7 +60,7 @@ func withRig(o ...sim.Option) benchOption {
 	return func(b *benchSetup) { b.rigOpts = append(b.rigOpts, o...) }
 }
 
-// bench loads sim.yaml, shortens the procedure, applies edit and starts the
+// bench loads sim.yaml (or withFile's), shortens the procedure, applies edit and starts the
 // simulated rig and an engine serving on it. Everything is stopped, and the
 // store checked for consistency, when the test ends.
 func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBench {
@@ -65,7 +69,11 @@ func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBe
 	for _, o := range opts {
 		o(&setup)
 	}
-	cfg, err := config.Load("../../testdata/config/sim.yaml")
+	file := "../../testdata/config/sim.yaml"
+	if setup.file != "" {
+		file = setup.file
+	}
+	cfg, err := config.Load(file)
 	if err != nil {
 		t.Fatal(err)
 	}
