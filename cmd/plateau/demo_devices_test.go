@@ -1,10 +1,12 @@
 package main
 
 import (
+	"math"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -63,5 +65,44 @@ func TestDemoSeveralDevices(t *testing.T) {
 	}
 	if out, err := exec.Command(bin, "demo", "--devices", "9", "--dir", dir).CombinedOutput(); err == nil || !strings.Contains(string(out), "--devices 9") {
 		t.Errorf("demo --devices 9 accepted or unclear: %v\n%s", err, out)
+	}
+}
+
+// 'plateau sim --devices 3' serves three devices with the demo's invented
+// errors; the configuration it prints names each on the one RTU line, and
+// 'plateau probe' reads each device's own zero offset (the bench is vented)
+// over the real transport.
+func TestSimSeveralDevicesProbed(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs the program as two processes")
+	}
+	bin := plateauBinary(t)
+	cfgPath := startSim(t, bin, t.TempDir(), "--devices", "3", "--registers=false")
+	cfg, err := config.Load(cfgPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(cfg.Devices) != 3 {
+		t.Fatalf("%d devices in the printed configuration, want 3", len(cfg.Devices))
+	}
+	mean := regexp.MustCompile(`mean (-?[0-9.]+) bar`)
+	for i, d := range cfg.Devices {
+		in := cfg.Instruments[d.Index]
+		if in.Link.Kind != config.LinkModbusRTU || in.Link.UnitID != i+1 {
+			t.Errorf("%s: %s unit %d, want the RTU line at unit %d", in.Name, in.Link.Kind, in.Link.UnitID, i+1)
+		}
+		out, err := exec.Command(bin, "-c", cfgPath, "probe", in.Name, "-n", "4").CombinedOutput()
+		if err != nil {
+			t.Fatalf("probe %s: %v\n%s", in.Name, err, out)
+		}
+		m := mean.FindStringSubmatch(string(out))
+		if m == nil {
+			t.Fatalf("probe %s: no mean:\n%s", in.Name, out)
+		}
+		got, _ := strconv.ParseFloat(m[1], 64)
+		want, _ := strconv.ParseFloat(strings.TrimSuffix(demoDevices[i].zero, " bar"), 64)
+		if math.Abs(got-want) > 0.006 { // its resolution (0.01 bar) and noise
+			t.Errorf("%s reads %.3f bar vented, its zero offset is %s", in.Name, got, demoDevices[i].zero)
+		}
 	}
 }
