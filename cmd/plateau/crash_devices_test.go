@@ -74,44 +74,8 @@ func TestKillAndResumeFourDevices(t *testing.T) {
 		}
 	}
 	rng := rand.New(rand.NewPCG(14, 4))
-	seen := map[string]bool{}
-	check := func(stage string) int {
-		t.Helper()
-		st, err := store.Open(cfg.Store.Path, store.Options{Timeout: 5 * time.Second})
-		if err != nil {
-			t.Fatalf("%s: reopen: %v", stage, err)
-		}
-		defer st.Close()
-		if err := st.Check(); err != nil {
-			t.Fatalf("%s: store check: %v", stage, err)
-		}
-		runs, err := st.Runs()
-		if err != nil || len(runs) > 1 {
-			t.Fatalf("%s: runs %v, %v (a restart must resume, not start anew)", stage, runs, err)
-		}
-		if len(runs) == 0 {
-			return 0
-		}
-		pts, err := st.Points(runs[0].ID)
-		if err != nil {
-			t.Fatal(err)
-		}
-		now := map[string]bool{}
-		for _, p := range pts {
-			k := p.Device + " " + procedure.PointKey(p)
-			if now[k] {
-				t.Fatalf("%s: point %s twice", stage, k)
-			}
-			now[k] = true
-		}
-		for k := range seen {
-			if !now[k] {
-				t.Fatalf("%s: point %s lost", stage, k)
-			}
-		}
-		seen = now
-		return len(pts)
-	}
+	kept := &keptPoints{path: cfg.Store.Path}
+	check := func(stage string) int { t.Helper(); return kept.check(t, stage) }
 	kills, n := 0, 0
 	for kills < 12 {
 		cmd := exec.Command(bin, "run", "-q", "-c", cfgPath, "--label", "four devices, killed")
@@ -190,4 +154,52 @@ func checkWindow(t *testing.T, st *store.Store, run store.RunID, instrument stri
 		t.Errorf("%s window %s … %s: %d samples, mean %.3f Pa; the point says %d, %.3f Pa",
 			instrument, w.Start.Format(time.StampMilli), w.End.Format(time.StampMilli), n, sum/float64(max(n, 1)), w.Count, w.Mean)
 	}
+}
+
+// keptPoints follows the points of the one run of a store across kills.
+type keptPoints struct {
+	path string
+	seen map[string]bool // "device cycle/direction/kind/index" of every point seen so far
+}
+
+// check opens the store after a kill: it must pass bbolt's consistency
+// check and hold at most one run (a restart resumes, it does not start
+// anew), no point twice for any device and every point seen before. It
+// returns how many points the run holds.
+func (k *keptPoints) check(t *testing.T, stage string) int {
+	t.Helper()
+	st, err := store.Open(k.path, store.Options{Timeout: 5 * time.Second})
+	if err != nil {
+		t.Fatalf("%s: reopen: %v", stage, err)
+	}
+	defer st.Close()
+	if err := st.Check(); err != nil {
+		t.Fatalf("%s: store check: %v", stage, err)
+	}
+	runs, err := st.Runs()
+	if err != nil || len(runs) > 1 {
+		t.Fatalf("%s: runs %v, %v (a restart must resume, not start anew)", stage, runs, err)
+	}
+	if len(runs) == 0 {
+		return 0
+	}
+	pts, err := st.Points(runs[0].ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	now := map[string]bool{}
+	for _, p := range pts {
+		key := p.Device + " " + procedure.PointKey(p)
+		if now[key] {
+			t.Fatalf("%s: point %s twice", stage, key)
+		}
+		now[key] = true
+	}
+	for key := range k.seen {
+		if !now[key] {
+			t.Fatalf("%s: point %s lost", stage, key)
+		}
+	}
+	k.seen = now
+	return len(pts)
 }

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"fmt"
 	"math/rand/v2"
 	"os"
 	"os/exec"
@@ -33,43 +32,8 @@ func TestKillAndResume(t *testing.T) {
 	total := procedure.CaptureCount(procedure.Plan(cfg.Procedure, cfg.Device.LowerPa))
 
 	rng := rand.New(rand.NewPCG(1, 2))
-	seen := map[string]bool{}
-	check := func(stage string) int {
-		st, err := store.Open(cfg.Store.Path, store.Options{Timeout: 5 * time.Second})
-		if err != nil {
-			t.Fatalf("%s: reopen: %v", stage, err)
-		}
-		defer st.Close()
-		if err := st.Check(); err != nil {
-			t.Fatalf("%s: store check: %v", stage, err)
-		}
-		runs, err := st.Runs()
-		if err != nil || len(runs) > 1 {
-			t.Fatalf("%s: runs %v, %v (a restart must resume, not start anew)", stage, runs, err)
-		}
-		if len(runs) == 0 {
-			return 0
-		}
-		pts, err := st.Points(runs[0].ID)
-		if err != nil {
-			t.Fatal(err)
-		}
-		now := map[string]bool{}
-		for _, p := range pts {
-			k := fmt.Sprintf("%d/%s/%s/%d", p.Cycle, p.Direction, p.Kind, p.Index)
-			if now[k] {
-				t.Fatalf("%s: point %s twice", stage, k)
-			}
-			now[k] = true
-		}
-		for k := range seen {
-			if !now[k] {
-				t.Fatalf("%s: point %s lost", stage, k)
-			}
-		}
-		seen = now
-		return len(pts)
-	}
+	kept := &keptPoints{path: cfg.Store.Path}
+	check := func(stage string) int { return kept.check(t, stage) }
 	kills := 0
 	for kills < 20 {
 		cmd := exec.Command(bin, "run", "-q", "-c", cfgPath, "--label", "crash test")
