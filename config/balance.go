@@ -51,6 +51,15 @@ type Balance struct {
 	MassesCorrelated bool        `mapstructure:"masses_correlated"`
 	Coverage         float64     `mapstructure:"coverage"`
 	Masses           []MassPiece `mapstructure:"masses"`
+	// Loadings lists the loading of each point of procedure.points, in the
+	// same order (P1+M1+M2, or vent for a point at zero): the prompt and
+	// status tell the operator what to load, and the reference's
+	// uncertainty in a run covers exactly these loadings.
+	Loadings []string `mapstructure:"loadings"`
+
+	// Planned is Loadings resolved, by index in procedure.points (nil for
+	// vent); empty when none are listed or they have problems.
+	Planned [][]string `mapstructure:"-"`
 
 	ResidualPa  float64 `mapstructure:"-"`
 	ResidualUPa float64 `mapstructure:"-"`
@@ -183,14 +192,16 @@ func (c *Config) validateBalance(p *Problems, key string, b *Balance) {
 	b.validateTemperature(c, p, k)
 	before := p.Errors()
 	if b.validateMasses(p, k) && p.Errors() == before {
+		c.validatePlan(p, k("loadings"), b)
 		c.compareCertificate(p, b)
 	}
 }
 
 // compareCertificate warns when the reference: section states a smaller
 // uncertainty than the balance's own budget gives with the piston alone
-// and with every piece loaded (at the reference temperature): a run takes
-// the reference's uncertainty from that section.
+// and with every piece loaded (at the reference temperature): a run and
+// plateau analyze take the reference's uncertainty from the balance's
+// budget, so the section's line would mislead whoever reads it.
 func (c *Config) compareCertificate(p *Problems, b *Balance) {
 	s := b.Setup()
 	if s.Validate() != nil {
@@ -213,7 +224,7 @@ func (c *Config) compareCertificate(p *Problems, b *Balance) {
 		}
 		stated := r.UncertaintyPct/100*math.Abs(res.LevelPa) + r.FloorPa
 		if u := res.Expanded(2); stated < u*(1-1e-9) {
-			p.warn("reference.uncertainty", r.Uncertainty, "states %s at %s (%s loaded), but the pressure balance's own budget gives an expanded uncertainty of %s there (k = 2): a run takes the reference's uncertainty from the reference: section",
+			p.warn("reference.uncertainty", r.Uncertainty, "states %s at %s (%s loaded), but the pressure balance's own budget gives an expanded uncertainty of %s there (k = 2); runs and their certificates use the balance's budget, so correct the reference: section",
 				readout.WithUnit(stated, unit, u/100), readout.WithUnit(res.LevelPa, unit, c.Device.ResolutionPa), strings.Join(cond.Loaded, "+"), readout.WithUnit(u, unit, u/100))
 			return
 		}

@@ -547,8 +547,15 @@ func cover(results []Result, k float64) (pct, floorPa float64) {
 			top, pct = p, 100*r.Expanded(k)/p
 		}
 	}
+	var most float64
 	for _, r := range results {
 		floorPa = math.Max(floorPa, r.Expanded(k)-pct/100*math.Abs(r.DevicePa))
+		most = math.Max(most, r.Expanded(k))
+	}
+	// What the top's own rounding leaves (1e-14 Pa) is no floor: a
+	// certificate would print it as one.
+	if floorPa < 1e-9*most {
+		floorPa = 0
 	}
 	return pct, floorPa
 }

@@ -418,6 +418,11 @@ func TestCover(t *testing.T) {
 	if !(pct >= exact && pct < exact*1.1) {
 		t.Errorf("rounded slope %g %%, exact %g %%", pct, exact)
 	}
+	// One loading alone: the slope covers it, and what rounding leaves of
+	// the floor is no floor.
+	if _, floor := Cover(rs[len(rs)-1:], 2); floor != 0 {
+		t.Errorf("one loading: floor %g Pa, want 0", floor)
+	}
 	for _, tc := range []struct{ in, want float64 }{{0.008649554, 0.0087}, {0.0087, 0.0087}, {75.0564, 76}, {0.1, 0.1}, {0, 0}} {
 		if got := ceil2(tc.in); math.Abs(got-tc.want) > 1e-12*tc.want {
 			t.Errorf("ceil2(%g) = %g, want %g", tc.in, got, tc.want)

@@ -185,6 +185,7 @@ func inputsFor(cfg *config.Config, d config.Device, height float64) (analysis.De
 		StabilityFloorPa:          cfg.Reference.StabilityFloorPa,
 		ResolutionPa:              cfg.Reference.ResolutionPa,
 	}
+	withBalance(cfg, &ref)
 	if h.ReferenceHeight != height || h.HeightUncertainty != 0 || h.DensityUncertainty != 0 {
 		ref.Head = analysis.HeadCorrection{
 			FluidDensity: h.FluidDensity, AirDensity: h.AmbientDensity, Gravity: h.Gravity,
