@@ -550,8 +550,14 @@ func (rr *runRecorder) Point(p analysis.Point) error {
 	if inst == "" && len(e.devs) == 1 {
 		inst = e.devs[0].poll.Name
 	}
+	// A transmitter's output outside the NE 43 band is a finding of the
+	// point, said where the engineer following the log sees it.
+	flag := ""
+	if p.Signal != analysis.SignalNone {
+		flag = fmt.Sprintf("; output %s, %s", p.Signal, p.Signal.Describe())
+	}
 	e.emit(rr.r.id, slog.LevelInfo, "point", inst,
-		fmt.Sprintf("captured %s: reference %s, device %s (error %s)", describePoint(p), e.fmtPa(p.Reference.Mean), e.fmtPa(p.DUT.Mean), e.fmtPa(p.DUT.Mean-p.Reference.Mean)),
+		fmt.Sprintf("captured %s: reference %s, device %s (error %s)%s", describePoint(p), e.fmtPa(p.Reference.Mean), e.fmtPa(p.DUT.Mean), e.fmtPa(p.DUT.Mean-p.Reference.Mean), flag),
 		p)
 	return nil
 }
