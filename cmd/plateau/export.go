@@ -11,6 +11,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"plateau/acquire/store"
+	"plateau/analysis"
 	"plateau/analysis/units"
 )
 
@@ -27,8 +28,11 @@ func newExportCmd() *cobra.Command {
 		Long: `export writes every stored sample of a run (r000042, 42 or "last"), or of a
 window of it, as CSV: one row per reading with its time (RFC 3339, UTC), the
 instrument, the value and unit as the instrument gave them, and its status
-(ok, or why the read failed, with the detail). Rows come instrument by
-instrument, each in time order; values keep full precision.
+(ok, or why the read failed, with the detail). A loop current in mA outside
+the NE 43 measuring band is a good reading with its flag as the status
+(saturated, under-range, over-range, failure-low, failure-high) and what the
+flag means as the detail. Rows come instrument by instrument, each in time
+order; values keep full precision.
 
 export reads the store file itself. While the daemon holds the file, export
 from a copy: plateau backup copy.db && plateau export last --store copy.db`,
@@ -109,7 +113,7 @@ var exportHeader = []string{"time", "instrument", "value", "unit", "status", "de
 
 // exportSamples writes the samples of the named instruments in the window.
 // A pressure is converted to conv when given; other values (a loop
-// current) stay as read.
+// current) stay as read, a current with its NE 43 flag.
 func exportSamples(w io.Writer, st *store.Store, id store.RunID, names []string, window [2]time.Time, conv *units.Unit) error {
 	cw := csv.NewWriter(w)
 	if err := cw.Write(exportHeader); err != nil {
@@ -125,6 +129,9 @@ func exportSamples(w io.Writer, st *store.Store, id store.RunID, names []string,
 				row[2], row[3] = strconv.FormatFloat(conv.FromPa(s.Pa), 'g', -1, 64), conv.Symbol
 			default:
 				row[2], row[3] = strconv.FormatFloat(s.Raw, 'g', -1, 64), s.RawUnit
+			}
+			if f := s.Signal(); f != analysis.SignalNone {
+				row[4], row[5] = string(f), f.Describe()
 			}
 			return cw.Write(row)
 		})

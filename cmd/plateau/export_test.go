@@ -15,7 +15,8 @@ import (
 
 // export on a real store file: every sample of a run (instrument by
 // instrument, by name), a window of it, one instrument, pressures in another
-// unit, and a failed read with its reason.
+// unit, a failed read with its reason, and a loop current outside the
+// NE 43 band with its flag.
 func TestExportSamples(t *testing.T) {
 	path := filepath.Join(t.TempDir(), "export.db")
 	st, err := store.Open(path, store.Options{})
@@ -34,9 +35,14 @@ func TestExportSamples(t *testing.T) {
 		}
 		var readErr error
 		r := drivers.Reading{Time: at, Pa: 4e5, Raw: 12.5, RawUnit: "mA"}
-		if i == 3 {
+		switch i {
+		case 3:
 			readErr = &drivers.ReadError{Instrument: "dut", Kind: drivers.KindTimeout, Err: errors.New("no reply within 300ms")}
 			r = drivers.Reading{Time: at}
+		case 5: // an as-found zero below the NE 43 band (3.8–20.5 mA, REFERENCES.md §7)
+			r.Raw, r.Pa = 3.70, -0.3e5/16
+		case 6: // held at the band's lower limit
+			r.Raw, r.Pa = 3.8, -0.2e5/16
 		}
 		if err := st.Put(run.ID, "dut", store.SampleOf(r, readErr)); err != nil {
 			t.Fatal(err)
@@ -74,6 +80,8 @@ func TestExportSamples(t *testing.T) {
 		{"whole run", nil, 20, 11, "2026-03-01T21:00:01Z,ref,4.00001,bar,ok,"},
 		{"failed read", nil, 20, 3, "2026-03-01T21:00:03Z,dut,,,timeout,"},
 		{"loop current as read", nil, 20, 0, "2026-03-01T21:00:00Z,dut,12.5,mA,ok,"},
+		{"loop current below the band", nil, 20, 5, "2026-03-01T21:00:05Z,dut,3.7,mA,under-range,below the NE 43 measuring band (3.8–20.5 mA)"},
+		{"loop current at the band's limit", nil, 20, 6, "2026-03-01T21:00:06Z,dut,3.8,mA,saturated,at the NE 43 saturation limit"},
 		{"window", []string{"--from", "2026-03-01T21:00:02Z", "--to", "2026-03-01T21:00:04Z"}, 6, 3, "2026-03-01T21:00:02Z,ref,4.00002,bar,ok,"},
 		{"one instrument", []string{"--instrument", "ref"}, 10, 9, "2026-03-01T21:00:09Z,ref,4.00009,bar,ok,"},
 		{"in kPa", []string{"--instrument", "ref", "--unit", "kPa"}, 10, 2, "2026-03-01T21:00:02Z,ref,400.002,kPa,ok,"},
