@@ -61,7 +61,9 @@ the file cannot be read at all.`,
 }
 
 // describe prints what the configuration sets up, pressures in fixed
-// notation with the digits the device's resolution supports.
+// notation with the digits the device's resolution supports: each
+// instrument's mode (gauge or absolute) or, for an ambient one, its
+// quantity and unit, and the barometer that converts between modes.
 func describe(out io.Writer, cfg *config.Config) {
 	for _, dut := range cfg.Devices {
 		d := dut.Device
@@ -70,7 +72,7 @@ func describe(out io.Writer, cfg *config.Config) {
 			id += " (" + dut.Instrument + ")"
 		}
 		show, _ := displayFor(d, "")
-		fmt.Fprintf(out, "  device under test  %s, %s … %s, resolution %s\n", id,
+		fmt.Fprintf(out, "  device under test  %s, %s, %s … %s, resolution %s\n", id, orGauge(d.Mode),
 			show.withUnit(d.LowerPa), show.withUnit(d.UpperPa), show.withUnit(d.ResolutionPa))
 	}
 	r := cfg.Reference
@@ -79,8 +81,17 @@ func describe(out io.Writer, cfg *config.Config) {
 	if !r.ExpiresAt.IsZero() {
 		fmt.Fprintf(out, "  calibrated until   %s\n", r.ExpiresAt.Format("2006-01-02"))
 	}
+	var converted []string
 	for _, in := range cfg.Instruments {
-		fmt.Fprintf(out, "  instrument         %-12s %-9s %s %s\n", in.Name, in.Role, in.Link.Kind, in.Link.Address)
+		line := fmt.Sprintf("  instrument         %-12s %-9s %-16s %s %s", in.Name, in.Role, reads(in), in.Link.Kind, in.Link.Address)
+		fmt.Fprintln(out, strings.TrimRight(line, " "))
+		if cfg.Converted(in) {
+			converted = append(converted, fmt.Sprintf("%s (%s)", in.Name, config.InstrumentMode(in)))
+		}
+	}
+	if b, ok := cfg.Barometer(); ok && len(converted) > 0 {
+		fmt.Fprintf(out, "  barometer          %s converts %s to the devices' %s pressure, sample by sample\n",
+			b.Name, strings.Join(converted, " and "), cfg.BenchMode())
 	}
 	show, _ := displayFor(cfg.Device, "")
 	p := cfg.Procedure
@@ -135,6 +146,27 @@ func roundDuration(d time.Duration) string {
 		s = strings.Replace(s, z, z[:1], 1)
 	}
 	return s
+}
+
+// reads is what an instrument reads: the mode of a pressure instrument
+// (a source is set in it), the quantity and unit of an ambient one.
+func reads(in config.Instrument) string {
+	if a, ok := config.AmbientOf(in); ok {
+		return string(a.Kind) + ", " + a.Unit.Symbol
+	}
+	if in.Role == config.RoleAmbient { // refused by the checks; said as written
+		return orDash(in.Quantity)
+	}
+	return config.InstrumentMode(in)
+}
+
+// orGauge is a resolved mode; a device section built in code has none and
+// reads gauge pressure.
+func orGauge(mode string) string {
+	if mode == "" {
+		return config.ModeGauge
+	}
+	return mode
 }
 
 func orDash(s string) string {

@@ -130,30 +130,51 @@ func TestVersionCommand(t *testing.T) {
 }
 
 // What check prints of a clean file, whole: pressures in the device's unit
-// with the digits of its resolution, the plan's duration, the store.
+// with the digits of its resolution, each instrument's mode or ambient
+// quantity, the barometer that converts between modes, the plan's
+// duration, the store.
 func TestCheckDescribesGolden(t *testing.T) {
-	cfg, err := config.Load("../../testdata/config/sim.yaml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	var b strings.Builder
-	describe(&b, cfg)
-	// sim.yaml: one exercise (10s dwell, 5s hold at the bottom), 2 cycles ×
-	// 14 captures × (5s hold + 10s window, or 5m time-out), 20s at the top
-	// of each cycle; the simulated clock runs 20× faster.
-	want := `  device under test  DEMO-16, 0.00 bar … 16.00 bar, resolution 0.01 bar
+	// Both files: one exercise (10s dwell, 5s hold at the bottom), 2 cycles
+	// × 14 captures × (5s hold + 10s window, or 5m time-out), 20s at the
+	// top of each cycle; the simulated clock runs 20× faster.
+	for _, c := range []struct{ file, want string }{
+		{"sim.yaml", `  device under test  DEMO-16, gauge, 0.00 bar … 16.00 bar, resolution 0.01 bar
   reference          SIM-REF, U = 0.01 % of reading + 0.1 mbar (k = 2)
-  instrument         ref          reference sim
-  instrument         dut          device    sim
-  instrument         controller   source    sim
+  instrument         ref          reference gauge            sim
+  instrument         dut          device    gauge            sim
+  instrument         controller   source    gauge            sim
   procedure          plan: 6 points × 2 cycle(s), 1 exercise cycle(s), decision rule four-state
   points             0.00 bar, 3.20 bar, 6.40 bar, 9.60 bar, 12.80 bar, 16.00 bar
   safety limit       16.50 bar
   duration           at least 7m55s (holds and settle windows), at most 2h23m (every point to its time-out); reaching each pressure comes on top
                      the simulated bench runs 20× faster: at least 24s of wall time
   store              plateau-sim.db
-`
-	if got := trimTrailing(b.String()); got != want {
-		t.Errorf("got\n%s\nwant\n%s", got, want)
+`},
+		{"ambient.yaml", `  device under test  DEMO-16G, gauge, 0.00 bar … 16.00 bar, resolution 0.01 bar
+  reference          SIM-REF-A, U = 0.01 % of reading + 0.1 mbar (k = 2)
+  instrument         ref          reference absolute         sim
+  instrument         dut          device    gauge            sim
+  instrument         controller   source    gauge            sim
+  instrument         baro         ambient   barometric, hPa  sim
+  instrument         room         ambient   temperature, °C  sim
+  instrument         humidity     ambient   humidity, %RH    sim
+  barometer          baro converts ref (absolute) to the devices' gauge pressure, sample by sample
+  procedure          plan: 6 points × 2 cycle(s), 1 exercise cycle(s), decision rule four-state
+  points             0.00 bar, 3.20 bar, 6.40 bar, 9.60 bar, 12.80 bar, 16.00 bar
+  safety limit       16.50 bar
+  duration           at least 7m55s (holds and settle windows), at most 2h23m (every point to its time-out); reaching each pressure comes on top
+                     the simulated bench runs 20× faster: at least 24s of wall time
+  store              plateau-ambient.db
+`},
+	} {
+		cfg, err := config.Load("../../testdata/config/" + c.file)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var b strings.Builder
+		describe(&b, cfg)
+		if got := trimTrailing(b.String()); got != c.want {
+			t.Errorf("%s: got\n%s\nwant\n%s", c.file, got, c.want)
+		}
 	}
 }
