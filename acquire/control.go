@@ -302,7 +302,7 @@ func (e *Engine) Enter(en Entry) error {
 	}
 	pa := u.ToPa(en.Value)
 	if !en.Confirmed {
-		if why := e.implausible(pa, st.WaitingForPa); why != "" {
+		if why := e.implausible(d, pa, st.WaitingForPa); why != "" {
 			return &ImplausibleError{Why: why}
 		}
 	}
@@ -319,9 +319,12 @@ func (e *Engine) Enter(en Entry) error {
 	return nil
 }
 
-// dialFor finds the dial an entry is for: the named one, or the only one.
+// dialFor finds the dial an entry is for: the named one; without a name,
+// the only dial, or the only one a step is waiting for (the procedure asks
+// several dials in turn), so an operator names a dial only when it is not
+// clear which one the reading is for.
 func (e *Engine) dialFor(name string) (*device, error) {
-	var dials []*device
+	var dials, waiting []*device
 	for _, d := range e.devs {
 		if d.enterer == nil {
 			continue
@@ -330,34 +333,48 @@ func (e *Engine) dialFor(name string) (*device, error) {
 			return d, nil
 		}
 		dials = append(dials, d)
+		if d.poll.State().Waiting != "" {
+			waiting = append(waiting, d)
+		}
 	}
 	switch {
-	case name != "":
-		return nil, fmt.Errorf("no dial read by an operator is named %q", name)
 	case len(dials) == 0:
 		return nil, errors.New("no device under test is read by an operator (link kind manual)")
-	case len(dials) > 1:
-		names := make([]string, len(dials))
-		for i, d := range dials {
-			names[i] = d.poll.Name
-		}
-		return nil, fmt.Errorf("this run has several dials (%s): say which one the reading is for", strings.Join(names, ", "))
+	case name != "":
+		return nil, fmt.Errorf("no dial read by an operator is named %q; the dials are %s", name, dialNames(dials))
+	case len(dials) == 1:
+		return dials[0], nil
+	case len(waiting) == 1:
+		return waiting[0], nil
+	case len(waiting) > 1:
+		return nil, fmt.Errorf("several dials are waiting for a reading (%s): say which one the reading is for", dialNames(waiting))
 	}
-	return dials[0], nil
+	return nil, fmt.Errorf("%w: none of the dials (%s) is waiting for a reading; enter it when the run asks for it", ErrNoStepWaiting, dialNames(dials))
 }
 
-// implausible says why a dial entry looks wrong, or "".
-func (e *Engine) implausible(pa, target float64) string {
-	d := e.cfg.Device
-	span := d.UpperPa - d.LowerPa
-	if pa < d.LowerPa-0.1*span || pa > d.UpperPa+0.1*span {
-		return fmt.Sprintf("%s is outside the dial's range %s … %s", e.fmtPa(pa), e.fmtPa(d.LowerPa), e.fmtPa(d.UpperPa))
+func dialNames(ds []*device) string {
+	names := make([]string, len(ds))
+	for i, d := range ds {
+		names[i] = d.poll.Name
+	}
+	return strings.Join(names, ", ")
+}
+
+// implausible says why an entry for dial d looks wrong, or "": judged on
+// that dial's own range and permissible error.
+func (e *Engine) implausible(d *device, pa, target float64) string {
+	dev, _, _ := record.AnalysisInputs(e.cfg)
+	if one, ok := record.Of(e.cfg).ForDevice(d.poll.Name); ok {
+		dev = one.Device
+	}
+	span := dev.UpperPa - dev.LowerPa
+	if pa < dev.LowerPa-0.1*span || pa > dev.UpperPa+0.1*span {
+		return fmt.Sprintf("%s is outside the dial's range %s … %s", e.fmtPa(pa), e.fmtPa(dev.LowerPa), e.fmtPa(dev.UpperPa))
 	}
 	limit := e.cfg.Procedure.EntryLimit
 	if limit <= 0 {
 		limit = 5
 	}
-	dev, _, _ := record.AnalysisInputs(e.cfg)
 	if mpe := dev.MPE(target); mpe > 0 && math.Abs(pa-target) > limit*mpe {
 		return fmt.Sprintf("%s is %s from the target %s, more than %g times the permissible error %s", e.fmtPa(pa), e.fmtPa(math.Abs(pa-target)), e.fmtPa(target), limit, e.fmtPa(mpe))
 	}
