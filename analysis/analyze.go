@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"time"
 
+	"plateau/analysis/readout"
 	"plateau/analysis/units"
 )
 
@@ -263,7 +264,7 @@ func Analyze(points []Point, dev Device, ref Reference, opt Options) (Result, er
 	if len(points) == 0 {
 		return Result{}, errors.New("no points to analyse")
 	}
-	say := messages{opt.Unit}
+	say := messages{opt.Unit, dev.ResolutionPa}
 	headAt := func(p float64) float64 {
 		if !ref.Head.enabled() {
 			return 0
@@ -850,7 +851,7 @@ func summarise(rs []reading) *SeriesSummary {
 // display unit and with the table's point numbers.
 func pointWarnings(pr PointResult, dev Device, opt Options, say messages) []string {
 	var w []string
-	at := fmt.Sprintf("point %d (%s)", pr.Index+1, say.p(pr.NominalPa))
+	at := fmt.Sprintf("point %d (%s)", pr.Index+1, say.nominal(pr.NominalPa))
 	for _, c := range pr.HysteresisCycles {
 		if c.Decision != "" && c.Decision != Pass {
 			w = append(w, fmt.Sprintf("%s: the cycle %d hysteresis %s against the limit %s: the point %s", at, c.Cycle, say.p(c.HysteresisPa), say.p(*pr.HysteresisLimitPa), verb(c.Decision)))
@@ -897,12 +898,18 @@ func verb(o Outcome) string {
 	return "fail"
 }
 
-// messages formats pressures for warnings and errors in the display unit.
-type messages struct{ u units.Unit }
-
-func (m messages) p(pa float64) string {
-	return strconv.FormatFloat(m.u.FromPa(pa), 'g', 6, 64) + " " + m.u.Symbol
+// messages formats pressures for warnings and errors in the display unit,
+// in fixed notation with the digits of a mean at the device's resolution:
+// people read them.
+type messages struct {
+	u   units.Unit
+	res float64 // the device's resolution, Pa
 }
+
+func (m messages) p(pa float64) string { return readout.MeanWithUnit(pa, m.u, m.res) }
+
+// nominal is a set point: the resolution's own digits, no extra one.
+func (m messages) nominal(pa float64) string { return readout.WithUnit(pa, m.u, m.res) }
 
 func (m messages) signed(pa float64) string {
 	s := m.p(pa)

@@ -550,7 +550,7 @@ func TestCompare(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if c, err := Compare(found, short); err != nil || len(c.Warnings) != 1 || c.Warnings[0] != "point 5 (8 bar) has no as-left reading" {
+	if c, err := Compare(found, short); err != nil || len(c.Warnings) != 1 || c.Warnings[0] != "point 5 (8.0000 bar) has no as-left reading" {
 		t.Errorf("warnings %q (%v)", c.Warnings, err)
 	}
 	other := dev16

@@ -51,7 +51,7 @@ func Compare(asFound, asLeft Result) (Comparison, error) {
 	if u.Pa == 0 {
 		u = units.Pascal
 	}
-	say := messages{u}
+	say := messages{u, asLeft.Device.ResolutionPa}
 	left := map[int]PointResult{}
 	for _, p := range asLeft.Points {
 		left[p.Index] = p
@@ -59,12 +59,12 @@ func Compare(asFound, asLeft Result) (Comparison, error) {
 	for _, f := range asFound.Points {
 		l, ok := left[f.Index]
 		if !ok {
-			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (%s) has no as-left reading", f.Index+1, say.p(f.NominalPa)))
+			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (%s) has no as-left reading", f.Index+1, say.nominal(f.NominalPa)))
 			continue
 		}
 		delete(left, f.Index)
 		if f.NominalPa != l.NominalPa {
-			return Comparison{}, fmt.Errorf("compare: point %d is nominal %s as found but %s as left", f.Index+1, say.p(f.NominalPa), say.p(l.NominalPa))
+			return Comparison{}, fmt.Errorf("compare: point %d is nominal %s as found but %s as left", f.Index+1, say.nominal(f.NominalPa), say.p(l.NominalPa))
 		}
 		c.Points = append(c.Points, PointChange{
 			Index: f.Index, NominalPa: f.NominalPa,
@@ -76,7 +76,7 @@ func Compare(asFound, asLeft Result) (Comparison, error) {
 	}
 	for _, p := range asLeft.Points {
 		if _, ok := left[p.Index]; ok {
-			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (%s) has no as-found reading", p.Index+1, say.p(p.NominalPa)))
+			c.Warnings = append(c.Warnings, fmt.Sprintf("point %d (%s) has no as-found reading", p.Index+1, say.nominal(p.NominalPa)))
 		}
 	}
 	if len(c.Points) == 0 {

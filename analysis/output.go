@@ -234,7 +234,7 @@ func output(res Result, points []Point, loop Loop, opt Options) (*OutputResult, 
 		return nil, nil, err
 	}
 	f := loop.perPa()
-	say := messages{opt.Unit}
+	say := messages{opt.Unit, res.Device.ResolutionPa}
 	type readingKey struct {
 		index, cycle int
 		dir          Direction
@@ -263,7 +263,7 @@ func output(res Result, points []Point, loop Loop, opt Options) (*OutputResult, 
 			if or.Signal != SignalNone {
 				out.Flagged++
 				warnings = append(warnings, fmt.Sprintf("point %d (%s), cycle %d %s: the output read %.3f mA, %s; evaluated as found",
-					pr.Index+1, say.p(pr.NominalPa), r.Cycle, dirWord(r.Direction), or.MeasuredMA, or.Signal.Describe()))
+					pr.Index+1, say.nominal(pr.NominalPa), r.Cycle, dirWord(r.Direction), or.MeasuredMA, or.Signal.Describe()))
 			}
 			if or.Signal.severity() > op.Signal.severity() {
 				op.Signal = or.Signal

@@ -72,7 +72,7 @@ func TestVerdictEachDirectionAndCycle(t *testing.T) {
 				if math.Abs(p.MeanErrorPa-0.155*bar) > 1e-6 || p.DownResult == nil || p.DownResult.Decision != Fail {
 					t.Errorf("8 bar: mean %g Pa, down %+v", p.MeanErrorPa, p.DownResult)
 				}
-				if !hasWarning(r, "point 3 (8 bar): the descending readings fail (cycle 1 error +0.21 bar, MPE 0.16 bar") {
+				if !hasWarning(r, "point 3 (8.00 bar): the descending readings fail (cycle 1 error +0.210 bar, MPE 0.160 bar") {
 					t.Errorf("no warning in bar with the table's numbering: %q", r.Warnings)
 				}
 			},

@@ -300,9 +300,11 @@ func (n numbers) plannedPoints(info Info, res analysis.Result) string {
 			pts = append(pts, p.NominalPa)
 		}
 	}
+	// Nominals in fixed notation with the resolution's own digits (a
+	// nominal is set, not averaged, so it gets no extra digit).
 	s := make([]string, len(pts))
 	for i, p := range pts {
-		s[i] = strconv.FormatFloat(n.u.FromPa(p), 'g', 6, 64)
+		s[i] = strconv.FormatFloat(n.u.FromPa(p), 'f', max(n.decimals-1, 0), 64)
 	}
 	return strings.Join(s, ", ") + " " + n.u.Symbol
 }

@@ -133,7 +133,7 @@ func TestStoppedRunAndNotEvaluated(t *testing.T) {
 		"Readings missed        cycle 1 up point 3 (16.000 bar): timed out",
 		"VERDICT: FAIL",
 		"the verdict covers only the readings shown",
-		"point 2 (8 bar): the descending readings fail (cycle 1 error +0.21 bar, MPE 0.16 bar",
+		"point 2 (8.00 bar): the descending readings fail (cycle 1 error +0.210 bar, MPE 0.160 bar",
 		"Zero deviation                     not evaluated",
 		"Linearity                          not evaluated",
 		"repeatability  not evaluated",
