@@ -101,12 +101,16 @@ type StopRequest struct {
 	Reason string `json:"reason,omitempty"`
 }
 
-// Entry is an operator's reading of an analog dial at the current step.
+// Entry is an operator's reading of an analog dial at the current step,
+// or of an ambient instrument read by a person (a room thermometer).
 type Entry struct {
-	// Device names the dial when the run has several; empty for the only one.
+	// Device names the dial when the run has several, or the ambient
+	// instrument; empty for the only dial.
 	Device string  `json:"device,omitempty"`
 	Value  float64 `json:"value"`
-	Unit   string  `json:"unit"` // a pressure unit symbol, e.g. "bar", "kPa", "psi"
+	// Unit is the unit as typed: a pressure unit symbol ("bar", "kPa",
+	// "psi"), or an ambient instrument's ("°C", "K", "°F", "%RH", "hPa").
+	Unit string `json:"unit"`
 	// Confirm takes an entry that the daemon found implausible (outside
 	// the range, far from the target) after the operator checked it.
 	Confirm bool `json:"confirm,omitempty"`
@@ -221,11 +225,11 @@ type LastRun struct {
 // the daemon started and only ever grow.
 type InstrumentInfo struct {
 	Name      string            `json:"name"`
-	Role      string            `json:"role"` // reference | device | source
+	Role      string            `json:"role"` // reference | device | source | ambient
 	Up        bool              `json:"up"`   // the last read succeeded
 	Reads     uint64            `json:"reads"`
 	Errors    map[string]uint64 `json:"errors,omitempty"` // failed reads by reason (timeout, link_down, …)
-	LastPa    float64           `json:"last_pa"`
+	LastPa    float64           `json:"last_pa"` // an ambient instrument's in its quantity's base unit: °C, %RH or Pa
 	LastAt    time.Time         `json:"last_at,omitzero"`
 	Settled   bool              `json:"settled"`
 	LastError string            `json:"last_error,omitempty"`
@@ -236,9 +240,14 @@ type InstrumentInfo struct {
 	// Device is the identity of a device under test (its serial or tag).
 	Device string `json:"device,omitempty"`
 	// Raw and RawUnit are the last good reading as the instrument gave it
-	// (bar, mA, counts…), before conversion to pascal.
+	// (bar, mA, counts…, an ambient one's °C, %RH, hPa…), before
+	// conversion to pascal.
 	Raw     float64 `json:"raw"`
 	RawUnit string  `json:"raw_unit,omitempty"`
+	// Quantity is what an ambient instrument reads: temperature, humidity
+	// or barometric; empty for the others, and for an ambient instrument
+	// whose readings have not said it yet.
+	Quantity string `json:"quantity,omitempty"`
 	// Why says what the instrument's settle rule still waits for ("drifting
 	// 0.004 bar/min, limit 0.002 bar/min"); empty when settled.
 	Why string `json:"why,omitempty"`

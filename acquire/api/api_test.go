@@ -60,8 +60,11 @@ func TestEveryCall(t *testing.T) {
 			}
 
 			st, err := c.Status(ctx)
-			if err != nil || st.Version != "test" || st.Run != nil || len(st.Instruments) != 1 {
+			if err != nil || st.Version != "test" || st.Run != nil || len(st.Instruments) != 2 {
 				t.Fatalf("status when idle = %+v, %v", st, err)
+			}
+			if in := st.Instruments[1]; in.Quantity != "temperature" || in.Raw != 21.5 || in.RawUnit != "°C" || st.Instruments[0].Quantity != "" {
+				t.Fatalf("status names the quantity of an ambient instrument only: %+v", st.Instruments)
 			}
 			id, err := c.Start(ctx, StartRequest{Label: "as-found PG-0421"})
 			if err != nil || id != "r000001" {
@@ -122,7 +125,15 @@ func TestEveryCall(t *testing.T) {
 				t.Fatal(err)
 			}
 			expectStatus(c.Enter(ctx, Entry{Value: 500, Unit: "bar"}), http.StatusBadRequest, "reading beyond scale")
-			if got := h.bench.entries; len(got) != 1 || got[0] != (Entry{Value: 4.02, Unit: "bar"}) {
+			// An ambient instrument's reading keeps the unit as typed.
+			for _, u := range []string{"°C", "%RH", "hPa", "degF"} {
+				if err := c.Enter(ctx, Entry{Device: "room", Value: 23.4, Unit: u}); err != nil {
+					t.Fatalf("entry in %s: %v", u, err)
+				}
+			}
+			got := h.bench.entries
+			if len(got) != 5 || got[0] != (Entry{Value: 4.02, Unit: "bar"}) || got[1] != (Entry{Device: "room", Value: 23.4, Unit: "°C"}) ||
+				got[2].Unit != "%RH" || got[4].Unit != "degF" {
 				t.Fatalf("entries = %+v", got)
 			}
 
@@ -257,6 +268,7 @@ func TestBadRequests(t *testing.T) {
 		{"missing value", "POST", "/api/v1/entry", "application/json", `{"unit": "bar"}`, 400, `field "value": missing`},
 		{"missing unit", "POST", "/api/v1/entry", "application/json", `{"value": 3}`, 400, `field "unit": missing`},
 		{"unknown unit", "POST", "/api/v1/entry", "application/json", `{"value": 3, "unit": "furlong"}`, 400, `unknown pressure unit "furlong"`},
+		{"unknown ambient unit", "POST", "/api/v1/entry", "application/json", `{"device": "room", "value": 3, "unit": "°R"}`, 400, `nor a temperature (°C, K, °F) or humidity (%RH) of an ambient instrument`},
 		{"number too big", "POST", "/api/v1/entry", "application/json", `{"value": 1e400, "unit": "bar"}`, 400, `field "value": 1e400 is out of range`},
 		{"plain text", "POST", "/api/v1/entry", "text/plain", `{"value": 1, "unit": "bar"}`, 415, "send application/json"},
 		{"label too long", "POST", "/api/v1/start", "application/json", `{"label": "` + strings.Repeat("é", 201) + `"}`, 400, `field "label": 201 characters, at most 200`},

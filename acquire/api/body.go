@@ -13,6 +13,7 @@ import (
 	"unicode"
 	"unicode/utf8"
 
+	"plateau/analysis/readout"
 	"plateau/analysis/units"
 )
 
@@ -141,9 +142,13 @@ func (b entryBody) entry() (Entry, error) {
 		errs = append(errs, invalid(`field "value": not a finite number`))
 	}
 	if b.Unit == "" {
-		errs = append(errs, invalid(`field "unit": missing; give the unit the dial is marked in (%s)`, strings.Join(units.Symbols(), ", ")))
+		errs = append(errs, invalid(`field "unit": missing; give the unit the dial is marked in (%s), or an ambient reading's (°C, K, °F, %%RH, hPa)`, strings.Join(units.Symbols(), ", ")))
 	} else if _, err := units.Lookup(b.Unit); err != nil {
-		errs = append(errs, invalid(`field "unit": %v`, err))
+		// An ambient instrument typed in by a person reads in its own
+		// quantity's units; the engine checks it is the instrument's.
+		if _, ambient := readout.Quantity(b.Unit); !ambient {
+			errs = append(errs, invalid(`field "unit": %v, nor a temperature (°C, K, °F) or humidity (%%RH) of an ambient instrument`, err))
+		}
 	}
 	if len(errs) > 0 {
 		return Entry{}, errors.Join(errs...)

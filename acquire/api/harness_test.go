@@ -87,6 +87,8 @@ func (b *bench) Status(context.Context) Status {
 	st := Status{Version: "test", Instruments: []InstrumentInfo{{
 		Name: "ref", Role: "reference", Up: true, Reads: 42, Errors: map[string]uint64{"timeout": 3},
 		LastPa: 101325, LastAt: time.Unix(1700000000, 0), Settled: true,
+	}, {
+		Name: "room", Role: RoleAmbient, Up: true, Reads: 3, LastPa: 21.5, LastAt: time.Unix(1700000000, 0), Raw: 21.5, RawUnit: "°C",
 	}}, PointsCaptured: 7, Progress: 0.25}
 	if b.current != 0 {
 		if r, err := b.st.Run(b.current); err == nil {
@@ -136,7 +138,7 @@ func (b *bench) Pause(context.Context) error  { return b.change(store.StatePause
 func (b *bench) Resume(context.Context) error { return b.change(store.StateRunning, "resumed", false) }
 
 func (b *bench) Enter(_ context.Context, e Entry) error {
-	u, _ := units.Lookup(e.Unit)
+	u, _ := units.Lookup(e.Unit) // an ambient unit: no pressure, 0 Pa
 	if u.ToPa(e.Value) > 10e6 {
 		return fmt.Errorf("reading %g %s is beyond the dial's scale: %w", e.Value, e.Unit, ErrInvalid)
 	}

@@ -8,6 +8,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
 	"plateau/acquire/store"
+	"plateau/analysis/units"
 )
 
 // scrapeTimeout bounds the status call behind one scrape.
@@ -20,7 +21,7 @@ type statusCollector struct {
 	status func(context.Context) Status
 
 	reads, readErrors, lastValue, lastRead, up, settled *prometheus.Desc
-	info                                                *prometheus.Desc
+	info, ambient                                       *prometheus.Desc
 	points, progress, runState, lastRunState            *prometheus.Desc
 	tripped, storeFault                                 *prometheus.Desc
 }
@@ -34,9 +35,11 @@ func newStatusCollector(status func(context.Context) Status) *statusCollector {
 		status: status,
 		info: prometheus.NewDesc("plateau_instrument_info", "Always 1: which instrument reads which device under test (its identity; empty for the reference and the source), to join the other instrument metrics with.",
 			[]string{"instrument", "role", "device"}, nil),
-		reads:        prometheus.NewDesc("plateau_instrument_reads_total", "Read attempts per instrument since the daemon started, good or failed.", inst, nil),
-		readErrors:   prometheus.NewDesc("plateau_instrument_read_errors_total", "Failed reads per instrument and reason (timeout, link_down, bad_reply, out_of_range, overload).", []string{"instrument", "kind"}, nil),
-		lastValue:    prometheus.NewDesc("plateau_instrument_last_value_pascals", "The instrument's last good reading in pascal.", inst, nil),
+		reads:      prometheus.NewDesc("plateau_instrument_reads_total", "Read attempts per instrument since the daemon started, good or failed.", inst, nil),
+		readErrors: prometheus.NewDesc("plateau_instrument_read_errors_total", "Failed reads per instrument and reason (timeout, link_down, bad_reply, out_of_range, overload).", []string{"instrument", "kind"}, nil),
+		lastValue:  prometheus.NewDesc("plateau_instrument_last_value_pascals", "The last good reading in pascal of an instrument that reads a pressure (a barometer too; a temperature or humidity is in plateau_ambient).", inst, nil),
+		ambient: prometheus.NewDesc("plateau_ambient", "An ambient instrument's last good reading in its quantity's base unit, whatever unit the instrument reads in: °C for temperature, %RH for humidity, Pa for barometric.",
+			[]string{"instrument", "quantity"}, nil),
 		lastRead:     prometheus.NewDesc("plateau_instrument_last_read_timestamp_seconds", "When the instrument's last good reading was taken (Unix time).", inst, nil),
 		up:           prometheus.NewDesc("plateau_instrument_up", "1 when the instrument's last read succeeded.", inst, nil),
 		settled:      prometheus.NewDesc("plateau_instrument_settled", "1 while the instrument's readings hold steady by the settle rule.", inst, nil),
@@ -50,7 +53,7 @@ func newStatusCollector(status func(context.Context) Status) *statusCollector {
 }
 
 func (c *statusCollector) Describe(ch chan<- *prometheus.Desc) {
-	for _, d := range []*prometheus.Desc{c.info, c.reads, c.readErrors, c.lastValue, c.lastRead, c.up, c.settled, c.points, c.progress,
+	for _, d := range []*prometheus.Desc{c.info, c.reads, c.readErrors, c.lastValue, c.ambient, c.lastRead, c.up, c.settled, c.points, c.progress,
 		c.runState, c.lastRunState, c.tripped, c.storeFault} {
 		ch <- d
 	}
@@ -67,7 +70,12 @@ func (c *statusCollector) Collect(ch chan<- prometheus.Metric) {
 			ch <- prometheus.MustNewConstMetric(c.readErrors, prometheus.CounterValue, float64(n), in.Name, kind)
 		}
 		if !in.LastAt.IsZero() {
-			ch <- prometheus.MustNewConstMetric(c.lastValue, prometheus.GaugeValue, in.LastPa, in.Name)
+			if in.Role != RoleAmbient || in.Quantity == string(units.Barometric) {
+				ch <- prometheus.MustNewConstMetric(c.lastValue, prometheus.GaugeValue, in.LastPa, in.Name)
+			}
+			if in.Role == RoleAmbient && in.Quantity != "" {
+				ch <- prometheus.MustNewConstMetric(c.ambient, prometheus.GaugeValue, in.LastPa, in.Name, in.Quantity)
+			}
 			ch <- prometheus.MustNewConstMetric(c.lastRead, prometheus.GaugeValue, float64(in.LastAt.UnixNano())/1e9, in.Name)
 		}
 		ch <- prometheus.MustNewConstMetric(c.up, prometheus.GaugeValue, boolValue(in.Up), in.Name)

@@ -227,3 +227,44 @@ plateau_instrument_info{device="PG-0422",instrument="dut2",role="device"} 1
 		t.Fatal(err)
 	}
 }
+
+// statusOnly is a control that only tells its status.
+type statusOnly struct {
+	Control
+	st Status
+}
+
+func (c statusOnly) Status(context.Context) Status { return c.st }
+
+// Ambient instruments have a series of their own in their quantity's base
+// unit, named from the unit of their readings (a °F thermometer still
+// gives °C, 71.6 °F = 22 °C exactly); only the barometer's reading is a
+// pressure in pascal, and one that has not read yet has no series.
+func TestAmbientMetrics(t *testing.T) {
+	at := time.Date(2026, 3, 1, 21, 0, 0, 0, time.UTC)
+	st := Status{Instruments: []InstrumentInfo{
+		{Name: "ref", Role: "reference", Up: true, LastPa: 4e5, LastAt: at, Raw: 4, RawUnit: "bar"},
+		{Name: "room", Role: "ambient", Up: true, LastPa: 22, LastAt: at, Raw: 71.6, RawUnit: "°F"},
+		{Name: "humidity", Role: "ambient", Up: true, LastPa: 45.1, LastAt: at, Raw: 45.1, RawUnit: "%RH"},
+		{Name: "baro", Role: "ambient", Up: true, LastPa: 101338, LastAt: at, Raw: 1013.38, RawUnit: "hPa"},
+		{Name: "typed", Role: "ambient", Up: true},
+	}}
+	col := newStatusCollector(statusOf(statusOnly{st: st}))
+	want := `
+# HELP plateau_ambient An ambient instrument's last good reading in its quantity's base unit, whatever unit the instrument reads in: °C for temperature, %RH for humidity, Pa for barometric.
+# TYPE plateau_ambient gauge
+plateau_ambient{instrument="baro",quantity="barometric"} 101338
+plateau_ambient{instrument="humidity",quantity="humidity"} 45.1
+plateau_ambient{instrument="room",quantity="temperature"} 22
+# HELP plateau_instrument_last_value_pascals The last good reading in pascal of an instrument that reads a pressure (a barometer too; a temperature or humidity is in plateau_ambient).
+# TYPE plateau_instrument_last_value_pascals gauge
+plateau_instrument_last_value_pascals{instrument="baro"} 101338
+plateau_instrument_last_value_pascals{instrument="ref"} 400000
+`
+	if err := testutil.CollectAndCompare(col, strings.NewReader(want), "plateau_ambient", "plateau_instrument_last_value_pascals"); err != nil {
+		t.Fatal(err)
+	}
+	if st.Instruments[1].Quantity != "" {
+		t.Error("naming the quantities changed the control's own status")
+	}
+}

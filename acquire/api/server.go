@@ -93,8 +93,9 @@ type Server struct {
 	log     *slog.Logger
 	reg     *prometheus.Registry
 	stream  *streamMetrics
-	stopped chan struct{} // closed by Shutdown: ends event streams
-	viewers atomic.Int64  // event streams open now
+	status  func(context.Context) Status // the control's, ambient quantities named
+	stopped chan struct{}                // closed by Shutdown: ends event streams
+	viewers atomic.Int64                 // event streams open now
 
 	mu      sync.Mutex
 	servers []*http.Server
@@ -132,7 +133,8 @@ func New(o Options) (*Server, error) {
 		o.Logger = slog.New(slog.DiscardHandler)
 	}
 	s := &Server{o: o, log: o.Logger, reg: prometheus.NewRegistry(), stopped: make(chan struct{})}
-	s.stream = registerMetrics(s.reg, o.Version, o.Control.Status)
+	s.status = statusOf(o.Control)
+	s.stream = registerMetrics(s.reg, o.Version, s.status)
 	registerStoreMetrics(s.reg, o.Records)
 	return s, nil
 }
@@ -314,7 +316,7 @@ func (s *Server) handleReady(w http.ResponseWriter, _ *http.Request) {
 }
 
 func (s *Server) handleStatus(w http.ResponseWriter, r *http.Request) {
-	st := s.o.Control.Status(r.Context())
+	st := s.status(r.Context())
 	last, err := s.o.Records.LastEventID()
 	if err != nil {
 		s.fail(w, fmt.Errorf("status: last event id: %w", err))

@@ -103,3 +103,35 @@ func TestPlain(t *testing.T) {
 		}
 	}
 }
+
+// An ambient reading in its own unit: the quantity from the unit, fixed
+// digits (0.01 for a temperature, 0.1 %RH, 1 Pa of a barometer in its own
+// unit), never scientific notation.
+func TestAmbient(t *testing.T) {
+	cases := []struct {
+		v      float64
+		symbol string
+		kind   units.AmbientKind
+		want   string
+	}{
+		{21.033262252807617, "°C", units.Temperature, "21.03 °C"},
+		{294.18, "K", units.Temperature, "294.18 K"},
+		{69.8, "°F", units.Temperature, "69.80 °F"},
+		{45.06431198120117, "%RH", units.Humidity, "45.1 %RH"},
+		{1013.3800048828125, "hPa", units.Barometric, "1013.38 hPa"},
+		{1.0133800048828125, "bar", units.Barometric, "1.01338 bar"},
+		{101.338, "kPa", units.Barometric, "101.338 kPa"},
+		{14.6976, "psi", units.Barometric, "14.6976 psi"},
+		{-0.004, "°C", units.Temperature, "0.00 °C"},
+		{1e-7, "counts", "", "0.0000001 counts"},
+	}
+	for _, c := range cases {
+		k, ok := Quantity(c.symbol)
+		if k != c.kind || ok != (c.kind != "") {
+			t.Errorf("Quantity(%q) = %q, %v; want %q", c.symbol, k, ok, c.kind)
+		}
+		if got := Ambient(c.v, c.symbol); got != c.want {
+			t.Errorf("Ambient(%v, %q) = %q, want %q", c.v, c.symbol, got, c.want)
+		}
+	}
+}

@@ -13,6 +13,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"plateau/acquire/api"
+	"plateau/analysis/readout"
 	"plateau/analysis/units"
 	"plateau/config"
 )
@@ -204,18 +205,32 @@ func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
 			if in.LastAt.After(now) { // a simulated bench runs its clock ahead
 				when = "at " + in.LastAt.Local().Format("15:04:05")
 			}
-			last = fmt.Sprintf("%s (%s)", show.withUnit(in.LastPa), when)
+			last = fmt.Sprintf("%s (%s)", lastReading(in, show), when)
 		}
 		settled := "no"
 		if in.Settled {
 			settled = "yes"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%d\t%s\n", instrumentName(in), in.Role, state, last, settled, in.Reads, failures(in.Errors))
+		role := in.Role
+		if in.Quantity != "" {
+			role += " (" + in.Quantity + ")"
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%d\t%s\n", instrumentName(in), role, state, last, settled, in.Reads, failures(in.Errors))
 		if in.LastError != "" {
 			fmt.Fprintf(tw, "\t\t\t└ %s\t\t\t\n", in.LastError)
 		}
 	}
 	tw.Flush()
+}
+
+// lastReading is an instrument's last good reading: a pressure in the
+// display's unit, an ambient instrument's in its own (°C, %RH, hPa) as
+// it gave it.
+func lastReading(in api.InstrumentInfo, show display) string {
+	if in.Role == api.RoleAmbient && in.RawUnit != "" {
+		return readout.Ambient(in.Raw, in.RawUnit)
+	}
+	return show.withUnit(in.LastPa)
 }
 
 // instrumentName is an instrument's name, with the identity of the device

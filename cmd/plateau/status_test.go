@@ -40,6 +40,16 @@ func TestStatusGoldenTechniciansView(t *testing.T) {
 		Plan: plan, ExpectedSeconds: 475, ExpectedMostSeconds: 8580, Settle: rule}
 	stopped := idle
 	stopped.Last = &api.LastRun{ID: "r000002", State: "stopped", Reason: "stopped by operator", Verdict: "pass", Earlier: true}
+	// Ambient instruments in their own units as they read them (a °F
+	// thermometer stays in °F); one typed by a person has no reading yet.
+	ambient := api.Status{Version: "1.2.0", Since: now.Add(-time.Hour), Unit: "bar", LastEventID: 12,
+		Instruments: []api.InstrumentInfo{
+			{Name: "ref", Role: "reference", Up: true, Reads: 900, LastPa: 0.25, LastAt: now.Add(-time.Second), Raw: 1.0133825540542603, RawUnit: "bar"},
+			{Name: "baro", Role: "ambient", Quantity: "barometric", Up: true, Reads: 374, LastPa: 101338.00048828125, LastAt: now.Add(-time.Second), Raw: 1013.3800048828125, RawUnit: "hPa"},
+			{Name: "room", Role: "ambient", Quantity: "temperature", Up: true, Reads: 80, LastPa: 21.1, LastAt: now.Add(-2 * time.Second), Raw: 69.98, RawUnit: "°F"},
+			{Name: "humidity", Role: "ambient", Quantity: "humidity", Up: true, Reads: 80, LastPa: 45.06431198120117, LastAt: now.Add(-2 * time.Second), Raw: 45.06431198120117, RawUnit: "%RH"},
+			{Name: "typed", Role: "ambient", Up: true},
+		}}
 	for _, c := range []struct {
 		name string
 		st   api.Status
@@ -85,6 +95,17 @@ last run  r000002 stopped: stopped by operator
 verdict   PASS — on the points captured before the run stopped; the calibration is incomplete
 a run     29 steps, at least 7m55s, at most 2h23m (reaching each pressure comes on top)
 points    28 captured since the daemon started; last event 120
+`},
+		{"ambient instruments", ambient, `daemon    plateau 1.2.0, up 1h0m0s
+run       none (idle)
+points    0 captured since the daemon started; last event 12
+
+INSTRUMENT  ROLE                   STATE  LAST READING          SETTLED  READS  FAILED
+ref         reference              up     0.00 bar (1s ago)     no       900    0
+baro        ambient (barometric)   up     1013.38 hPa (1s ago)  no       374    0
+room        ambient (temperature)  up     69.98 °F (2s ago)     no       80     0
+humidity    ambient (humidity)     up     45.1 %RH (2s ago)     no       80     0
+typed       ambient                up     —                     no       0      0
 `},
 	} {
 		t.Run(c.name, func(t *testing.T) {

@@ -67,6 +67,24 @@ function fmt(pa, u) {
 
 function seenPa(pa) { if (isFinite(pa)) state.topPa = Math.max(state.topPa, Math.abs(pa)); }
 
+// traced says whether an instrument's readings go on the pressure trace:
+// a source has none, and an ambient instrument reads the room (°C, %RH,
+// the barometer's absolute pressure), not the bench's pressure.
+function traced(role) { return role !== "source" && role !== "ambient"; }
+
+// ambientText shows an ambient instrument's reading in its own unit as it
+// gave it, fixed digits: 0.01 of a temperature, 0.1 %RH, 1 Pa of a
+// barometer in its unit (the daemon's status prints the same).
+function ambientText(i) {
+  let decimals = 2;
+  if (i.quantity === "humidity") decimals = 1;
+  else if (i.quantity === "barometric" && state.unitsPa[i.raw_unit]) {
+    decimals = Math.min(9, Math.max(0, Math.ceil(Math.log10(state.unitsPa[i.raw_unit]) - 1e-9)));
+  }
+  const text = i.raw.toFixed(decimals);
+  return (Number(text) === 0 ? text.replace("-", "") : text) + " " + i.raw_unit;
+}
+
 function clock(t) { return t ? new Date(t).toLocaleTimeString() : "—"; }
 
 function token() { return sessionStorage.getItem("plateau-token") || ""; }
@@ -288,7 +306,7 @@ function onStatus(st) {
   if (st.run) state.runState = st.run.state; else if (st.last && st.last.id === state.run) state.runState = st.last.state;
   for (const inst of st.instruments) {
     state.roles.set(inst.name, inst.role);
-    if (inst.last_at) { pushTrace(inst.name, Date.parse(inst.last_at) / 1000, inst.last_pa); seenPa(inst.last_pa); }
+    if (inst.last_at && traced(inst.role)) { pushTrace(inst.name, Date.parse(inst.last_at) / 1000, inst.last_pa); seenPa(inst.last_pa); }
   }
   renderHeader(st);
   renderInstruments(st);
@@ -342,9 +360,12 @@ function renderInstruments(st) {
       : i.settled ? "settled" : i.role === "source" ? "—" : i.why || "waiting to settle";
     // As the instrument gave it, in fixed notation (never 1e-7).
     const asRead = i.last_at && i.raw_unit ? i.raw.toLocaleString("en", { maximumFractionDigits: 9, useGrouping: false }) + " " + i.raw_unit : "—";
+    const ambient = i.role === "ambient";
+    const reading = !i.last_at ? "—" : ambient && i.raw_unit ? ambientText(i) : fmt(i.last_pa);
     return el("tr", { "data-name": i.name },
-      el("td", {}, i.device ? i.name + " (" + i.device + ")" : i.name), el("td", {}, i.role || ""),
-      el("td", { class: "num reading" }, i.last_at ? fmt(i.last_pa) : "—"),
+      el("td", {}, i.device ? i.name + " (" + i.device + ")" : i.name),
+      el("td", {}, (i.role || "") + (i.quantity ? " (" + i.quantity + ")" : "")),
+      el("td", { class: "num reading" }, reading),
       el("td", { class: "num raw" }, asRead),
       el("td", { class: i.up ? "up-yes" : "up-no" }, i.up ? "up" : "down"),
       el("td", {}, waiting), el("td", {}, clock(i.last_at)));
@@ -435,7 +456,7 @@ function pushTrace(name, t, pa) {
 // kept after the stored ones.
 async function backfillTrace(run, st) {
   for (const inst of st.instruments) {
-    if (inst.role === "source" || !inst.last_at) continue;
+    if (!traced(inst.role) || !inst.last_at) continue;
     const to = new Date(inst.last_at);
     const from = new Date(to.getTime() - TRACE_SECONDS * 1000);
     let rep;
@@ -473,7 +494,7 @@ function fit(chart, id) {
 // traceData merges the instruments' times into one x axis, as the chart
 // library wants, with gaps where an instrument has no reading.
 function traceData() {
-  const names = [...state.trace.keys()].filter((n) => state.roles.get(n) !== "source");
+  const names = [...state.trace.keys()].filter((n) => traced(state.roles.get(n)));
   const xs = [...new Set(names.flatMap((n) => state.trace.get(n).t))].sort((a, b) => a - b);
   const pos = new Map(xs.map((x, i) => [x, i]));
   const ys = names.map((n) => {
