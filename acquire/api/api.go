@@ -229,7 +229,7 @@ type InstrumentInfo struct {
 	Up        bool              `json:"up"`   // the last read succeeded
 	Reads     uint64            `json:"reads"`
 	Errors    map[string]uint64 `json:"errors,omitempty"` // failed reads by reason (timeout, link_down, …)
-	LastPa    float64           `json:"last_pa"` // an ambient instrument's in its quantity's base unit: °C, %RH or Pa
+	LastPa    float64           `json:"last_pa"`          // an ambient instrument's in its quantity's base unit: °C, %RH or Pa
 	LastAt    time.Time         `json:"last_at,omitzero"`
 	Settled   bool              `json:"settled"`
 	LastError string            `json:"last_error,omitempty"`
