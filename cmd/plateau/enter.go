@@ -8,6 +8,8 @@ import (
 	"github.com/spf13/cobra"
 
 	"plateau/acquire/api"
+	"plateau/analysis/units"
+	"plateau/config"
 )
 
 func init() { register(newEnterCmd) }
@@ -27,6 +29,11 @@ When the run calibrates several dials, --device names the dial the reading
 is for (its instrument name, as 'plateau tail' and 'plateau status' show it);
 with only one dial it may be left out.
 
+--device also names an ambient instrument read by a person (role: ambient,
+link kind manual): a room thermometer, a hygrometer, a barometer. Its reading
+is in its own unit without one, or in a unit of its quantity (23.4 °C, 52 %RH,
+1013.2 hPa); it stands for the points of the next half hour.
+
 The daemon refuses a reading when no step waits for one, and a reading that
 looks wrong (outside the dial's range, or far from the step's target) until
 you give it again with --confirm.`,
@@ -35,7 +42,9 @@ you give it again with --confirm.`,
   plateau enter -0.1
   plateau enter 58.5psi
   plateau enter --confirm 17.2
-  plateau enter --device dial-3 4.02`,
+  plateau enter --device dial-3 4.02
+  plateau enter --device room 23.4 °C
+  plateau enter --device humidity 52 %RH`,
 		Args: cobra.ArbitraryArgs, // counted in RunE, once flags are parsed
 		// Flags are parsed in RunE, after the readings are set aside:
 		// "-0.1" is a reading, not a flag.
@@ -58,13 +67,27 @@ you give it again with --confirm.`,
 			return fmt.Errorf("enter: give the reading and, if it is not in the device's unit, the unit: plateau enter 4.02 bar")
 		}
 		text := strings.Join(args, " ")
-		e, err := parseDialEntry(text)
-		if err != nil {
-			return err
-		}
 		c, err := df.client(cmd)
 		if err != nil {
 			return err
+		}
+		parse, own := parseDialEntry, ""
+		if device != "" {
+			a, ambient, err := ambientFor(cmd, c, device)
+			if err != nil {
+				return err
+			}
+			if ambient {
+				parse = func(t string) (dialEntry, error) { return parseAmbientEntry(t, a.Kind) }
+				own = a.Unit.Symbol
+			}
+		}
+		e, err := parse(text)
+		if err != nil {
+			return err
+		}
+		if e.Unit == "" {
+			e.Unit = own
 		}
 		if e.Unit == "" {
 			st, err := c.Status(cmd.Context())
@@ -90,6 +113,42 @@ you give it again with --confirm.`,
 		return nil
 	}
 	return cmd
+}
+
+// ambientFor finds the ambient instrument an entry names: in the
+// configuration, which knows its unit before any reading and whether a
+// person reads it, else as the daemon's status describes it. False for a
+// name that is no ambient instrument (a dial's).
+func ambientFor(cmd *cobra.Command, c *api.Client, name string) (config.AmbientInstrument, bool, error) {
+	if cfg, err := config.Load(configPath); err == nil {
+		for _, in := range cfg.Instruments {
+			a, ok := config.AmbientOf(in)
+			switch {
+			case in.Name != name || in.Role != config.RoleAmbient:
+				continue
+			case !ok:
+				return a, false, fmt.Errorf("%s: its quantity %q or unit %q cannot be read: plateau check says why", name, in.Quantity, in.Unit)
+			case in.Link.Kind != config.LinkManual:
+				return a, false, fmt.Errorf("%s is read over its link (%s): there is nothing to type in; only an ambient instrument with link kind manual takes plateau enter", name, in.Link.Kind)
+			}
+			return a, true, nil
+		}
+	}
+	st, err := c.Status(cmd.Context())
+	if err != nil {
+		return config.AmbientInstrument{}, false, err
+	}
+	for _, in := range st.Instruments {
+		if in.Name != name || in.Role != api.RoleAmbient {
+			continue
+		}
+		u, err := units.LookupAmbient(units.AmbientKind(in.Quantity), in.RawUnit)
+		if err != nil { // no reading yet tells what it reads
+			return config.AmbientInstrument{}, false, fmt.Errorf("%s is an ambient instrument with no reading yet, and %s does not describe it: give the daemon's configuration with -c", name, configPath)
+		}
+		return config.AmbientInstrument{Name: name, Kind: u.Kind, Unit: u}, true, nil
+	}
+	return config.AmbientInstrument{}, false, nil
 }
 
 // splitReadings sets aside the arguments that are readings (numbers,

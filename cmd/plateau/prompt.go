@@ -29,12 +29,9 @@ func parseDialEntry(text string) (dialEntry, error) {
 	if t == "" {
 		return dialEntry{}, errors.New("the reading is empty: type the number the dial shows")
 	}
-	// A decimal comma, as many European dials and keyboards write it; a
-	// comma beside a point is a thousands separator we cannot read safely.
-	if strings.Count(t, ",") == 1 && !strings.Contains(t, ".") {
-		t = strings.Replace(t, ",", ".", 1)
-	} else if strings.Contains(t, ",") {
-		return dialEntry{}, fmt.Errorf("reading %q: write one decimal separator and no thousands separator, e.g. 1234.5", text)
+	t, err := decimalPoint(text, t)
+	if err != nil {
+		return dialEntry{}, err
 	}
 	if v, err := strconv.ParseFloat(t, 64); err == nil {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
@@ -50,6 +47,56 @@ func parseDialEntry(text string) (dialEntry, error) {
 		return dialEntry{}, fmt.Errorf("reading %q: give the pressure as the dial shows it, not a percentage", text)
 	}
 	return dialEntry{Value: q.Value, Unit: q.Unit.Symbol}, nil
+}
+
+// decimalPoint reads a decimal comma, as many European dials and keyboards
+// write it, as a point; a comma beside a point is a thousands separator we
+// cannot read safely. text is the reading as typed, for the message.
+func decimalPoint(text, t string) (string, error) {
+	if strings.Count(t, ",") == 1 && !strings.Contains(t, ".") {
+		return strings.Replace(t, ",", ".", 1), nil
+	}
+	if strings.Contains(t, ",") {
+		return "", fmt.Errorf("reading %q: write one decimal separator and no thousands separator, e.g. 1234.5", text)
+	}
+	return t, nil
+}
+
+// parseAmbientEntry reads what an operator types for an ambient
+// instrument of quantity k: a number ("23.4", "23,4", "-2") and, when it
+// is not in the instrument's own unit, one of the quantity's units
+// ("23.4 °C", "52%RH", "1013 hPa"). An empty Unit is the instrument's own.
+func parseAmbientEntry(text string, k units.AmbientKind) (dialEntry, error) {
+	t := strings.TrimSpace(text)
+	if t == "" {
+		return dialEntry{}, fmt.Errorf("the reading is empty: type the %s the instrument shows", k)
+	}
+	i := strings.IndexFunc(t, func(r rune) bool { return !strings.ContainsRune("+-0123456789.,", r) })
+	if i < 0 {
+		i = len(t)
+	}
+	num, err := decimalPoint(text, t[:i])
+	if err != nil {
+		return dialEntry{}, err
+	}
+	v, err := strconv.ParseFloat(num, 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return dialEntry{}, fmt.Errorf("reading %q does not start with a number: type the %s as the instrument shows it, e.g. %s", text, k, ambientExample[k])
+	}
+	rest := strings.TrimSpace(t[i:])
+	if rest == "" {
+		return dialEntry{Value: v}, nil
+	}
+	u, err := units.LookupAmbient(k, rest)
+	if err != nil {
+		return dialEntry{}, fmt.Errorf("reading %q: %w", text, err)
+	}
+	return dialEntry{Value: v, Unit: u.Symbol}, nil
+}
+
+// ambientExample is a reading of each ambient quantity, for messages.
+var ambientExample = map[units.AmbientKind]string{
+	units.Temperature: "23.4 °C", units.Humidity: "52 %RH", units.Barometric: "1013.2 hPa",
 }
 
 // bench is what the prompt needs of the engine.

@@ -17,6 +17,7 @@ import (
 	"github.com/creack/pty"
 
 	"plateau/analysis"
+	"plateau/analysis/units"
 )
 
 func TestParseDialEntry(t *testing.T) {
@@ -64,6 +65,65 @@ func FuzzParseDialEntry(f *testing.F) {
 		e, err := parseDialEntry(s)
 		if err == nil && (e.Value != e.Value || e.Value > 1e308 || e.Value < -1e308) {
 			t.Fatalf("%q gave a non-finite reading %v", s, e.Value)
+		}
+	})
+}
+
+// What an operator types for an ambient instrument: a number in its own
+// unit, or one of its quantity's units (spelt as people write them), with
+// a decimal comma too; a unit of another quantity is refused, never read
+// as the instrument's own.
+func TestParseAmbientEntry(t *testing.T) {
+	cases := []struct {
+		in    string
+		kind  units.AmbientKind
+		value float64
+		unit  string
+		err   string
+	}{
+		{"23.4 °C", units.Temperature, 23.4, "°C", ""},
+		{"23,4°C", units.Temperature, 23.4, "°C", ""},
+		{"-2.5 degC", units.Temperature, -2.5, "°C", ""},
+		{"74.1 °F", units.Temperature, 74.1, "°F", ""},
+		{"296.55 K", units.Temperature, 296.55, "K", ""},
+		{"23.4", units.Temperature, 23.4, "", ""},
+		{"52 %RH", units.Humidity, 52, "%RH", ""},
+		{"52%", units.Humidity, 52, "%RH", ""},
+		{"1013,2 hPa", units.Barometric, 1013.2, "hPa", ""},
+		{"29.92 inHg", units.Barometric, 29.92, "inHg", ""},
+		{"52 °C", units.Humidity, 0, "", `unknown humidity unit "°C"`},
+		{"23.4 %RH", units.Temperature, 0, "", `unknown temperature unit "%RH"`},
+		{"1013 psig", units.Barometric, 0, "", "reads absolute pressure"},
+		{"warm", units.Temperature, 0, "", "does not start with a number"},
+		{"1,013.2 hPa", units.Barometric, 0, "", "one decimal separator"},
+		{"", units.Humidity, 0, "", "empty"},
+	}
+	for _, c := range cases {
+		t.Run(c.in, func(t *testing.T) {
+			e, err := parseAmbientEntry(c.in, c.kind)
+			if c.err != "" {
+				if err == nil || !strings.Contains(err.Error(), c.err) {
+					t.Fatalf("error %v, want one containing %q", err, c.err)
+				}
+				return
+			}
+			if err != nil || e.Value != c.value || e.Unit != c.unit {
+				t.Fatalf("got %+v, %v; want %g %q", e, err, c.value, c.unit)
+			}
+		})
+	}
+}
+
+func FuzzParseAmbientEntry(f *testing.F) {
+	for _, s := range []string{"23.4 °C", "52%RH", "1013,2 hPa", "-", ",", "1e3 K", "+-1 °F"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		for _, k := range []units.AmbientKind{units.Temperature, units.Humidity, units.Barometric} {
+			e, err := parseAmbientEntry(s, k)
+			if err == nil && (e.Value != e.Value || e.Value > 1e308 || e.Value < -1e308) {
+				t.Fatalf("%q gave a non-finite reading %v", s, e.Value)
+			}
 		}
 	})
 }
