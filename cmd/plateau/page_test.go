@@ -84,6 +84,21 @@ func (c *pageConsole) follow(tab context.Context) {
 	}()
 }
 
+// headlessTab is a tab of a headless Chromium with its profile in dir,
+// closed when the test ends.
+func headlessTab(t *testing.T, ctx context.Context, chrome, dir string) context.Context {
+	t.Helper()
+	alloc, cancelAlloc := chromedp.NewExecAllocator(ctx,
+		chromedp.ExecPath(chrome), chromedp.UserDataDir(filepath.Join(dir, "profile")),
+		chromedp.NoSandbox, chromedp.Headless, chromedp.DisableGPU, chromedp.NoFirstRun, chromedp.NoDefaultBrowserCheck,
+		chromedp.Flag("disable-background-networking", true), chromedp.Flag("disable-component-update", true),
+		chromedp.Flag("disable-sync", true), chromedp.Flag("disable-dev-shm-usage", true),
+		chromedp.WindowSize(1400, 2200))
+	tab, cancelTab := chromedp.NewContext(alloc)
+	t.Cleanup(func() { cancelTab(); cancelAlloc() })
+	return tab
+}
+
 // inPage runs a JavaScript expression in the tab and returns its value.
 func inPage[T any](t *testing.T, tab context.Context, expr string) T {
 	t.Helper()
@@ -129,15 +144,7 @@ func TestLivePageFollowsARun(t *testing.T) {
 	d := startDaemon(t, ctx, bin, cfgPath, filepath.Join(dir, "first.log"))
 	waitReady(t, ctx, c)
 
-	alloc, cancelAlloc := chromedp.NewExecAllocator(ctx,
-		chromedp.ExecPath(chrome), chromedp.UserDataDir(filepath.Join(dir, "profile")),
-		chromedp.NoSandbox, chromedp.Headless, chromedp.DisableGPU, chromedp.NoFirstRun, chromedp.NoDefaultBrowserCheck,
-		chromedp.Flag("disable-background-networking", true), chromedp.Flag("disable-component-update", true),
-		chromedp.Flag("disable-sync", true), chromedp.Flag("disable-dev-shm-usage", true),
-		chromedp.WindowSize(1400, 2200))
-	defer cancelAlloc()
-	tab, cancelTab := chromedp.NewContext(alloc)
-	defer cancelTab()
+	tab := headlessTab(t, ctx, chrome, dir)
 	console := &pageConsole{}
 	run := func(what string, actions ...chromedp.Action[chromedp.Void]) {
 		t.Helper()

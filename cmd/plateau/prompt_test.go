@@ -42,19 +42,25 @@ func TestParseDialEntry(t *testing.T) {
 		{"4 furlongs", 0, "", "unknown pressure unit"},
 	}
 	for _, c := range cases {
-		t.Run(c.in, func(t *testing.T) {
-			e, err := parseDialEntry(c.in)
-			if c.err != "" {
-				if err == nil || !strings.Contains(err.Error(), c.err) {
-					t.Fatalf("error %v, want one containing %q", err, c.err)
-				}
-				return
-			}
-			if err != nil || e.Value != c.value || e.Unit != c.unit {
-				t.Fatalf("got %+v, %v; want %g %q", e, err, c.value, c.unit)
-			}
-		})
+		checkEntry(t, c.in, c.value, c.unit, c.err, parseDialEntry)
 	}
+}
+
+// checkEntry runs parse on what an operator typed: the value and unit
+// wanted, or an error containing err.
+func checkEntry(t *testing.T, in string, value float64, unit, err string, parse func(string) (dialEntry, error)) {
+	t.Run(in, func(t *testing.T) {
+		e, got := parse(in)
+		if err != "" {
+			if got == nil || !strings.Contains(got.Error(), err) {
+				t.Fatalf("error %v, want one containing %q", got, err)
+			}
+			return
+		}
+		if got != nil || e.Value != value || e.Unit != unit {
+			t.Fatalf("got %+v, %v; want %g %q", e, got, value, unit)
+		}
+	})
 }
 
 func FuzzParseDialEntry(f *testing.F) {
@@ -99,18 +105,7 @@ func TestParseAmbientEntry(t *testing.T) {
 		{"", units.Humidity, 0, "", "empty"},
 	}
 	for _, c := range cases {
-		t.Run(c.in, func(t *testing.T) {
-			e, err := parseAmbientEntry(c.in, c.kind)
-			if c.err != "" {
-				if err == nil || !strings.Contains(err.Error(), c.err) {
-					t.Fatalf("error %v, want one containing %q", err, c.err)
-				}
-				return
-			}
-			if err != nil || e.Value != c.value || e.Unit != c.unit {
-				t.Fatalf("got %+v, %v; want %g %q", e, err, c.value, c.unit)
-			}
-		})
+		checkEntry(t, c.in, c.value, c.unit, c.err, func(s string) (dialEntry, error) { return parseAmbientEntry(s, c.kind) })
 	}
 }
 

@@ -136,15 +136,7 @@ func TestAmbientInstrumentsAtTheBench(t *testing.T) {
 
 	// The live page, in a browser.
 	chrome := browser(t)
-	alloc, cancelAlloc := chromedp.NewExecAllocator(ctx,
-		chromedp.ExecPath(chrome), chromedp.UserDataDir(filepath.Join(dir, "profile")),
-		chromedp.NoSandbox, chromedp.Headless, chromedp.DisableGPU, chromedp.NoFirstRun, chromedp.NoDefaultBrowserCheck,
-		chromedp.Flag("disable-background-networking", true), chromedp.Flag("disable-component-update", true),
-		chromedp.Flag("disable-sync", true), chromedp.Flag("disable-dev-shm-usage", true),
-		chromedp.WindowSize(1400, 2200))
-	defer cancelAlloc()
-	tab, cancelTab := chromedp.NewContext(alloc)
-	defer cancelTab()
+	tab := headlessTab(t, ctx, chrome, dir)
 	console := &pageConsole{}
 	if err := chromedp.Do(tab, chromedp.Navigate("about:blank")); err != nil {
 		t.Fatal(err)
