@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"strconv"
 	"sync"
 	"time"
 
@@ -381,8 +382,14 @@ func (e *Engine) enterAmbient(en Entry) (handled bool, err error) {
 		return false, nil
 	}
 	a, _ := config.AmbientOf(inst)
+	// A bare number is in the instrument's own unit; a unit given must be
+	// one of its quantity, never silently taken as the instrument's own.
 	u := a.Unit
-	if given, err := units.LookupAmbient(a.Kind, en.Unit); err == nil {
+	if en.Unit != "" {
+		given, err := units.LookupAmbient(a.Kind, en.Unit)
+		if err != nil {
+			return true, fmt.Errorf("%s reads %s: unit %q: %w", inst.Name, a.Kind, en.Unit, err)
+		}
 		u = given
 	}
 	if math.IsNaN(en.Value) || math.IsInf(en.Value, 0) {
@@ -390,12 +397,12 @@ func (e *Engine) enterAmbient(en Entry) (handled bool, err error) {
 	}
 	base := u.ToBase(en.Value)
 	if lim := plausible[a.Kind]; base < lim[0] || base > lim[1] {
-		return true, fmt.Errorf("%s: %g %s is no %s of a laboratory (%s … %s): check the value and give its unit",
-			inst.Name, en.Value, u.Symbol, a.Kind, analysis.AmbientText(a.Kind, lim[0]), analysis.AmbientText(a.Kind, lim[1]))
+		return true, fmt.Errorf("%s: %s %s is no %s of a laboratory (%s … %s): check the value and give its unit",
+			inst.Name, strconv.FormatFloat(en.Value, 'f', -1, 64), u.Symbol, a.Kind, analysis.AmbientText(a.Kind, lim[0]), analysis.AmbientText(a.Kind, lim[1]))
 	}
 	now := e.clk.Now()
 	r := drivers.Reading{Time: now, Pa: base, Raw: a.Unit.FromBase(base), RawUnit: a.Unit.Symbol,
-		Wire: fmt.Sprintf("entered %g %s", en.Value, u.Symbol)}
+		Wire: fmt.Sprintf("entered %s %s", strconv.FormatFloat(en.Value, 'f', -1, 64), u.Symbol)}
 	e.ambient.observer(inst.Name)(r, nil)
 	e.samples.Sample(inst.Name, r, nil)
 	run := store.RunID(0)

@@ -171,7 +171,14 @@ func TestAmbientEntries(t *testing.T) {
 	if len(e.others) != 0 {
 		t.Fatal("an ambient instrument read by a person is polled")
 	}
-	if err := e.Enter(Entry{Device: "hyg", Value: 55, Unit: "bar"}); err != nil {
+	// A unit of another quantity is refused, never read as the
+	// instrument's own; a bare number is in the instrument's own unit.
+	for _, unit := range []string{"bar", "°C"} {
+		if err := e.Enter(Entry{Device: "hyg", Value: 55, Unit: unit}); err == nil || !strings.Contains(err.Error(), "hyg reads humidity") {
+			t.Errorf("55 %s for a hygrometer: %v", unit, err)
+		}
+	}
+	if err := e.Enter(Entry{Device: "hyg", Value: 55}); err != nil {
 		t.Fatal(err)
 	}
 	if m, ok := e.ambient.byKey["hyg"].over(clk.Now().Add(40*time.Minute), clk.Now().Add(50*time.Minute)); !ok || m.Mean != 55 {

@@ -57,7 +57,7 @@ func TestAnalyze(t *testing.T) {
 		// class although the mean is within (EN 837-1 judges both directions,
 		// REFERENCES.md §2.1 [M]); the message is in bar, numbered as the table.
 		{"one direction out", []string{"analyze", oneOut, "--rule", "simple", "--upper", "16 bar", "--resolution", "0.01 bar", "--class", "1", "--ref-uncertainty", "0.01 %"},
-			[]string{"VERDICT: FAIL", "3    8.000      8.000   8.155  0.155", "point 3 (8 bar): the descending readings fail (cycle 1 error +0.21 bar, MPE 0.16 bar"}, ""},
+			[]string{"VERDICT: FAIL", "3    8.000      8.000   8.155  0.155", "point 3 (8.00 bar): the descending readings fail (cycle 1 error +0.210 bar, MPE 0.160 bar"}, ""},
 		{"student t", append([]string{"analyze", abs, "--rule", "simple", "--coverage", "student-t"}, flags...),
 			[]string{"ν_eff", "Student's t"}, ""},
 		{"k and student t", append([]string{"analyze", abs, "--rule", "simple", "--coverage", "student-t", "--k", "2.2"}, flags...),
