@@ -11,7 +11,6 @@ import (
 	"os"
 	"os/signal"
 	"path/filepath"
-	"slices"
 	"strings"
 	"sync"
 	"syscall"
@@ -239,31 +238,23 @@ type engineControl struct {
 	stored     *api.LastRun      // the newest ended run of the store at start-up
 	storedRead bool
 
-	planOnce sync.Once
-	plan     planSummary
+	lengthOnce sync.Once
+	length     planLength
 }
 
-// planSummary is the plan as status shows it.
-type planSummary struct {
-	steps       []api.PlanStep
+// planLength is the least and the most time the configured plan takes.
+type planLength struct {
 	least, most time.Duration
 	timed       bool
 }
 
-// planned builds the plan as status shows it once: the configuration, and
-// so the plan, is fixed for the daemon's life, and status is asked every
-// few seconds (service status, metrics, the live page), each time
-// rebuilding 14 000 steps for a plan of 1000 cycles otherwise.
-func (c *engineControl) planned() planSummary {
-	c.planOnce.Do(func() {
-		for _, st := range c.eng.Plan() {
-			c.plan.steps = append(c.plan.steps, api.PlanStep{Kind: string(st.Kind), Cycle: st.Cycle, Direction: string(st.Direction),
-				TargetPa: st.TargetPa, What: st.String()})
-		}
-		c.plan.steps = slices.Clip(c.plan.steps) // shared by every status: an append copies
-		c.plan.least, c.plan.most, c.plan.timed = runLength(c.cfg)
-	})
-	return c.plan
+// planned works out the plan's length once: the configuration, and so the
+// plan, is fixed for the daemon's life, and status is asked every few
+// seconds (service status, metrics, the live page), each time planning all
+// the steps again otherwise (megabytes for a plan of 1000 cycles).
+func (c *engineControl) planned() planLength {
+	c.lengthOnce.Do(func() { c.length.least, c.length.most, c.length.timed = runLength(c.cfg) })
+	return c.length
 }
 
 func (c *engineControl) currentRun() string { return c.eng.Status().Run }
@@ -328,9 +319,13 @@ func (c *engineControl) Status(context.Context) api.Status {
 // clock faster shows how long a person waits.
 func (c *engineControl) describePlan(out *api.Status, es acquire.Status) {
 	wall := func(d time.Duration) float64 { return d.Seconds() / c.speed() }
-	p := c.planned()
-	out.Plan = p.steps
-	if p.timed {
+	steps := c.eng.Plan()
+	out.Plan = make([]api.PlanStep, 0, len(steps))
+	for _, st := range steps {
+		out.Plan = append(out.Plan, api.PlanStep{Kind: string(st.Kind), Cycle: st.Cycle, Direction: string(st.Direction),
+			TargetPa: st.TargetPa, What: st.String()})
+	}
+	if p := c.planned(); p.timed {
 		out.ExpectedSeconds, out.ExpectedMostSeconds = wall(p.least), wall(p.most)
 	}
 	rule := c.cfg.Procedure.Settle
