@@ -4,12 +4,16 @@ import (
 	"bytes"
 	"fmt"
 	"image/color"
+	"math"
+	"strconv"
 	"strings"
 
 	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgsvg"
 
 	"plateau/analysis"
 )
@@ -30,39 +34,149 @@ type chart struct {
 	SVG            string
 }
 
-const chartW, chartH = 17 * vg.Centimeter, 8.5 * vg.Centimeter
+const chartW, chartH = 17 * vg.Centimeter, 8 * vg.Centimeter
 
-// svg renders p and strips the XML prolog so it can sit inline in HTML.
-func svg(p *plot.Plot) (string, error) {
-	wt, err := p.WriterTo(chartW, chartH, "svg")
-	if err != nil {
-		return "", fmt.Errorf("render chart %q: %w", p.Title.Text, err)
+// The charts' own look, the same in all four: a sans-serif face metric-
+// compatible with the page's, quiet axes and grid, fixed-notation tick
+// labels, and the legend in a column right of the plot, never on the data.
+var (
+	chartFace = font.Font{Typeface: "Liberation", Variant: "Sans"}
+	inkAxis   = color.RGBA{R: 0x4a, G: 0x58, B: 0x68, A: 0xff}
+	inkGrid   = color.RGBA{R: 0xdd, G: 0xe3, B: 0xe9, A: 0xff}
+	inkText   = color.RGBA{R: 0x1b, G: 0x24, B: 0x30, A: 0xff}
+)
+
+// svgFamily is what the SVG names the face; browsers without it take a
+// face of the same metrics, then any sans-serif.
+const svgFamily = "font-family:Liberation Sans;"
+
+// figure is a plot and its legend, which is drawn beside the plot.
+type figure struct {
+	p       *plot.Plot
+	legend  plot.Legend
+	entries int
+}
+
+func newFigure(x, y string) *figure {
+	p := plot.New()
+	p.X.Label.Text, p.Y.Label.Text = x, y
+	for _, a := range []*plot.Axis{&p.X, &p.Y} {
+		// Only face and ink: the axis keeps its own alignment of labels.
+		a.Label.TextStyle.Font, a.Label.TextStyle.Color = font.From(chartFace, 8.5), inkText
+		a.Label.Padding = vg.Points(4)
+		a.Tick.Label.Font, a.Tick.Label.Color = font.From(chartFace, 7.5), inkText
+		a.LineStyle.Color, a.Tick.LineStyle.Color = inkAxis, inkAxis
+		a.LineStyle.Width, a.Tick.LineStyle.Width = vg.Points(0.6), vg.Points(0.6)
+		a.Tick.Length = vg.Points(3)
+		a.Padding = vg.Points(4)
+	}
+	p.X.Tick.Marker, p.Y.Tick.Marker = fixedTicks{}, fixedTicks{pad: true}
+	g := plotter.NewGrid()
+	g.Vertical.Color, g.Horizontal.Color = inkGrid, inkGrid
+	g.Vertical.Width, g.Horizontal.Width = vg.Points(0.4), vg.Points(0.4)
+	p.Add(g)
+	l := plot.NewLegend()
+	l.TextStyle.Font, l.TextStyle.Color = font.From(chartFace, 8), inkText
+	l.Left, l.Top = true, true
+	l.ThumbnailWidth = vg.Points(16)
+	l.Padding = vg.Points(3)
+	return &figure{p: p, legend: l}
+}
+
+func (f *figure) add(name string, thumbs ...plot.Thumbnailer) {
+	f.legend.Add(name, thumbs...)
+	f.entries++
+}
+
+// cycleAxis makes an axis count cycles: a tick at each whole cycle (or
+// every few when there are many), half a cycle of room at either end.
+func cycleAxis(a *plot.Axis, first, last int) {
+	a.Tick.Marker = wholeTicks{}
+	a.Min, a.Max = float64(first)-0.5, float64(last)+0.5
+}
+
+// svg renders the figure: the plot on the left, the legend in a column
+// on its right, and returns the <svg> element to sit inline in HTML.
+func (f *figure) svg(title string) (string, error) {
+	c := vgsvg.New(chartW, chartH)
+	dc := draw.New(c)
+	var lw vg.Length
+	if f.entries > 0 {
+		lw = f.legend.Rectangle(dc).Size().X + vg.Points(12)
+	}
+	f.p.Draw(draw.Crop(dc, 0, -lw, 0, -vg.Points(4)))
+	if f.entries > 0 {
+		f.legend.Draw(draw.Crop(dc, chartW-lw+vg.Points(12), 0, 0, -vg.Points(4)))
 	}
 	var b bytes.Buffer
-	if _, err := wt.WriteTo(&b); err != nil {
-		return "", fmt.Errorf("render chart %q: %w", p.Title.Text, err)
+	if _, err := c.WriteTo(&b); err != nil {
+		return "", fmt.Errorf("render chart %q: %w", title, err)
 	}
 	s := b.String()
 	if i := strings.Index(s, "<svg"); i >= 0 {
 		s = s[i:]
 	}
-	return s, nil
+	return strings.ReplaceAll(s, svgFamily, "font-family:'Liberation Sans',Arial,Helvetica,sans-serif;"), nil
 }
 
-// roomForLegend raises the top of the y axis so that the legend, drawn in
-// the upper part of the plot, sits above the data instead of on it.
-func roomForLegend(p *plot.Plot) {
-	if p.Legend.Top && p.Y.Max > p.Y.Min {
-		p.Y.Max += 0.45 * (p.Y.Max - p.Y.Min)
+// fixedTicks are the library's tick positions labelled in fixed notation
+// with the digits the tick step needs (never 1e-05); pad leaves room
+// between a vertical axis's labels and its tick marks.
+type fixedTicks struct{ pad bool }
+
+func (t fixedTicks) Ticks(lo, hi float64) []plot.Tick {
+	ts := plot.DefaultTicks{}.Ticks(lo, hi)
+	step := math.Inf(1)
+	prev := math.NaN()
+	for _, k := range ts {
+		if k.IsMinor() {
+			continue
+		}
+		if !math.IsNaN(prev) {
+			step = min(step, k.Value-prev)
+		}
+		prev = k.Value
 	}
+	d := 0
+	if step > 0 && !math.IsInf(step, 0) {
+		d = min(max(int(math.Ceil(-math.Log10(step)-1e-9)), 0), 9)
+	}
+	for i, k := range ts {
+		if k.IsMinor() {
+			continue
+		}
+		s := strconv.FormatFloat(k.Value, 'f', d, 64)
+		if strings.Trim(s, "-0.") == "" {
+			s = strings.TrimPrefix(s, "-")
+		}
+		if t.pad {
+			s += " "
+		}
+		ts[i].Label = s
+	}
+	return ts
 }
 
-func newPlot(x, y string) *plot.Plot {
-	p := plot.New()
-	p.X.Label.Text, p.Y.Label.Text = x, y
-	p.Add(plotter.NewGrid())
-	p.Legend.Top = true
-	return p
+// wholeTicks mark whole numbers only: every one, or every second, fifth…
+// so that at most about ten are labelled.
+type wholeTicks struct{}
+
+func (wholeTicks) Ticks(lo, hi float64) []plot.Tick {
+	first, last := int(math.Ceil(lo)), int(math.Floor(hi))
+	step := 1
+	for _, s := range []int{1, 2, 5, 10, 20, 50, 100, 200, 500, 1000} {
+		step = s
+		if (last-first)/s <= 10 {
+			break
+		}
+	}
+	var ts []plot.Tick
+	for v := first; v <= last; v++ {
+		if v%step == 0 || step == 1 {
+			ts = append(ts, plot.Tick{Value: float64(v), Label: itoa(v)})
+		}
+	}
+	return ts
 }
 
 // charts draws every figure the result has data for.
@@ -85,7 +199,8 @@ func charts(n numbers, res analysis.Result) ([]chart, error) {
 // ±MPE band, and the mean error with ±U bars.
 func errorChart(n numbers, res analysis.Result) (*chart, error) {
 	u := n.u
-	p := newPlot("reference pressure / "+u.Symbol, "error of indication / "+u.Symbol)
+	f := newFigure("reference pressure / "+u.Symbol, "error of indication / "+u.Symbol)
+	p := f.p
 
 	// The band is sampled finely so that a limit stepping at quarter span
 	// (ASME grades) is drawn as a step.
@@ -107,7 +222,7 @@ func errorChart(n numbers, res analysis.Result) (*chart, error) {
 	poly.LineStyle.Color = inkLimit
 	poly.LineStyle.Dashes = []vg.Length{vg.Points(4), vg.Points(2)}
 	p.Add(poly)
-	p.Legend.Add("± MPE", poly)
+	f.add("± MPE", poly)
 
 	for _, s := range []struct {
 		name string
@@ -133,7 +248,7 @@ func errorChart(n numbers, res analysis.Result) (*chart, error) {
 		}
 		l.Color, sc.Color, sc.Shape = s.ink, s.ink, s.mark
 		p.Add(l, sc)
-		p.Legend.Add(s.name, l, sc)
+		f.add(s.name, l, sc)
 	}
 
 	mean := make(errPoints, len(res.Points))
@@ -151,11 +266,9 @@ func errorChart(n numbers, res analysis.Result) (*chart, error) {
 	}
 	dots.Color, dots.Shape = inkMean, draw.CircleGlyph{}
 	p.Add(bars, dots)
-	p.Legend.Left = true // errors usually grow with pressure: the top left stays clear
-	p.Legend.Add(fmt.Sprintf("mean ± U (k = %s)", ftoa(res.CoverageFactor)), dots)
+	f.add(fmt.Sprintf("mean ± U (k = %s)", ftoa(res.CoverageFactor)), dots)
 
-	roomForLegend(p)
-	s, err := svg(p)
+	s, err := f.svg("error")
 	if err != nil {
 		return nil, err
 	}
@@ -174,13 +287,14 @@ func (e errPoints) YError(i int) (float64, float64) { return e[i].e, e[i].e }
 // without both directions are left out rather than drawn as zero, and
 // without any there is no chart.
 func hysteresisChart(n numbers, res analysis.Result) (*chart, error) {
-	p := newPlot("nominal pressure / "+n.u.Symbol, "hysteresis / "+n.u.Symbol)
+	f := newFigure("nominal pressure / "+n.u.Symbol, "hysteresis / "+n.u.Symbol)
+	p := f.p
 	var vals plotter.Values
 	var names []string
 	for _, pt := range res.Points {
 		if pt.HysteresisEvaluated {
 			vals = append(vals, n.u.FromPa(pt.HysteresisPa))
-			names = append(names, fmt.Sprintf("%.6g", n.u.FromPa(pt.NominalPa)))
+			names = append(names, strconv.FormatFloat(n.u.FromPa(pt.NominalPa), 'f', max(n.decimals-1, 0), 64))
 		}
 	}
 	if len(vals) == 0 {
@@ -193,8 +307,10 @@ func hysteresisChart(n numbers, res analysis.Result) (*chart, error) {
 	b.Color, b.LineStyle.Color = fillBar, fillBar
 	p.Add(b)
 	p.NominalX(names...)
-	roomForLegend(p)
-	s, err := svg(p)
+	// Half a bar slot of room at either end, so the end bars are whole.
+	p.X.Min, p.X.Max = -0.5, float64(len(vals))-0.5
+	p.Y.Min = 0
+	s, err := f.svg("hysteresis")
 	if err != nil {
 		return nil, err
 	}
@@ -233,11 +349,14 @@ func driftChart(n numbers, res analysis.Result) (*chart, error) {
 			}
 		}
 	}
-	p := newPlot(ax.label, "error of indication / "+n.u.Symbol)
+	f := newFigure(ax.label, "error of indication / "+n.u.Symbol)
+	p := f.p
+	first, last := math.MaxInt, math.MinInt
 	for i, pd := range res.Drift.Points {
 		xy := make(plotter.XYs, len(pd.CycleErrors))
 		for j, ce := range pd.CycleErrors {
 			x := float64(ce.Cycle)
+			first, last = min(first, ce.Cycle), max(last, ce.Cycle)
 			if ax.timed {
 				x = ce.Time.Sub(t0).Hours()
 			}
@@ -250,11 +369,12 @@ func driftChart(n numbers, res analysis.Result) (*chart, error) {
 		ink := seriesInk(i)
 		l.Color, sc.Color = ink, ink
 		p.Add(l, sc)
-		p.Legend.Add(n.pu(pd.NominalPa), l, sc)
+		f.add(n.pu(pd.NominalPa), l, sc)
 	}
-	p.Legend.Top, p.Legend.Left = true, false
-	roomForLegend(p)
-	s, err := svg(p)
+	if !ax.timed {
+		cycleAxis(&p.X, first, last)
+	}
+	s, err := f.svg("drift")
 	if err != nil {
 		return nil, err
 	}
@@ -266,7 +386,13 @@ func zeroChart(n numbers, res analysis.Result) (*chart, error) {
 	if res.Drift == nil || len(res.Zero.Cycles) < 2 {
 		return nil, nil
 	}
-	p := newPlot("cycle", "zero error / "+n.u.Symbol)
+	f := newFigure("cycle", "zero error / "+n.u.Symbol)
+	p := f.p
+	first, last := math.MaxInt, math.MinInt
+	for _, z := range res.Zero.Cycles {
+		first, last = min(first, z.Cycle), max(last, z.Cycle)
+	}
+	cycleAxis(&p.X, first, last)
 	for _, s := range []struct {
 		name string
 		ink  color.Color
@@ -290,10 +416,9 @@ func zeroChart(n numbers, res analysis.Result) (*chart, error) {
 		}
 		l.Color, sc.Color = s.ink, s.ink
 		p.Add(l, sc)
-		p.Legend.Add(s.name, l, sc)
+		f.add(s.name, l, sc)
 	}
-	roomForLegend(p)
-	s, err := svg(p)
+	s, err := f.svg("zero")
 	if err != nil {
 		return nil, err
 	}

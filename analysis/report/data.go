@@ -60,7 +60,9 @@ func newCSVWriter(w io.Writer, u units.Unit) *csvWriter {
 		header = append(header, p+"_"+u.Symbol)
 	}
 	header = append(header, "error_percent_span", "coverage_factor", "effective_degrees_of_freedom",
-		"mpe_to_reference_uncertainty", "mpe_to_expanded_uncertainty", "up_decision", "down_decision", "hysteresis_decision", "decision")
+		"mpe_to_reference_uncertainty", "mpe_to_expanded_uncertainty", "up_decision", "down_decision", "hysteresis_decision", "decision",
+		// A transmitter's output at the point (means); empty for other devices.
+		"ideal_current_mA", "measured_current_mA", "output_error_mA", "output_error_percent_span", "output_flag")
 	c.write(header)
 	return c
 }
@@ -96,6 +98,12 @@ func (c *csvWriter) rows(device string, res analysis.Result) {
 		}
 		return num(u.FromPa(d.WorstErrorPa)), string(d.Decision)
 	}
+	output := map[int]analysis.OutputPoint{}
+	if res.Output != nil {
+		for _, o := range res.Output.Points {
+			output[o.Index] = o
+		}
+	}
 	for _, p := range res.Points {
 		row := []string{device, strconv.Itoa(p.Index + 1)}
 		for _, pa := range []float64{p.NominalPa, p.ReferenceMeanPa, p.DUTMeanPa, p.MeanErrorPa, p.CorrectionPa} {
@@ -109,6 +117,11 @@ func (c *csvWriter) rows(device string, res analysis.Result) {
 		downE, downD := dir(p.DownResult)
 		row = append(row, upE, downE, num(p.ErrorPercentSpan), num(p.CoverageFactor), opt(p.EffectiveDOF),
 			opt(p.ReferenceRatio), opt(p.ExpandedRatio), upD, downD, string(p.HysteresisDecision), string(p.Decision))
+		if o, ok := output[p.Index]; ok {
+			row = append(row, num(o.IdealMA), num(o.MeasuredMA), num(o.ErrorMA), num(o.ErrorPercentSpan), flagText(o.Signal))
+		} else {
+			row = append(row, "", "", "", "", "")
+		}
 		c.write(row)
 	}
 }

@@ -47,12 +47,12 @@ type summaryRow struct {
 func summaryRows(ds []DeviceReport, anchors []string) []summaryRow {
 	out := make([]summaryRow, len(ds))
 	for i, d := range ds {
-		r := summaryRow{Index: itoa(i + 1), Name: d.Info.DeviceName(), Identity: dash(identityText(d.Info.Device)), Missed: missedText(d.Info.Run)}
+		r := summaryRow{Index: itoa(i + 1), Name: d.Info.DeviceName(), Identity: identityText(d.Info.Device), Missed: missedText(d.Info.Run)}
 		if anchors != nil {
 			r.Anchor = anchors[i]
 		}
 		if d.Missing != "" {
-			r.Range, r.Accuracy, r.Largest, r.Span, r.Verdict = "—", "—", "—", "—", "NO RESULT: "+d.Missing
+			r.Verdict = "NO RESULT: " + d.Missing
 		} else {
 			n := newNumbers(d.Info.unit(), d.Result.Device.ResolutionPa)
 			r.Range = n.pu(d.Result.Device.LowerPa) + " … " + n.pu(d.Result.Device.UpperPa)
@@ -119,17 +119,17 @@ func runLines(ds []DeviceReport) []identityLine {
 	info := ds[0].Info
 	r := info.Reference
 	n := newNumbers(info.unit(), 0)
-	lines := []identityLine{{"Run", dash(joinNonEmpty(" · ", info.Run.Label, info.Run.ID))}}
+	var lines identityLines
+	lines.add("Run", joinNonEmpty(" · ", info.Run.Label, info.Run.ID))
 	if !(RunIdentity{State: info.Run.State}).finished() {
-		lines = append(lines, identityLine{"Run state", strings.ToUpper(info.Run.State) + prefixed(": ", info.Run.Reason)})
+		lines.add("Run state", strings.ToUpper(info.Run.State)+prefixed(": ", info.Run.Reason))
 	}
-	lines = append(lines,
-		identityLine{"Devices under test", itoa(len(ds)) + ", compared at the same steps against one reference"},
-		identityLine{"Reference standard", dash(joinNonEmpty(" · ", r.ID, r.Model, prefixed("serial ", r.Serial)))},
-		identityLine{"Certificate", dash(r.Certificate) + ", valid until " + date(r.Expires)},
-		identityLine{"Points", n.plannedPoints(info, ds[0].Result)},
-		identityLine{"Generated", stamp(info.GeneratedAt)},
-	)
+	lines = append(lines, info.Certificate.lines()...)
+	lines.add("Devices under test", itoa(len(ds))+", compared at the same steps against one reference")
+	lines.add("Reference standard", joinNonEmpty(" · ", r.ID, r.Model, prefixed("serial ", r.Serial), r.Kind))
+	lines.add("Reference certificate", joinNonEmpty(", ", r.Certificate, prefixed("valid until ", date(r.Expires))))
+	lines.add("Points", n.plannedPoints(info, ds[0].Result))
+	lines.add("Generated", stamp(info.GeneratedAt))
 	return lines
 }
 
@@ -169,7 +169,10 @@ func TextDevices(w io.Writer, ds []DeviceReport) error {
 	for i, d := range ds {
 		fmt.Fprintf(bw, "\n════ device %d of %d: %s ════\n\n", i+1, len(ds), d.Info.DeviceName())
 		if d.Missing != "" {
-			fmt.Fprintf(bw, "%s\nNo result: %s\n", dash(identityText(d.Info.Device)), d.Missing)
+			if id := identityText(d.Info.Device); id != "" {
+				fmt.Fprintln(bw, id)
+			}
+			fmt.Fprintf(bw, "No result: %s\n", d.Missing)
 			continue
 		}
 		if err := Text(bw, d.Info, d.Result); err != nil {

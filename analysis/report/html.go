@@ -29,7 +29,7 @@ type budgetBlock struct {
 	Lines                                 []budgetLine
 }
 
-func (n numbers) budgets(res analysis.Result) []budgetBlock {
+func (n numbers) budgets(info Info, res analysis.Result) []budgetBlock {
 	out := make([]budgetBlock, len(res.Points))
 	for i, p := range res.Points {
 		// A budget shows two digits more than the tables: its small terms
@@ -45,6 +45,10 @@ func (n numbers) budgets(res analysis.Result) []budgetBlock {
 			b.Expanded += " (raised to the basic-procedure minimum)"
 		}
 		for _, c := range p.Budget {
+			if headInBalance(info, c) {
+				b.Lines = append(b.Lines, budgetLine{Name: contributionText(c.Name), Estimate: "in the balance", Distribution: headInBalanceText, Standard: "in the balance"})
+				continue
+			}
 			if !c.Evaluated {
 				b.Lines = append(b.Lines, budgetLine{Name: contributionText(c.Name), Estimate: notEvaluated, Distribution: c.Note, Divisor: "", Standard: notEvaluated})
 				continue
@@ -64,11 +68,14 @@ type deviceView struct {
 	// Heading opens the section. All are empty in a report of one device.
 	Anchor, Page, Short, Heading string
 	// Missing says why the device has no result; the rest is then empty.
-	Missing   string
-	Title     string
-	Unit      string
-	Identity  []identityLine
-	Rows      []pointRow
+	Missing  string
+	Title    string
+	Unit     string
+	Identity []identityLine
+	Rows     []pointRow
+	Readings []readingRow
+	// Timed says whether the readings carry their time (a recorded table may not).
+	Timed     bool
 	Judged    []judgementRow
 	Summary   []summaryLine
 	Curve     []summaryLine
@@ -82,6 +89,7 @@ type deviceView struct {
 	ChartSVGs []template.HTML
 	Output    *outputView  // a transmitter's output in mA (output.go); nil for other devices
 	Ambient   *ambientView // pressure modes and ambient conditions (ambient.go)
+	Compare   *compareView // as found → as left (compare.go); nil for a single calibration
 }
 
 // pageView is the whole document: one device's report, or a summary of
@@ -108,12 +116,18 @@ func deviceViewOf(info Info, res analysis.Result) (deviceView, error) {
 	for i, c := range ch {
 		svgs[i] = template.HTML(c.SVG) // produced by gonum/plot from numbers only, never from user text
 	}
+	rd := n.readings(res)
+	timed := len(rd) > 0
+	for _, r := range rd {
+		timed = timed && r.Time != ""
+	}
 	return deviceView{
+		Readings: rd, Timed: timed,
 		Title: joinNonEmpty(" — ", "Calibration report", info.Device.ID, info.Run.Label), Unit: n.u.Symbol,
 		Identity: n.identity(info, res), Rows: n.rows(res), Judged: n.judgements(res), Summary: n.summary(res),
 		Curve: n.curveLines(res), Complete: info.Run.finished(),
 		Verdict: outcomeText(res.Decision), Outcome: res.Decision, Rule: ruleText(res.DecisionRule),
-		Warnings: res.Warnings, Budgets: n.budgets(res), Charts: ch, ChartSVGs: svgs, Output: n.output(res), Ambient: ambientViewOf(n, res),
+		Warnings: res.Warnings, Budgets: n.budgets(info, res), Charts: ch, ChartSVGs: svgs, Output: n.output(res), Ambient: ambientViewOf(n, res),
 	}, nil
 }
 
@@ -139,8 +153,7 @@ func HTMLDevices(w io.Writer, ds []DeviceReport) error {
 		if err != nil {
 			return err
 		}
-		pv = pageView{Title: d.Title, Devices: []deviceView{d}}
-		pv.Print = printCSS(joinNonEmpty(" · ", d.Title, ds[0].Info.Run.ID), nil)
+		pv = onePage(d, ds[0].Info)
 	} else {
 		pv = severalView(ds)
 		for i, dr := range ds {
@@ -156,8 +169,23 @@ func HTMLDevices(w io.Writer, ds []DeviceReport) error {
 			d.Heading = joinNonEmpty(" — ", d.Short, identityText(dr.Info.Device))
 			pv.Devices = append(pv.Devices, d)
 		}
-		pv.Print = printCSS(joinNonEmpty(" · ", pv.Title, ds[0].Info.Run.ID), pv.Devices)
+		pv.Print = printCSS(printIdentity(pv.Title, ds[0].Info), pv.Devices)
 	}
+	return writePage(w, pv)
+}
+
+// onePage is the document of one device's report.
+func onePage(d deviceView, info Info) pageView {
+	return pageView{Title: d.Title, Devices: []deviceView{d}, Print: printCSS(printIdentity(d.Title, info), nil)}
+}
+
+// printIdentity is what every printed page names: the report, the run
+// and the certificate number when there is one.
+func printIdentity(title string, info Info) string {
+	return joinNonEmpty(" · ", title, info.Run.ID, prefixed("certificate ", info.Certificate.Number))
+}
+
+func writePage(w io.Writer, pv pageView) error {
 	if err := page.Execute(w, pv); err != nil {
 		return fmt.Errorf("render HTML report: %w", err)
 	}

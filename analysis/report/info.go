@@ -18,6 +18,9 @@ import (
 // Info is what the Result does not know: who and what was calibrated, with
 // what, under which conditions, and how the figures are to be shown.
 type Info struct {
+	// Certificate is the calibration certificate this report is for;
+	// each field is left out of the report when empty.
+	Certificate Certificate       `json:"certificate,omitzero"`
 	Device      DeviceIdentity    `json:"device"`
 	Reference   ReferenceIdentity `json:"reference"`
 	Run         RunIdentity       `json:"run"`
@@ -25,6 +28,27 @@ type Info struct {
 	Procedure   Procedure         `json:"procedure"`
 	Unit        units.Unit        `json:"-"` // display unit; the zero Unit means pascal
 	GeneratedAt time.Time         `json:"generated_at,omitzero"`
+}
+
+// Certificate names the calibration certificate: its number, the
+// customer, who calibrated and on which day.
+type Certificate struct {
+	Number   string    `json:"number,omitempty"`
+	Customer string    `json:"customer,omitempty"`
+	Operator string    `json:"operator,omitempty"`
+	Date     time.Time `json:"date,omitzero"` // the date of calibration
+}
+
+// lines are the certificate's given fields, in the order a certificate
+// lists them; none when nothing was given.
+func (c Certificate) lines() []identityLine {
+	var out []identityLine
+	for _, l := range []identityLine{{"Certificate number", c.Number}, {"Customer", c.Customer}, {"Calibrated by", c.Operator}, {"Date of calibration", date(c.Date)}} {
+		if strings.TrimSpace(l.Value) != "" {
+			out = append(out, l)
+		}
+	}
+	return out
 }
 
 // DeviceIdentity names the device under test.
@@ -45,7 +69,14 @@ type ReferenceIdentity struct {
 	Serial      string    `json:"serial"`
 	Certificate string    `json:"certificate"`
 	Expires     time.Time `json:"expires,omitzero"`
+	// Kind is what the reference is when it is not an indicating
+	// instrument: KindBalance for a pressure balance; empty otherwise.
+	Kind string `json:"kind,omitempty"`
 }
+
+// KindBalance is the Kind of a pressure balance (dead-weight tester),
+// whose pressures are worked out from its loadings at the device's height.
+const KindBalance = "pressure balance"
 
 // RunIdentity names the run: a label people read and an id machines match,
 // and how the run ended. State is empty for a table recorded elsewhere.
@@ -260,13 +291,6 @@ func contributionText(name string) string {
 	return name
 }
 
-func dash(s string) string {
-	if strings.TrimSpace(s) == "" {
-		return "—"
-	}
-	return s
-}
-
 // joinNonEmpty joins the given strings that are not blank.
 func joinNonEmpty(sep string, ss ...string) string {
 	var out []string
@@ -278,16 +302,17 @@ func joinNonEmpty(sep string, ss ...string) string {
 	return strings.Join(out, sep)
 }
 
+// date and stamp give "" for a zero time: the field is then left out.
 func date(t time.Time) string {
 	if t.IsZero() {
-		return "—"
+		return ""
 	}
 	return t.Format("2006-01-02")
 }
 
 func stamp(t time.Time) string {
 	if t.IsZero() {
-		return "—"
+		return ""
 	}
 	return t.Format("2006-01-02 15:04:05 MST")
 }

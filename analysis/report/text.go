@@ -49,13 +49,17 @@ func Text(w io.Writer, info Info, res analysis.Result) error {
 
 	fmt.Fprintf(bw, "\nUncertainty budget (standard uncertainties in %s, by point)\n", n.u.Symbol)
 	bt := tabwriter.NewWriter(bw, 0, 0, 2, ' ', tabwriter.AlignRight)
-	for _, line := range n.budgetTable(res) {
+	for _, line := range n.budgetTable(info, res) {
 		fmt.Fprintln(bt, strings.Join(line, "\t")+"\t")
 	}
 	if err := bt.Flush(); err != nil {
 		return err
 	}
-	for _, why := range notEvaluatedReasons(res) {
+	for _, why := range notEvaluatedReasons(info, res) {
+		if strings.Contains(why, headInBalanceText) {
+			fmt.Fprintf(bw, "  %s\n", why)
+			continue
+		}
 		fmt.Fprintf(bw, "  not evaluated: %s\n", why)
 	}
 	textOutput(bw, n, res)

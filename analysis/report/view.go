@@ -172,35 +172,52 @@ type identityLine struct{ Label, Value string }
 
 func (n numbers) identity(info Info, res analysis.Result) []identityLine {
 	d, r := info.Device, info.Reference
-	lines := []identityLine{
-		{"Run", dash(joinNonEmpty(" · ", info.Run.Label, info.Run.ID))},
-	}
+	var lines identityLines
+	lines.add("Run", joinNonEmpty(" · ", info.Run.Label, info.Run.ID))
 	lines = append(lines, n.runState(info.Run)...)
-	lines = append(lines,
-		identityLine{"Device under test", dash(joinNonEmpty(" · ", d.ID, joinNonEmpty(" ", d.Manufacturer, d.Model), prefixed("serial ", d.Serial)))},
-		identityLine{"Range", n.pu(res.Device.LowerPa) + " … " + n.pu(res.Device.UpperPa) + ", resolution " + n.pu(res.Device.ResolutionPa)},
-		identityLine{"Permissible error", n.accuracy(res.Device.Accuracy)},
-		identityLine{"Reference standard", dash(joinNonEmpty(" · ", r.ID, r.Model, prefixed("serial ", r.Serial)))},
-		identityLine{"Certificate", dash(r.Certificate) + ", valid until " + date(r.Expires)},
-		identityLine{"Reference uncertainty", n.refUncertainty(res.Reference)},
-	)
+	lines = append(lines, info.Certificate.lines()...)
+	lines.add("Device under test", identityText(d))
+	lines.add("Range", n.pu(res.Device.LowerPa)+" … "+n.pu(res.Device.UpperPa)+", resolution "+n.pu(res.Device.ResolutionPa))
+	lines.add("Permissible error", n.accuracy(res.Device.Accuracy))
+	lines.add("Reference standard", joinNonEmpty(" · ", r.ID, r.Model, prefixed("serial ", r.Serial), r.Kind))
+	lines.add("Reference certificate", joinNonEmpty(", ", r.Certificate, prefixed("valid until ", date(r.Expires))))
+	lines.add("Reference uncertainty", n.refUncertainty(res.Reference))
 	switch {
 	case res.HeadVaries:
-		lines = append(lines, identityLine{"Head correction", "gas medium: density at each reading's absolute pressure, added to every reference reading"})
+		lines.add("Head correction", "gas medium: density at each reading's absolute pressure, added to every reference reading")
 	case res.HeadCorrectionPa != 0:
-		lines = append(lines, identityLine{"Head correction", n.pu(res.HeadCorrectionPa) + " added to every reference reading"})
+		lines.add("Head correction", n.pu(res.HeadCorrectionPa)+" added to every reference reading")
+	case r.Kind == KindBalance:
+		lines.add("Head correction", headInBalanceText)
 	}
 	for _, c := range info.Conditions {
-		lines = append(lines, identityLine{c.Name, dash(c.Value)})
+		lines.add(c.Name, c.Value)
 	}
-	lines = append(lines,
-		identityLine{"Points", n.plannedPoints(info, res)},
-		identityLine{"Cycles", cyclesText(info, res)},
-	)
-	if info.Procedure.Method != "" {
-		lines = append(lines, identityLine{"Method", info.Procedure.Method})
+	lines.add("Points", n.plannedPoints(info, res))
+	lines.add("Cycles", cyclesText(info, res))
+	lines.add("Method", info.Procedure.Method)
+	lines.add("Generated", stamp(info.GeneratedAt))
+	return lines
+}
+
+// identityLines are the labelled lines of an identity block; a field
+// with nothing to say is left out, never printed as a dash.
+type identityLines []identityLine
+
+func (ls *identityLines) add(label, value string) {
+	if strings.TrimSpace(value) != "" {
+		*ls = append(*ls, identityLine{label, value})
 	}
-	return append(lines, identityLine{"Generated", stamp(info.GeneratedAt)})
+}
+
+// headInBalanceText says where the head correction of a pressure balance
+// reference is: its pressures are worked out at the device's height.
+const headInBalanceText = "in the pressure balance's budget: each loading's pressure is worked out at the device's height"
+
+// headInBalance says whether c is a head line that was not evaluated
+// because the pressure balance's budget holds it.
+func headInBalance(info Info, c analysis.Contribution) bool {
+	return info.Reference.Kind == KindBalance && !c.Evaluated && (c.Name == "head_height" || c.Name == "head_density")
 }
 
 func prefixed(prefix, s string) string {
@@ -212,7 +229,7 @@ func prefixed(prefix, s string) string {
 
 // budgetTable is the budget as rows of contributions by columns of points:
 // standard uncertainties, "not evaluated" where a term could not be.
-func (n numbers) budgetTable(res analysis.Result) [][]string {
+func (n numbers) budgetTable(info Info, res analysis.Result) [][]string {
 	if len(res.Points) == 0 {
 		return nil
 	}
@@ -225,9 +242,12 @@ func (n numbers) budgetTable(res analysis.Result) [][]string {
 	for i, c := range res.Points[0].Budget {
 		row := []string{contributionText(c.Name)}
 		for _, p := range res.Points {
-			if i < len(p.Budget) && p.Budget[i].Evaluated {
+			switch {
+			case i < len(p.Budget) && p.Budget[i].Evaluated:
 				row = append(row, fine.p(p.Budget[i].StandardUncertaintyPa))
-			} else {
+			case i < len(p.Budget) && headInBalance(info, p.Budget[i]):
+				row = append(row, "in the balance")
+			default:
 				row = append(row, notEvaluated)
 			}
 		}
@@ -256,7 +276,7 @@ func (n numbers) budgetTable(res analysis.Result) [][]string {
 
 // notEvaluatedReasons says once per budget line why it was not evaluated,
 // naming the points (as numbered in the table) when not all of them.
-func notEvaluatedReasons(res analysis.Result) []string {
+func notEvaluatedReasons(info Info, res analysis.Result) []string {
 	var order []string
 	why := map[string]string{}
 	at := map[string][]string{}
@@ -268,6 +288,9 @@ func notEvaluatedReasons(res analysis.Result) []string {
 			if _, ok := why[c.Name]; !ok {
 				order = append(order, c.Name)
 				why[c.Name] = c.Note
+				if headInBalance(info, c) {
+					why[c.Name] = headInBalanceText
+				}
 			}
 			at[c.Name] = append(at[c.Name], itoa(p.Index+1))
 		}
@@ -277,6 +300,28 @@ func notEvaluatedReasons(res analysis.Result) []string {
 		out[i] = contributionText(name) + " — " + why[name]
 		if len(at[name]) < len(res.Points) {
 			out[i] += " (points " + strings.Join(at[name], ", ") + ")"
+		}
+	}
+	return out
+}
+
+// readingRow is one captured reading, as the table of every reading
+// shows it: the point, its cycle and direction, both indications and
+// the error of that reading.
+type readingRow struct {
+	Index, Nominal, Cycle, Direction, Reference, DUT, Error, Time string
+}
+
+func (n numbers) readings(res analysis.Result) []readingRow {
+	var out []readingRow
+	for _, p := range res.Points {
+		for _, r := range p.Readings {
+			row := readingRow{Index: itoa(p.Index + 1), Nominal: n.p(p.NominalPa), Cycle: itoa(r.Cycle), Direction: dirText(r.Direction),
+				Reference: n.p(r.ReferencePa), DUT: n.p(r.DUTPa), Error: n.p(r.ErrorPa)}
+			if !r.Time.IsZero() {
+				row.Time = r.Time.UTC().Format("2006-01-02 15:04:05")
+			}
+			out = append(out, row)
 		}
 	}
 	return out
