@@ -22,6 +22,7 @@ type Config struct {
 	Safety      Safety       `mapstructure:"safety"`
 	Head        Head         `mapstructure:"head"`
 	Simulator   Simulator    `mapstructure:"simulator"`
+	Certificate Certificate  `mapstructure:"certificate"` // certificate.go
 
 	// File is the path the configuration was read from ("" for defaults only).
 	File string `mapstructure:"-"`

@@ -98,6 +98,11 @@ func defaults() map[string]any {
 		"head.gas_molar_mass":      0.0,
 		"head.gas_temperature":     20.0,
 
+		"certificate.number":   "", // certificate.go: optional, left out of the report when empty
+		"certificate.customer": "",
+		"certificate.operator": "",
+		"certificate.date":     "",
+
 		"simulator.seed":                  1,
 		"simulator.speed":                 1.0,
 		"simulator.source.time_constant":  2 * time.Second,

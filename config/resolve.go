@@ -28,6 +28,7 @@ func (c *Config) resolve(p *Problems) {
 	c.resolveSafety(p)
 	c.resolveProcedure(p)
 	c.resolveSimulator(p)
+	c.resolveCertificate(p)
 }
 
 // pressure parses a quantity that must be a pressure; "" is reported as

@@ -142,6 +142,11 @@ func infoFor(cfg *config.Config, d config.Device) report.Info {
 		Device:    report.DeviceIdentity{ID: d.ID, Manufacturer: d.Manufacturer, Model: d.Model, Serial: d.Serial},
 		Reference: report.ReferenceIdentity{ID: r.ID, Model: r.Model, Serial: r.Serial, Certificate: r.Certificate, Expires: r.ExpiresAt},
 		Procedure: report.Procedure{PointsPa: cfg.Procedure.PointsPa, Cycles: cfg.Procedure.Cycles, Method: cfg.Procedure.Compare},
+		Certificate: report.Certificate{Number: cfg.Certificate.Number, Customer: cfg.Certificate.Customer,
+			Operator: cfg.Certificate.Operator, Date: cfg.Certificate.DateAt},
+	}
+	if cfg.ReferenceBalance() != nil {
+		info.Reference.Kind = report.KindBalance
 	}
 	if d.Medium != "" {
 		info.Conditions = append(info.Conditions, report.Condition{Name: "Medium", Value: d.Medium})
