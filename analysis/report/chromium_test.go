@@ -116,16 +116,7 @@ func TestSeveralDevicesPrintInChromium(t *testing.T) {
 	if err := os.WriteFile(page, b.Bytes(), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	pdf := filepath.Join(dir, "report.pdf")
-	_, stderr := runChromium(t, bin, dir, page, "--no-pdf-header-footer", "--print-to-pdf="+pdf)
-	if m := consoleError.FindString(stderr); m != "" {
-		t.Errorf("Chromium logged a console error (%q):\n%s", m, stderr)
-	}
-	out, err := exec.Command(text, "-layout", pdf, "-").Output()
-	if err != nil {
-		t.Fatalf("pdftotext: %v", err)
-	}
-	pages := strings.Split(strings.TrimRight(string(out), "\f\n "), "\f")
+	pages := printPages(t, bin, text, dir, page)
 	if len(pages) < 4 {
 		t.Fatalf("%d printed pages, want the summary and at least one per device", len(pages))
 	}
@@ -165,6 +156,51 @@ func TestSeveralDevicesPrintInChromium(t *testing.T) {
 				break
 			}
 			t.Errorf("a page of %s does not name it in its footer:\n%s", h, p)
+		}
+	}
+}
+
+// printPages prints page with Chromium and returns the text of each page.
+func printPages(t *testing.T, bin, text, dir, page string) []string {
+	t.Helper()
+	pdf := filepath.Join(dir, "report.pdf")
+	_, stderr := runChromium(t, bin, dir, page, "--no-pdf-header-footer", "--print-to-pdf="+pdf)
+	if m := consoleError.FindString(stderr); m != "" {
+		t.Errorf("Chromium logged a console error (%q):\n%s", m, stderr)
+	}
+	out, err := exec.Command(text, "-layout", pdf, "-").Output()
+	if err != nil {
+		t.Fatalf("pdftotext: %v", err)
+	}
+	return strings.Split(strings.TrimRight(string(out), "\f\n "), "\f")
+}
+
+// The report of one device printed by Chromium: every page carries the
+// report's identity (with the certificate number) and "page n of m", and
+// the table of every reading is printed.
+func TestOneDevicePrintInChromium(t *testing.T) {
+	bin, text := chromium(t), pdftotext(t)
+	info, res := scenario(t)
+	info.Certificate = Certificate{Number: "C-2026-0311", Customer: "Example Works"}
+	dir := t.TempDir()
+	page := filepath.Join(dir, "report.html")
+	if err := os.WriteFile(page, []byte(renderHTML(t, info, res)), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	pages := printPages(t, bin, text, dir, page)
+	if len(pages) < 3 {
+		t.Fatalf("%d printed pages, want the results, the charts and the budgets on pages of their own", len(pages))
+	}
+	const identity = "Calibration report — PG-0417 — as found & adjusted · run-0042 · certificate C-2026-0311"
+	all := strings.Join(pages, "\n")
+	for i, p := range pages {
+		if !strings.Contains(p, identity) || !strings.Contains(p, fmt.Sprintf("page %d of %d", i+1, len(pages))) {
+			t.Errorf("printed page %d lacks the report's identity or its number:\n%s", i+1, p)
+		}
+	}
+	for _, want := range []string{"Every reading", "Certificate number", "C-2026-0311", "Example Works"} {
+		if !strings.Contains(all, want) {
+			t.Errorf("the printed report lacks %q", want)
 		}
 	}
 }
