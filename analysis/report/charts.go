@@ -79,7 +79,7 @@ func newFigure(x, y string) *figure {
 	l.TextStyle.Font, l.TextStyle.Color = font.From(chartFace, 8), inkText
 	l.Left, l.Top = true, true
 	l.ThumbnailWidth = vg.Points(16)
-	l.Padding = vg.Points(3)
+	l.Padding = vg.Points(4.5)
 	return &figure{p: p, legend: l}
 }
 
@@ -310,6 +310,7 @@ func hysteresisChart(n numbers, res analysis.Result) (*chart, error) {
 	// Half a bar slot of room at either end, so the end bars are whole.
 	p.X.Min, p.X.Max = -0.5, float64(len(vals))-0.5
 	p.Y.Min = 0
+	p.Y.Max *= 1.08 // the tallest bar stays clear of the top edge
 	s, err := f.svg("hysteresis")
 	if err != nil {
 		return nil, err
