@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"plateau/analysis"
+	"plateau/analysis/readout"
 	"plateau/analysis/units"
 )
 
@@ -28,8 +29,23 @@ import (
 
 func init() { columns["dut_unit"] = false }
 
-// Loop is the loop range of a transmitter recorded in mA, in Pa.
-type Loop struct{ LowerPa, UpperPa float64 }
+// Loop is the loop range of a transmitter recorded in mA, in Pa, and the
+// unit it was written in (the zero Unit when built from pascals alone).
+type Loop struct {
+	LowerPa, UpperPa float64
+	Unit             units.Unit
+}
+
+// Text is the range for people, in its own unit (else the one given) with
+// digits to a thousandth of its span: "0.00 bar … 10.00 bar".
+func (l Loop) Text(or units.Unit) string {
+	u := l.Unit
+	if u.Symbol == "" {
+		u = or
+	}
+	res := math.Abs(l.UpperPa-l.LowerPa) / 1000
+	return readout.WithUnit(l.LowerPa, u, res) + " … " + readout.WithUnit(l.UpperPa, u, res)
+}
 
 // Options are what a table may need from outside it.
 type Options struct {
@@ -88,7 +104,7 @@ func (o *Options) headerLoop(br *bufio.Reader) error {
 			return fmt.Errorf("recorded run: %q: %w", l, err)
 		}
 		if o.Loop != nil && !sameLoop(*o.Loop, loop) {
-			return fmt.Errorf("recorded run: the table's %q differs from the loop range given (%g … %g Pa): a table recorded on one range is not evaluated on another", l, o.Loop.LowerPa, o.Loop.UpperPa)
+			return fmt.Errorf("recorded run: the table's %q differs from the loop range given (%s): a table recorded on one range is not evaluated on another", l, o.Loop.Text(loop.Unit))
 		}
 		o.Loop = &loop
 		return nil
@@ -106,8 +122,8 @@ func parseLoop(s string) (Loop, error) {
 		if !ok {
 			continue
 		}
-		l, err1 := loopEnd(lo)
-		h, err2 := loopEnd(hi)
+		l, _, err1 := loopEnd(lo)
+		h, u, err2 := loopEnd(hi)
 		switch {
 		case err1 != nil:
 			return Loop{}, err1
@@ -116,17 +132,18 @@ func parseLoop(s string) (Loop, error) {
 		case !(h > l) || math.IsInf(h-l, 0):
 			return Loop{}, fmt.Errorf("the upper range value must be above the lower, by a finite span")
 		}
-		return Loop{LowerPa: l, UpperPa: h}, nil
+		return Loop{LowerPa: l, UpperPa: h, Unit: u}, nil
 	}
 	return Loop{}, fmt.Errorf("give the loop range as \"0 bar … 10 bar\"")
 }
 
-func loopEnd(s string) (float64, error) {
+func loopEnd(s string) (float64, units.Unit, error) {
 	q, err := units.ParseQuantity(strings.TrimSpace(s))
 	if err != nil {
-		return 0, err
+		return 0, units.Unit{}, err
 	}
-	return q.Pa()
+	pa, err := q.Pa()
+	return pa, q.Unit, err
 }
 
 func sameLoop(a, b Loop) bool {

@@ -28,7 +28,9 @@ func TestCurrentTable(t *testing.T) {
 		{"range given", header + rows, ten, ""},
 		{"both agree", "# current_loop: 0 bar .. 10 bar\n" + header + rows, ten, ""},
 		{"spreadsheet export", "\ufeff# current_loop: 0 bar … 10 bar\ncycle;direction;nominal;reference;dut;unit;dut_unit\n1;up;0;0;3,70;bar;mA\n1;up;5;5;12,008;bar;mA\n1;up;10;10;20,016;bar;mA\n", nil, ""},
-		{"both differ", "# current_loop: 0 bar … 16 bar\n" + header + rows, ten, `differs from the loop range given`},
+		{"both differ", "# current_loop: 0 bar … 16 bar\n" + header + rows, ten, `"# current_loop: 0 bar … 16 bar" differs from the loop range given (0.00 bar … 10.00 bar)`},
+		// The range given is said in the table's unit, in fixed notation.
+		{"differ in psi", "# current_loop: 0 psi … 100 psi\n" + header + rows, ten, `differs from the loop range given (0.0 psi … 145.0 psi)`},
 		{"no range", header + rows, nil, `line 2, column G (dut_unit): a current in mA needs the loop range`},
 		{"bad range", "# current_loop: 10 bar … 0 bar\n" + header + rows, nil, "upper range value must be above"},
 		{"not a current", header + "1,up,0,0,3.70,bar,kPa\n", ten, `line 2, column G (dut_unit): "kPa": dut_unit is for a transmitter's output current`},

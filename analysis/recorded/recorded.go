@@ -30,19 +30,15 @@
 package recorded
 
 import (
-	"bufio"
 	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
 	"math"
-	"sort"
 	"strconv"
 	"strings"
-	"time"
 
 	"plateau/analysis"
-	"plateau/analysis/units"
 )
 
 // MaxRows bounds a table so that a wrong file cannot exhaust memory; an
@@ -66,78 +62,23 @@ func Read(r io.Reader) ([]analysis.Point, error) {
 }
 
 func readWith(r io.Reader, opt *Options) ([]analysis.Point, error) {
-	br := bufio.NewReader(r)
-	if b, err := br.Peek(3); err == nil && string(b) == "\ufeff" {
-		br.Discard(3) // the byte-order mark spreadsheets put first
-	}
-	sep := separator(br)
-	if err := opt.headerLoop(br); err != nil {
+	cr, sep, err := openTable(r, opt.headerLoop)
+	if err != nil {
 		return nil, err
 	}
-	cr := csv.NewReader(br)
-	cr.Comma = sep
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = sep != '\t'
-	cr.FieldsPerRecord = -1 // a short row is one problem among the others
-	header, err := cr.Read()
-	if errors.Is(err, io.EOF) {
-		return nil, errors.New("recorded run: empty table (expected a header row such as \"cycle,direction,nominal,reference,dut,unit\")")
-	}
+	t, err := readHeader(cr, sep, "recorded run", "cycle,direction,nominal,reference,dut,unit", columns,
+		"cycle, direction, nominal, reference, dut, unit, kind, time, note, reference_sd, reference_samples")
 	if err != nil {
-		return nil, fmt.Errorf("recorded run: %w", err)
+		return nil, err
 	}
-	t := table{cr: cr, header: header, col: map[string]int{}, decimalComma: sep != ',', opt: opt}
-	for i, h := range header {
-		name := strings.ToLower(strings.TrimSpace(h))
-		if _, known := columns[name]; !known {
-			t.problem(i, "unknown column %q (known: cycle, direction, nominal, reference, dut, unit, kind, time, note, reference_sd, reference_samples)", h)
-			continue
-		}
-		if first, dup := t.col[name]; dup {
-			t.problem(i, "column %q appears twice (first in column %s)", name, letters(first))
-			continue
-		}
-		t.col[name] = i
-	}
-	var lacking []string
-	for name, required := range columns {
-		if _, ok := t.col[name]; required && !ok {
-			lacking = append(lacking, name)
-		}
-	}
-	sort.Strings(lacking)
-	for _, name := range lacking {
-		t.problems = append(t.problems, fmt.Sprintf("header lacks the required column %q", name))
-	}
-	if len(t.problems) > 0 {
-		return nil, t.err()
-	}
-
+	t.opt = opt
 	var points []analysis.Point
-	for rows := 0; ; rows++ {
-		rec, err := cr.Read()
-		if errors.Is(err, io.EOF) {
-			break
-		}
-		if err != nil {
-			// A broken quote leaves the rest of the file unreadable.
-			t.problems = append(t.problems, err.Error())
-			return nil, t.err()
-		}
-		if rows == MaxRows {
-			line, _ := cr.FieldPos(0)
-			return nil, fmt.Errorf("recorded run: line %d: more than %d readings", line, MaxRows)
-		}
+	if err := t.eachRow(func(rec []string) {
 		if p, ok := t.row(rec); ok {
 			points = append(points, p)
 		}
-		if len(t.problems) >= maxProblems {
-			t.problems = append(t.problems, "… more problems not listed; fix these first")
-			return nil, t.err()
-		}
-	}
-	if len(t.problems) > 0 {
-		return nil, t.err()
+	}); err != nil {
+		return nil, err
 	}
 	if len(points) == 0 {
 		return nil, errors.New("recorded run: the table has a header but no readings")
@@ -146,30 +87,10 @@ func readWith(r io.Reader, opt *Options) ([]analysis.Point, error) {
 	return points, nil
 }
 
-// separator is the field separator of the header row: the one of comma,
-// semicolon and tab it holds most of (a header has no decimals), comma
-// when it holds none.
-func separator(br *bufio.Reader) rune {
-	head, _ := br.Peek(64 << 10)
-	for _, line := range strings.Split(string(head), "\n") {
-		l := strings.TrimSpace(line)
-		if l == "" || l[0] == '#' {
-			continue
-		}
-		best, n := ',', strings.Count(l, ",")
-		for _, c := range []rune{';', '\t'} {
-			if k := strings.Count(l, string(c)); k > n {
-				best, n = c, k
-			}
-		}
-		return best
-	}
-	return ','
-}
-
 // table is the state of one read: where the columns are and the problems
 // found so far.
 type table struct {
+	name         string // "recorded run", "table of loadings": the start of its errors
 	cr           *csv.Reader
 	header       []string
 	col          map[string]int
@@ -181,9 +102,9 @@ type table struct {
 
 func (t *table) err() error {
 	if len(t.problems) == 1 {
-		return fmt.Errorf("recorded run: %s", t.problems[0])
+		return fmt.Errorf("%s: %s", t.name, t.problems[0])
 	}
-	return fmt.Errorf("recorded run: %d problems:\n  %s", len(t.problems), strings.Join(t.problems, "\n  "))
+	return fmt.Errorf("%s: %d problems:\n  %s", t.name, len(t.problems), strings.Join(t.problems, "\n  "))
 }
 
 // problem notes a bad field i of the current row, named by line, column
@@ -219,83 +140,19 @@ func (t *table) number(s string) (float64, bool) {
 // row reads one reading; every bad field of it is noted as a problem.
 func (t *table) row(rec []string) (analysis.Point, bool) {
 	before := len(t.problems)
-	if len(rec) != len(t.header) {
-		line, _ := t.cr.FieldPos(0)
-		t.problems = append(t.problems, fmt.Sprintf("line %d: %d fields, but the header has %d", line, len(rec), len(t.header)))
+	h, ok := t.head(rec)
+	if !ok {
 		return analysis.Point{}, false
 	}
-	field := func(name string) (string, int) {
-		i, ok := t.col[name]
-		if !ok {
-			return "", i
-		}
-		return strings.TrimSpace(rec[i]), i
-	}
-	p := analysis.Point{Kind: analysis.Measurement}
-	if s, i := field("kind"); s != "" {
-		switch k := analysis.PointKind(strings.ToLower(s)); k {
-		case analysis.Measurement, analysis.ZeroBefore, analysis.ZeroAfter:
-			p.Kind = k
-		default:
-			t.problem(i, "%q is not one of %s, %s, %s", s, analysis.Measurement, analysis.ZeroBefore, analysis.ZeroAfter)
-		}
-	}
-	measure := p.Kind == analysis.Measurement
-
-	s, i := field("cycle")
-	if c, err := strconv.Atoi(s); err != nil || c < 1 {
-		t.problem(i, "%q is not a whole number of 1 or more", s)
-	} else {
-		p.Cycle = c
-	}
-
-	s, i = field("direction")
-	switch d := analysis.Direction(strings.ToLower(s)); {
-	case d == analysis.Ascending || d == analysis.Descending:
-		p.Direction = d
-	case s == "" && !measure:
-	default:
-		t.problem(i, "%q is not %s or %s", s, analysis.Ascending, analysis.Descending)
-	}
-
-	s, i = field("unit")
-	t.noteMode(i, s)
-	u, err := units.Lookup(s)
-	if err != nil {
-		t.problem(i, "%v", err)
-		u = units.Pascal // the numbers are still checked
-	}
-	number := func(name string, blankOK bool) float64 {
-		s, i := field(name)
-		if s == "" && blankOK {
-			return 0
-		}
-		v, ok := t.number(s)
-		if !ok {
-			t.problem(i, "%q is not a number", s)
-			return 0
-		}
-		pa := u.ToPa(v)
-		if math.IsInf(pa, 0) {
-			t.problem(i, "%q %s is too large", s, u.Symbol)
-			return 0
-		}
-		return pa
-	}
-	p.Nominal = number("nominal", !measure)
-	ref := number("reference", false)
-	dut := t.dut(field, number, &p)
-	var at time.Time
-	if s, i := field("time"); s != "" {
-		if at, err = time.Parse(time.RFC3339Nano, s); err != nil {
-			t.problem(i, "%q is not an RFC 3339 time such as 2025-03-01T21:04:05Z", s)
-		}
-	}
+	p := h.p
+	p.Nominal = h.pressure("nominal", !h.measure)
+	ref := h.pressure("reference", false)
+	dut := t.dut(h.field, h.pressure, &p)
 	// A typed-in reading is one sample: Count 1, no spread, unless the
 	// table gives the window it was averaged from.
-	p.Reference = analysis.Window{Mean: ref, Count: 1, Start: at, End: at}
-	sd := number("reference_sd", true)
-	s, i = field("reference_samples")
+	p.Reference = h.window(ref)
+	sd := h.pressure("reference_sd", true)
+	s, i := h.field("reference_samples")
 	switch {
 	case s == "" && sd == 0:
 	case s == "":
@@ -311,31 +168,6 @@ func (t *table) row(rec []string) (analysis.Point, bool) {
 			p.Reference.Count, p.Reference.StdDev = n, sd
 		}
 	}
-	p.DUT = analysis.Window{Mean: dut, Count: 1, Start: at, End: at}
-	p.Note, _ = field("note")
+	p.DUT = h.window(dut)
 	return p, len(t.problems) == before
-}
-
-// numberPoints gives each measurement its Index: the rank of its nominal
-// among the distinct nominals, lowest first. Nominals given in different
-// units match when they convert to the same pascal value.
-func numberPoints(points []analysis.Point) {
-	var nominals []float64
-	seen := map[float64]bool{}
-	for _, p := range points {
-		if p.Kind == analysis.Measurement && !seen[p.Nominal] {
-			seen[p.Nominal] = true
-			nominals = append(nominals, p.Nominal)
-		}
-	}
-	sort.Float64s(nominals)
-	rank := make(map[float64]int, len(nominals))
-	for i, n := range nominals {
-		rank[n] = i
-	}
-	for i := range points {
-		if points[i].Kind == analysis.Measurement {
-			points[i].Index = rank[points[i].Nominal]
-		}
-	}
 }
