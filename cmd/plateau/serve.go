@@ -259,7 +259,11 @@ func (c *engineControl) planned() planLength {
 
 func (c *engineControl) currentRun() string { return c.eng.Status().Run }
 
-func (c *engineControl) Status(context.Context) api.Status {
+func (c *engineControl) Status(context.Context) api.Status { return c.status(true) }
+
+// status is what the daemon reports; withPlan adds every step of the plan,
+// which the service status line, built every 10 s, does without.
+func (c *engineControl) status(withPlan bool) api.Status {
 	es := c.eng.Status()
 	out := api.Status{Version: version, Since: c.since, PointsCaptured: es.PointsCommitted, Unit: c.cfg.Device.Unit,
 		Trip: es.Trip, StoreFault: es.StoreFault}
@@ -289,7 +293,7 @@ func (c *engineControl) Status(context.Context) api.Status {
 			out.Step += ": " + es.Phase
 		}
 	}
-	c.describePlan(&out, es)
+	c.describePlan(&out, es, withPlan)
 	roles, ids := map[string]string{}, map[string]string{}
 	for _, in := range c.cfg.Instruments {
 		roles[in.Name] = in.Role
@@ -314,16 +318,18 @@ func (c *engineControl) Status(context.Context) api.Status {
 	return out
 }
 
-// describePlan adds the plan, its expected duration, the settle rule and
+// describePlan adds the plan (withPlan), its expected duration, the settle rule and
 // where the run is; times are wall time, so a simulated bench that runs its
 // clock faster shows how long a person waits.
-func (c *engineControl) describePlan(out *api.Status, es acquire.Status) {
+func (c *engineControl) describePlan(out *api.Status, es acquire.Status, withPlan bool) {
 	wall := func(d time.Duration) float64 { return d.Seconds() / c.speed() }
-	steps := c.eng.Plan()
-	out.Plan = make([]api.PlanStep, 0, len(steps))
-	for _, st := range steps {
-		out.Plan = append(out.Plan, api.PlanStep{Kind: string(st.Kind), Cycle: st.Cycle, Direction: string(st.Direction),
-			TargetPa: st.TargetPa, What: st.String()})
+	if withPlan {
+		steps := c.eng.Plan()
+		out.Plan = make([]api.PlanStep, 0, len(steps))
+		for _, st := range steps {
+			out.Plan = append(out.Plan, api.PlanStep{Kind: string(st.Kind), Cycle: st.Cycle, Direction: string(st.Direction),
+				TargetPa: st.TargetPa, What: st.String()})
+		}
 	}
 	if p := c.planned(); p.timed {
 		out.ExpectedSeconds, out.ExpectedMostSeconds = wall(p.least), wall(p.most)
@@ -471,7 +477,7 @@ func refusal(err error) error {
 func (c *engineControl) reportStatus(ctx context.Context, log *slog.Logger) {
 	last := ""
 	for {
-		st := c.Status(ctx)
+		st := c.status(false)
 		line := "idle"
 		if st.Run != nil {
 			line = fmt.Sprintf("run %s %s, %s", st.Run.ID, st.Run.State, st.Step)
