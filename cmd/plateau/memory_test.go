@@ -162,8 +162,7 @@ func scrape(ctx context.Context, socket string, names ...string) (map[string]flo
 // memoryConfig writes the four-device simulated bench of
 // testdata/config/sim-devices.yaml to dir with its store and socket there,
 // every device on a line instrument, the clock at speed× and a procedure of
-// many cycles, so that the run outlasts the measurement. Every replacement
-// must apply.
+// enough cycles to outlast the measurement. Every replacement must apply.
 func memoryConfig(t *testing.T, dir string, speed int) (cfgPath, storePath, socket string) {
 	t.Helper()
 	text, err := os.ReadFile("../../testdata/config/sim-devices.yaml")
@@ -180,7 +179,12 @@ func memoryConfig(t *testing.T, dir string, speed int) (cfgPath, storePath, sock
 		{"path: plateau-sim-devices.db", "path: " + storePath},
 		{"socket: plateau-sim-devices.sock", "socket: " + socket},
 		{"speed: 20", fmt.Sprintf("speed: %d", speed)},
-		{"cycles: 2", "cycles: 1000"},
+		// A hold of a minute after each change of pressure (common
+		// practice for gauges) and enough cycles to outlast a day: a plan
+		// of a length a lab would run, not 14 000 steps, which status
+		// would describe in full every time it is asked.
+		{"cycles: 2", "cycles: 100"},
+		{"hold: 5s", "hold: 60s"},
 		// The safety guard's silence is clock time: at 120× its default
 		// (2.1 s) is 18 ms of wall time, which a loaded machine's pause can
 		// exceed, tripping the guard and pausing the run, a different load
