@@ -125,6 +125,8 @@ type link struct {
 	units       map[uint8]*unitState
 	backoff     time.Duration
 	nextTry     time.Time
+
+	step resync // RTU framing only: whether a late reply may be waiting
 }
 
 // links shares one link per URL across every instrument of the process.
@@ -181,6 +183,7 @@ func newLink(opts LinkOptions, log *slog.Logger) (*link, error) {
 		return nil, fmt.Errorf("modbus client %s: %w", opts.URL, err)
 	}
 	l := &link{opts: opts, bus: drivers.NewBus(opts.Pause), log: log, client: c, backoff: opts.Backoff, units: map[uint8]*unitState{}}
+	l.step.init(opts)
 	if opts.Serial {
 		if l.releasePort, err = drivers.ClaimPort(opts.Address, "Modbus RTU link "+opts.URL); err != nil {
 			return nil, err
@@ -274,21 +277,44 @@ func (o *op) send(c *mb.ModbusClient) (r result, err error) {
 // run holds the line (never starting when ctx has ended) and executes o
 // with connect, retries and reconnect.
 func (l *link) run(ctx context.Context, o *op) (result, error) {
-	acquire := l.bus.Acquire
-	if o.urgent {
-		acquire = l.bus.AcquireUrgent
-	}
-	if err := acquire(ctx); err != nil {
+	if err := l.take(ctx, o); err != nil {
 		return result{}, err
 	}
-	defer l.bus.Release()
 	u := l.unitState(o.unit)
 	if err := u.benched(o, len(l.units)); err != nil {
+		l.bus.Release()
 		return result{}, err
 	}
-	r, err := l.exchange(ctx, o)
-	u.after(err, l.opts.Backoff)
+	r, held, err := l.exchange(ctx, o, u)
+	if held {
+		u.after(err, l.opts.Backoff)
+		l.bus.Release()
+	}
 	return r, err
+}
+
+// take holds the line for o. An ordinary request first waits out the grace
+// of an RTU line that fell out of step, without holding the line, so that a
+// vent asked meanwhile does not wait behind it; holding the line, it checks
+// that no new grace began while it queued (the request ahead of it failed).
+// A vent takes the line at once.
+func (l *link) take(ctx context.Context, o *op) error {
+	if o.urgent {
+		return l.bus.AcquireUrgent(ctx)
+	}
+	wait := l.step.left()
+	for {
+		if err := sleep(ctx, wait); err != nil {
+			return err
+		}
+		if err := l.bus.Acquire(ctx); err != nil {
+			return err
+		}
+		if wait = l.waitFor(o.unit); wait <= 0 {
+			return nil
+		}
+		l.bus.Release()
+	}
 }
 
 // silentAfter is how many requests in a row a unit may leave unanswered
@@ -303,6 +329,7 @@ type unitState struct {
 	silent  int           // requests in a row without an answer
 	backoff time.Duration // the next benching, doubling up to maxBackoff
 	until   time.Time     // benched until then
+	late    time.Time     // a late reply of this unit may come until then (see resync.go)
 }
 
 var errSilent = errors.New("unit not answering")
@@ -348,25 +375,39 @@ func (u *unitState) after(err error, backoff time.Duration) {
 	}
 }
 
-func (l *link) exchange(ctx context.Context, o *op) (result, error) {
+// exchange makes the attempts of o, holding the line; it reports whether it
+// still holds it (a retry that waited out a resync may find ctx ended
+// before it had the line again).
+func (l *link) exchange(ctx context.Context, o *op, u *unitState) (result, bool, error) {
 	debug := l.log.Enabled(ctx, slog.LevelDebug)
 	var err error
 	for attempt := 0; attempt <= l.opts.Retries; attempt++ {
 		if attempt > 0 {
+			if !o.urgent && (l.step.left() > 0 || time.Now().Before(u.late)) {
+				// The failed attempt left the line out of step: give it up for
+				// the grace, as any ordinary request would.
+				l.bus.Release()
+				if e := l.take(ctx, o); e != nil {
+					return result{}, false, errors.Join(err, e)
+				}
+			}
 			// Back off a little more on each retry; a busy device needs time.
 			if err := sleep(ctx, time.Duration(attempt)*l.opts.Pause); err != nil {
-				return result{}, errors.Join(err, ctx.Err())
+				return result{}, true, errors.Join(err, ctx.Err())
 			}
 		}
 		if ctx.Err() != nil { // a retry is a new request: not after a cancel
-			return result{}, errors.Join(err, ctx.Err())
+			return result{}, true, errors.Join(err, ctx.Err())
 		}
 		if err = l.connect(); err != nil {
-			return result{}, err // the back-off decides when to try again, not the retry count
+			return result{}, true, err // the back-off decides when to try again, not the retry count
+		}
+		if err = l.resync(o.urgent); err != nil {
+			return result{}, true, err
 		}
 		if o.unit != l.unit {
 			if err = l.client.SetUnitId(o.unit); err != nil {
-				return result{}, err
+				return result{}, true, err
 			}
 			l.unit = o.unit
 		}
@@ -376,7 +417,7 @@ func (l *link) exchange(ctx context.Context, o *op) (result, error) {
 		var r result
 		r, err = o.send(l.client)
 		if err == nil {
-			return r, nil
+			return r, true, nil
 		}
 		if debug {
 			l.log.Debug("modbus request failed", "unit", o.unit, "request", o.String(), "attempt", attempt+1, "err", err)
@@ -388,11 +429,12 @@ func (l *link) exchange(ctx context.Context, o *op) (result, error) {
 			l.nextTry = time.Time{} // one immediate reconnect; back-off after that
 			continue
 		}
+		l.failed(err, u)
 		if !retryable(err) {
-			return result{}, err
+			return result{}, true, err
 		}
 	}
-	return result{}, err
+	return result{}, true, err
 }
 
 // sleep waits d or until ctx ends.
@@ -418,7 +460,17 @@ func (l *link) connect() error {
 	if now := time.Now(); now.Before(l.nextTry) {
 		return fmt.Errorf("%w: next connect attempt in %s", errDown, l.nextTry.Sub(now).Round(time.Millisecond))
 	}
+	if err := l.open(); err != nil {
+		return err
+	}
+	l.log.Info("modbus connected")
+	return nil
+}
+
+// open opens the client; a failure starts the back-off.
+func (l *link) open() error {
 	if err := l.client.Open(); err != nil {
+		l.up = false
 		l.nextTry = time.Now().Add(l.backoff)
 		l.log.Warn("modbus connect failed", "err", err, "retry_in_seconds", l.backoff.Seconds())
 		l.backoff = min(2*l.backoff, maxBackoff)
@@ -426,7 +478,6 @@ func (l *link) connect() error {
 	}
 	l.up = true
 	l.backoff = l.opts.Backoff
-	l.log.Info("modbus connected")
 	return nil
 }
 
