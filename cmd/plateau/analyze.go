@@ -205,8 +205,8 @@ func runAnalyze(cmd *cobra.Command, csvPath string, f analyzeFlags) error {
 // point (text) or both results with their comparison (json).
 func renderComparison(w io.Writer, f analyzeFlags, info report.Info, asLeft analysis.Result,
 	dev analysis.Device, ref analysis.Reference, opt analysis.Options) error {
-	if f.format != "text" && f.format != "json" {
-		return fmt.Errorf("--as-found works with --format text or json, not %q", f.format)
+	if f.format != "text" && f.format != "json" && f.format != "html" {
+		return fmt.Errorf("--as-found works with --format text, json or html, not %q", f.format)
 	}
 	points, err := readRecorded(f.asFound)
 	if errors.Is(err, errLoadings) {
@@ -223,8 +223,11 @@ func renderComparison(w io.Writer, f analyzeFlags, info report.Info, asLeft anal
 	if err != nil {
 		return err
 	}
-	if f.format == "json" {
+	switch f.format {
+	case "json":
 		return report.ComparisonJSON(w, info, asFound, asLeft, c)
+	case "html":
+		return report.ComparisonHTML(w, info, asLeft, c)
 	}
 	if err := report.Text(w, info, asLeft); err != nil {
 		return err

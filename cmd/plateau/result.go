@@ -6,6 +6,7 @@ import (
 	"io"
 	"slices"
 	"strings"
+	"time"
 
 	"plateau/acquire/api"
 	"plateau/acquire/procedure"
@@ -75,6 +76,11 @@ func evaluateAll(st runStore, id store.RunID) (*runResult, error) {
 			info.Run.Missed = missedPoints(st, id, one, mine, name)
 		}
 		info.GeneratedAt = run.Updated
+		if info.Certificate.Date.IsZero() && !run.Created.IsZero() {
+			// Not configured: the calibration took place on the run's day.
+			y, m, day := run.Created.UTC().Date()
+			info.Certificate.Date = time.Date(y, m, day, 0, 0, 0, 0, time.UTC)
+		}
 		d := report.DeviceReport{Info: info}
 		if len(mine) == 0 {
 			d.Missing = "no reading of this device was captured"
