@@ -49,17 +49,18 @@ func (c *Config) RTULines() []LineLoad {
 	byAddr := map[string]*LineLoad{}
 	busy := map[string]float64{} // seconds the line is held per second, at the asked rates
 	for i, in := range c.Instruments {
-		if in.Link.Kind != LinkModbusRTU || in.Link.Address == "" || in.Poll <= 0 {
+		addr, baud, words, ok := c.rtuLine(in)
+		if !ok || in.Poll <= 0 {
 			continue
 		}
-		l := byAddr[in.Link.Address]
+		l := byAddr[addr]
 		if l == nil {
-			l = &LineLoad{Address: in.Link.Address, Baud: in.Link.Baud}
-			byAddr[in.Link.Address] = l
+			l = &LineLoad{Address: addr, Baud: baud}
+			byAddr[addr] = l
 		}
 		l.Instruments = append(l.Instruments, i)
 		l.Asked += float64(time.Second) / float64(in.Poll)
-		busy[in.Link.Address] += TransactionTime(in.Link.Baud, valueWords(in.Value.Type), in.Link.Pause).Seconds() / in.Poll.Seconds()
+		busy[addr] += TransactionTime(baud, words, in.Link.Pause).Seconds() / in.Poll.Seconds()
 	}
 	out := make([]LineLoad, 0, len(byAddr))
 	for addr, l := range byAddr {
@@ -72,6 +73,23 @@ func (c *Config) RTULines() []LineLoad {
 	}
 	sort.Slice(out, func(i, j int) bool { return out[i].Address < out[j].Address })
 	return out
+}
+
+// simRTULine names the simulator's one RTU line in a LineLoad.
+const simRTULine = "the simulator's RTU line"
+
+// rtuLine says which RTU line an instrument is read over, at what baud, and
+// how many registers a read takes. Simulated instruments reached over
+// Modbus RTU all share the simulator's line, at simulator.rtu.baud; the
+// simulator serves every value they read as a float32 (two registers).
+func (c *Config) rtuLine(in Instrument) (addr string, baud, words int, ok bool) {
+	switch {
+	case in.Link.Kind == LinkModbusRTU && in.Link.Address != "":
+		return in.Link.Address, in.Link.Baud, valueWords(in.Value.Type), true
+	case in.Link.Kind == LinkSim && in.SimVia == LinkModbusRTU:
+		return simRTULine, c.Simulator.RTU.Baud, 2, true
+	}
+	return "", 0, 0, false
 }
 
 func valueWords(typ string) int {
