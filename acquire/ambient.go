@@ -15,6 +15,7 @@ import (
 	"plateau/analysis/units"
 	"plateau/config"
 	"plateau/drivers"
+	"plateau/drivers/balance"
 	"plateau/drivers/clock"
 )
 
@@ -197,8 +198,43 @@ func (b *ambientBook) convert(in Instruments) Instruments {
 			}
 		}
 	}
+	b.lendThermometer(in.Reference)
 	return in
 }
+
+// thermometerUser is a reference that takes a temperature from an ambient
+// instrument: a pressure balance, its piston's (drivers/balance).
+type thermometerUser interface {
+	UseThermometer(balance.TemperatureSource)
+}
+
+// lendThermometer hands a pressure balance reference the ambient
+// instrument that balance.piston_thermometer names; the balance reads
+// the latest reading the book keeps, nothing else of the engine.
+func (b *ambientBook) lendThermometer(ref Instrument) {
+	for _, inst := range b.cfg.Instruments {
+		if inst.Role != config.RoleReference || inst.Name != ref.Name || inst.Balance == nil || inst.Balance.PistonThermometer == "" {
+			continue
+		}
+		tr := b.byKey[inst.Balance.PistonThermometer]
+		g := ref.Gauge
+		for {
+			w, ok := g.(interface{ Unwrap() drivers.Gauge })
+			if !ok {
+				break
+			}
+			g = w.Unwrap()
+		}
+		if u, ok := g.(thermometerUser); ok && tr != nil && tr.kind == units.Temperature {
+			u.UseThermometer(tr)
+		}
+	}
+}
+
+// LatestTemperature is the track's newest reading (°C for a thermometer).
+func (tr *ambientTrack) LatestTemperature() (float64, time.Time, bool) { return tr.latest() }
+
+var _ balance.TemperatureSource = (*ambientTrack)(nil)
 
 // shiftedGauge reads an instrument of the other mode in the devices' mode.
 // Raw keeps what the instrument gave, for audit.

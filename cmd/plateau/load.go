@@ -40,7 +40,8 @@ pressure).
 Put the weights on and float the piston before you run load: the run takes a
 point only when the device under test has settled too. Give the piston
 temperature with --temperature unless the configuration enters one for the
-run (balance.piston_temperature).
+run (balance.piston_temperature) or names the ambient thermometer the run
+reads it from (balance.piston_thermometer).
 
 When the configuration lists the loading of each planned point
 (balance.loadings), plateau load without pieces says what the run's current
@@ -118,9 +119,15 @@ func runLoad(cmd *cobra.Command, df *daemonFlags, pieces, temperature string, ve
 		// a missing temperature is refused at the terminal.
 		c := b.LevelConditions()
 		c.Loaded = l.Pieces
+		at := ""
 		switch {
 		case l.HasTemperature:
 			c.PistonTempC = l.TemperatureC
+		case b.PistonThermometer != "":
+			// The run reads the temperature from the thermometer; here the
+			// reference temperature is near enough (some ppm per kelvin).
+			c.PistonTempC = *b.ReferenceTemperature
+			at = " (the run takes the piston temperature from " + b.PistonThermometer + ")"
 		case b.PistonTemperature == nil:
 			return errors.New("load: give the piston temperature with --temperature (the configuration enters none for the run)")
 		}
@@ -137,7 +144,7 @@ func runLoad(cmd *cobra.Command, df *daemonFlags, pieces, temperature string, ve
 		// Digits to the balance's standard uncertainty.
 		msg = fmt.Sprintf("%s at %s °C: %s at the balance's reference level (%s m), standard uncertainty %s", l.Text(),
 			strconv.FormatFloat(c.PistonTempC, 'f', -1, 64), readout.WithUnit(r.LevelPa, u, r.U),
-			strconv.FormatFloat(b.ReferenceHeight, 'f', -1, 64), readout.WithUnit(r.U, u, r.U/10))
+			strconv.FormatFloat(b.ReferenceHeight, 'f', -1, 64), readout.WithUnit(r.U, u, r.U/10)) + at
 		// Weights on a piston are a pressure source: the same notice as
 		// every command that drives one.
 		fmt.Fprintln(cmd.ErrOrStderr(), safetyNotice)

@@ -293,3 +293,24 @@ func TestPlannedLoadingHint(t *testing.T) {
 		}
 	}
 }
+
+// With a piston thermometer in the configuration, plateau load needs no
+// --temperature: the run reads it; the safety limit is still checked.
+func TestLoadWithPistonThermometer(t *testing.T) {
+	dir := t.TempDir()
+	cfg := filepath.Join(dir, "balance.yaml")
+	yaml := strings.NewReplacer(
+		"      piston_temperature_uncertainty: 0.2\n", "      piston_temperature_uncertainty: 0.2\n      piston_thermometer: piston\n",
+		"device:\n", "  - name: piston\n    role: ambient\n    quantity: temperature\n    unit: °C\n    uncertainty: 0.1 K\n    link: {kind: manual}\ndevice:\n",
+	).Replace(readFile(filepath.Join(mustWd(t), "../../testdata/config/balance.yaml")))
+	if err := os.WriteFile(cfg, []byte(yaml), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out, err := runPlateau(t, "load", "-c", cfg, "P1+M1+M2")
+	if err != nil || !strings.Contains(out, "(the run takes the piston temperature from piston)") {
+		t.Fatalf("load: %v\n%s", err, out)
+	}
+	if b := readFile(filepath.Join(dir, "plateau-balance.loading")); b != "# plateau loading\nloading P1+M1+M2\n" {
+		t.Errorf("loading file %q", b)
+	}
+}

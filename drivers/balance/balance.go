@@ -9,7 +9,9 @@
 // loading file named by the instrument's link.address; Read reads that file
 // (see loadfile.go), so the daemon and the command share nothing else. No
 // file yet means no reading yet (a timeout-kind failure); a vented balance
-// reads zero gauge pressure.
+// reads zero gauge pressure. The piston temperature comes from the loading
+// file, from the configuration, or from the ambient thermometer the engine
+// hands over (UseThermometer), read afresh at every read.
 package balance
 
 import (
@@ -20,6 +22,7 @@ import (
 	"os"
 	"strconv"
 	"sync"
+	"time"
 
 	model "plateau/analysis/balance"
 	"plateau/analysis/units"
@@ -31,6 +34,19 @@ import (
 func init() {
 	drivers.Register(config.LinkBalance, drivers.Opener{Gauge: OpenGauge})
 }
+
+// TemperatureSource gives the latest piston temperature (°C) and when it
+// was read: the engine hands the gauge one of its ambient instruments (the
+// one balance.piston_thermometer names), so the driver needs nothing of
+// the engine but this.
+type TemperatureSource interface {
+	LatestTemperature() (celsius float64, at time.Time, ok bool)
+}
+
+// freshTemperature is how old the thermometer's latest reading may be:
+// a piston's temperature changes over minutes (our own choice). An older
+// one fails the reading, as a silent reference does.
+const freshTemperature = 2 * time.Minute
 
 // ErrNoLoading says the operator has not yet said what is on the piston.
 var ErrNoLoading = errors.New("no loading yet: put the weights on, float the piston and run plateau load")
@@ -47,10 +63,11 @@ type Gauge struct {
 	// tempSet: the configuration enters the piston temperature for the run.
 	tempSet bool
 
-	mu   sync.Mutex
-	seen fs.FileInfo     // the loading file last read
-	last drivers.Reading // its reading (time refreshed on every Read)
-	err  error           // or why it gives none
+	mu      sync.Mutex
+	seen    fs.FileInfo       // the loading file last read
+	loading Loading           // what it holds
+	err     error             // or why it gives no reading
+	thermo  TemperatureSource // the piston thermometer; nil when none
 }
 
 var _ drivers.Gauge = (*Gauge)(nil)
@@ -87,16 +104,46 @@ func (g *Gauge) Read(ctx context.Context) (drivers.Reading, error) {
 	g.mu.Lock()
 	defer g.mu.Unlock()
 	g.refresh()
-	if g.err != nil {
-		kind := drivers.KindBadReply
-		if errors.Is(g.err, ErrNoLoading) {
-			kind = drivers.KindTimeout
-		}
-		return drivers.Reading{}, drivers.Fail(g.name, kind, g.err)
+	err := g.err
+	var r drivers.Reading
+	if err == nil {
+		r, err = g.reading(g.loading)
 	}
-	r := g.last
+	if err != nil {
+		kind := drivers.KindBadReply
+		switch {
+		case errors.Is(err, ErrNoLoading):
+			kind = drivers.KindTimeout
+		case errors.Is(err, errNoTemperature):
+			kind = drivers.KindLinkDown
+		}
+		return drivers.Reading{}, drivers.Fail(g.name, kind, err)
+	}
 	r.Time = g.clk.Now()
 	return r, nil
+}
+
+// UseThermometer takes the piston temperature from th whenever the
+// loading file gives none (plateau load --temperature still wins: the
+// operator said it).
+func (g *Gauge) UseThermometer(th TemperatureSource) {
+	g.mu.Lock()
+	g.thermo = th
+	g.mu.Unlock()
+}
+
+var errNoTemperature = errors.New("no fresh piston temperature")
+
+// pistonTemperature is the thermometer's latest reading, if fresh.
+func (g *Gauge) pistonTemperature() (float64, error) {
+	t, at, ok := g.thermo.LatestTemperature()
+	if !ok {
+		return 0, fmt.Errorf("%w: the piston thermometer has given none yet", errNoTemperature)
+	}
+	if age := g.clk.Now().Sub(at); age > freshTemperature {
+		return 0, fmt.Errorf("%w: the piston thermometer's last reading is %s old", errNoTemperature, age.Round(time.Second))
+	}
+	return t, nil
 }
 
 // refresh reads the loading file again when it has changed.
@@ -121,15 +168,15 @@ func (g *Gauge) refresh() {
 		return
 	}
 	g.seen = fi
-	g.last, g.err = g.reading(data)
+	g.loading, g.err = ParseLoading(data)
+	if g.err != nil {
+		g.err = fmt.Errorf("loading file %s: %w", g.path, g.err)
+	}
 }
 
-// reading works out the pressure of a loading file's content.
-func (g *Gauge) reading(data []byte) (drivers.Reading, error) {
-	l, err := ParseLoading(data)
-	if err != nil {
-		return drivers.Reading{}, fmt.Errorf("loading file %s: %w", g.path, err)
-	}
+// reading works out the pressure of a loading: once per read, since the
+// piston temperature may come from a thermometer (a few microseconds).
+func (g *Gauge) reading(l Loading) (drivers.Reading, error) {
 	if l.Vented {
 		return drivers.Reading{RawUnit: g.unit.Symbol, Wire: "vented"}, nil
 	}
@@ -138,6 +185,12 @@ func (g *Gauge) reading(data []byte) (drivers.Reading, error) {
 	switch {
 	case l.HasTemperature:
 		c.PistonTempC = l.TemperatureC
+	case g.thermo != nil:
+		t, err := g.pistonTemperature()
+		if err != nil {
+			return drivers.Reading{}, err
+		}
+		c.PistonTempC = t
 	case !g.tempSet:
 		return drivers.Reading{}, fmt.Errorf("loading file %s: no piston temperature: give it with plateau load --temperature", g.path)
 	}
