@@ -20,16 +20,7 @@ import (
 // and a real store on one scaled clock, the procedure shortened.
 func devicesBench(t *testing.T, edit func(*config.Config)) *testBench {
 	t.Helper()
-	b := bench(t, func(c *config.Config) {
-		// The guard's silence limit is clock time: at 40× its 2 s are 50 ms
-		// of wall time, which a loaded machine under -race can stall for.
-		// The guard's promise is tested in safety_test.go; here it must not
-		// trip.
-		c.Safety.Silence = 20 * time.Second
-		if edit != nil {
-			edit(c)
-		}
-	}, withFile("../../testdata/config/sim-devices.yaml"))
+	b := bench(t, edit, withFile("../../testdata/config/sim-devices.yaml"))
 	if len(b.cfg.Devices) != 4 || b.rig.Devices() != 4 {
 		t.Fatalf("%d devices configured, %d simulated; want 4", len(b.cfg.Devices), b.rig.Devices())
 	}

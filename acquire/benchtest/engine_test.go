@@ -84,6 +84,12 @@ func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBe
 	cfg.Procedure.TopHold = 5 * time.Second
 	cfg.Procedure.Hold = 3 * time.Second
 	cfg.Simulator.Speed = 40
+	// The guard's silence limit is wall time (a few seconds by default): a
+	// machine loaded by the whole suite under -race can starve the
+	// reference's poller that long, and the trip would end the run. Whole
+	// runs here are not about that promise (safety_test.go sets its own
+	// limit and tests it), so they get a generous one.
+	cfg.Safety.Silence = 20 * time.Second
 	if edit != nil {
 		edit(cfg)
 	}
