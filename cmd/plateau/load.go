@@ -126,7 +126,7 @@ func runLoad(cmd *cobra.Command, df *daemonFlags, pieces, temperature string, ve
 		case b.PistonThermometer != "":
 			// The run reads the temperature from the thermometer; here the
 			// reference temperature is near enough (some ppm per kelvin).
-			c.PistonTempC = *b.ReferenceTemperature
+			c.PistonTempC = b.Setup().Piston.RefTempC
 			at = " (the run takes the piston temperature from " + b.PistonThermometer + ")"
 		case b.PistonTemperature == nil:
 			return errors.New("load: give the piston temperature with --temperature (the configuration enters none for the run)")
