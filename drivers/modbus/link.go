@@ -7,7 +7,9 @@
 // drivers.Bus: instruments that share a port share one client and must give
 // the same link settings; their requests take turns in the order they ask
 // (a vent first), with the configured pause between them, and a unit that
-// stops answering on a shared line is benched for its back-off.
+// stops answering on a shared line is benched for its back-off. An RTU line
+// that a late reply may have put out of step is brought back in step before
+// its next request (resync.go).
 package modbus
 
 import (

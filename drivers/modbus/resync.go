@@ -33,8 +33,9 @@ import (
 // stop a line of several for long.
 const maxGrace = 2 * time.Second
 
-// longestFrame is the longest RTU frame, in characters (Modbus over Serial
-// Line V1.02 §2.5.1: 256 bytes).
+// longestFrame is the longest RTU frame, in characters: an RTU ADU is at
+// most 256 bytes (Modbus over Serial Line V1.02; REFERENCES.md, from
+// memory [M]; the library reads no longer frame either).
 const longestFrame = 256
 
 // resync is what a link knows of its line's step. until is read without
