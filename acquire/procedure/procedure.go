@@ -189,7 +189,7 @@ func (p *Procedure) Run(ctx context.Context, from int) error {
 			var missed *Missed
 			var err error
 			if s.Kind == StepExercise {
-				err = p.exercise(ctx, s)
+				err = p.exercise(ctx, s, i)
 			} else {
 				missed, err = p.captureAll(ctx, s, i, done, &points)
 			}
@@ -364,7 +364,7 @@ func (p *Procedure) reached(ctx context.Context) bool {
 	return ok
 }
 
-func (p *Procedure) exercise(ctx context.Context, s Step) error {
+func (p *Procedure) exercise(ctx context.Context, s Step, step int) error {
 	if err := p.setPressure(ctx, s.TargetPa, "(exercise to full scale)"); err != nil {
 		return err
 	}
@@ -375,6 +375,9 @@ func (p *Procedure) exercise(ctx context.Context, s Step) error {
 		return err
 	}
 	lower := p.Settings.LowerPa
+	// The step's second half has its own target: status, the prompts and
+	// a person working the pump must see "back to zero", not full scale.
+	p.Rec.Progress(step, -1, lower, s.String()+", back to "+p.format(lower))
 	if err := p.setPressure(ctx, lower, "(end of exercise)"); err != nil {
 		return err
 	}

@@ -96,6 +96,7 @@ type memRecord struct {
 	points []analysis.Point
 	events []string
 	cursor int
+	phases []string // every progress report: "step target phase"
 }
 
 func (m *memRecord) Captured() ([]analysis.Point, error) {
@@ -115,7 +116,11 @@ func (m *memRecord) Event(level slog.Level, typ, instrument, msg string, data an
 	defer m.mu.Unlock()
 	m.events = append(m.events, typ+": "+msg)
 }
-func (m *memRecord) Progress(step, points int, target float64, phase string) {}
+func (m *memRecord) Progress(step, points int, target float64, phase string) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	m.phases = append(m.phases, fmt.Sprintf("%d %.0f %s", step, target, phase))
+}
 
 func (m *memRecord) count(typ string) int {
 	m.mu.Lock()
@@ -241,6 +246,12 @@ func TestProcedureCapturesEveryPoint(t *testing.T) {
 		}
 		if f.rec.cursor != len(f.proc.Steps) {
 			t.Errorf("cursor %d, want %d", f.rec.cursor, len(f.proc.Steps))
+		}
+		// The exercise step reports its second half's own target, so that
+		// status (and a person at a hand pump) sees "back to zero".
+		if got := strings.Join(f.rec.phases[:3], "; "); !strings.Contains(got, "0 1600000 exercise") ||
+			!strings.Contains(got, "0 0 exercise 1 to full scale, back to 0") {
+			t.Errorf("progress of the exercise step: %s", got)
 		}
 		t.Logf("a whole cycle in %s of virtual time", time.Since(start))
 	})
