@@ -45,11 +45,34 @@ type lineUnits struct {
 	served [248]atomic.Int64
 }
 
-func (l *lineUnits) serve(master *os.File) {
+func (l *lineUnits) serve(master *os.File) { serveRTU(master, l.answer) }
+
+func (l *lineUnits) answer(req []byte, arrived time.Time) []byte {
+	unit, fc, count := req[0], req[1], binary.BigEndian.Uint16(req[4:6])
+	l.asked[unit].Add(1)
+	if unit == l.off || unit < 1 || int(unit) > l.n || (fc != 3 && fc != 4) || count == 0 || count%2 != 0 || count > 124 {
+		return nil // not ours, or not a read this responder serves: stay silent
+	}
+	bits := math.Float32bits(float32(unit))
+	reply := []byte{unit, fc, byte(2 * count)}
+	for range count / 2 {
+		reply = binary.BigEndian.AppendUint32(reply, bits)
+	}
+	reply = crc16.Append(reply)
+	chars := float64(len(req)) + 3.5 + float64(len(reply))
+	time.Sleep(time.Until(arrived.Add(time.Duration(chars * float64(charTime(l.baud))))))
+	l.served[unit].Add(1) // before the reply leaves, so a client never counts more than was served
+	return reply
+}
+
+// serveRTU plays the units of one line: it reads 8-byte requests from rw
+// and writes what answer makes of each (nil: stay silent); arrived is when
+// the request's last bytes came in.
+func serveRTU(rw io.ReadWriter, answer func(req []byte, arrived time.Time) []byte) {
 	var buf []byte
 	chunk := make([]byte, 64)
 	for {
-		k, err := master.Read(chunk)
+		k, err := rw.Read(chunk)
 		if err != nil {
 			return
 		}
@@ -62,22 +85,10 @@ func (l *lineUnits) serve(master *os.File) {
 				continue
 			}
 			buf = buf[8:]
-			unit, fc, count := req[0], req[1], binary.BigEndian.Uint16(req[4:6])
-			l.asked[unit].Add(1)
-			if unit == l.off || unit < 1 || int(unit) > l.n || (fc != 3 && fc != 4) || count == 0 || count%2 != 0 || count > 124 {
-				continue // not ours, or not a read this responder serves: stay silent
-			}
-			bits := math.Float32bits(float32(unit))
-			reply := []byte{unit, fc, byte(2 * count)}
-			for range count / 2 {
-				reply = binary.BigEndian.AppendUint32(reply, bits)
-			}
-			reply = crc16.Append(reply)
-			chars := float64(len(req)) + 3.5 + float64(len(reply))
-			time.Sleep(time.Until(arrived.Add(time.Duration(chars * float64(charTime(l.baud))))))
-			l.served[unit].Add(1) // before the reply leaves, so a client never counts more than was served
-			if _, err := master.Write(reply); err != nil {
-				return
+			if reply := answer(req, arrived); reply != nil {
+				if _, err := rw.Write(reply); err != nil {
+					return
+				}
 			}
 		}
 	}

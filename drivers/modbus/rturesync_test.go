@@ -36,47 +36,26 @@ type freshLine struct {
 	order []string
 }
 
-func (f *freshLine) serve(rw io.ReadWriter) {
-	var buf []byte
-	chunk := make([]byte, 64)
-	for {
-		k, err := rw.Read(chunk)
-		if err != nil {
-			return
-		}
-		arrived := time.Now()
-		buf = append(buf, chunk[:k]...)
-		for len(buf) >= 8 {
-			req := buf[:8]
-			if crc16.Modbus(req[:6]) != binary.LittleEndian.Uint16(req[6:]) {
-				buf = buf[1:] // out of step: look for the next frame
-				continue
-			}
-			buf = buf[8:]
-			unit, fc := req[0], req[1]
-			if unit < 1 || int(unit) > f.n {
-				continue
-			}
-			var reply []byte
-			switch fc {
-			case 3:
-				k := f.reads[unit].Add(1)
-				f.log(fmt.Sprintf("read %d#%d", unit, k))
-				reply = binary.BigEndian.AppendUint32([]byte{unit, 3, 4}, uint32(unit)<<16|uint32(k))
-				if unit == f.holdUnit && slices.Contains(f.holdReads, k) {
-					time.Sleep(time.Until(arrived.Add(f.hold)))
-				}
-			case 5:
-				f.log(fmt.Sprintf("vent %d", unit))
-				reply = append([]byte(nil), req[:6]...)
-			default:
-				continue
-			}
-			if _, err := rw.Write(crc16.Append(reply)); err != nil {
-				return
-			}
-		}
+func (f *freshLine) serve(rw io.ReadWriter) { serveRTU(rw, f.answer) }
+
+func (f *freshLine) answer(req []byte, arrived time.Time) []byte {
+	unit := req[0]
+	if unit < 1 || int(unit) > f.n {
+		return nil
 	}
+	switch req[1] {
+	case 3:
+		k := f.reads[unit].Add(1)
+		f.log(fmt.Sprintf("read %d#%d", unit, k))
+		if unit == f.holdUnit && slices.Contains(f.holdReads, k) {
+			time.Sleep(time.Until(arrived.Add(f.hold)))
+		}
+		return crc16.Append(binary.BigEndian.AppendUint32([]byte{unit, 3, 4}, uint32(unit)<<16|uint32(k)))
+	case 5:
+		f.log(fmt.Sprintf("vent %d", unit))
+		return crc16.Append(append([]byte(nil), req[:6]...))
+	}
+	return nil
 }
 
 func (f *freshLine) log(s string) {
