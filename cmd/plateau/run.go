@@ -123,9 +123,17 @@ func runForeground(ctx context.Context, cfg *config.Config, label string, view r
 	defer func() { cancel(); <-served }()
 
 	// Serve resumes an unfinished run by itself; give it a moment to do so.
-	id, err := startOrResume(ctx, b.engine, label)
+	id, resumed, err := startOrResume(ctx, b.engine, label)
 	if err != nil {
 		return 0, nil, err
+	}
+	if resumed {
+		st := b.engine.Status()
+		if st.Steps > 0 {
+			fmt.Fprintf(view.progress, "resuming %s at step %d of %d\n", id, st.Step+1, st.Steps)
+		} else {
+			fmt.Fprintf(view.progress, "resuming the free run %s\n", id)
+		}
 	}
 	show, _ := displayFor(cfg.Device, "")
 	speed := 1.0
@@ -138,7 +146,7 @@ func runForeground(ctx context.Context, cfg *config.Config, label string, view r
 	}
 	watchCtx, stopWatch := context.WithCancel(ctx)
 	watched := make(chan struct{})
-	w := &runWatch{eng: b.engine, out: view.progress, show: show, est: newEstimator(cfg, speed)}
+	w := &runWatch{eng: b.engine, out: view.progress, show: show, speed: speed}
 	if view.bar {
 		w.bar = newBar(view.progress, b.engine.Status().TotalPoints)
 	}
@@ -182,22 +190,26 @@ func readByPerson(cfg *config.Config, b *bench) bool {
 	return false
 }
 
-func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (store.RunID, error) {
+// startOrResume starts a run, or follows the unfinished one Serve resumed
+// (resumed true).
+func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (id store.RunID, resumed bool, err error) {
 	deadline := time.Now().Add(2 * time.Second)
 	for time.Now().Before(deadline) {
 		if id, err := eng.Start(label); err == nil {
-			return id, nil
+			return id, false, nil
 		} else if errors.Is(err, acquire.ErrBusy) {
 			// Serve resumed an unfinished run: follow that one.
-			return store.ParseRunID(eng.Status().Run)
+			id, err := store.ParseRunID(eng.Status().Run)
+			return id, err == nil, err
 		}
 		select {
 		case <-ctx.Done():
-			return 0, ctx.Err()
+			return 0, false, ctx.Err()
 		case <-time.After(50 * time.Millisecond):
 		}
 	}
-	return eng.Start(label)
+	id, err = eng.Start(label)
+	return id, false, err
 }
 
 // runWatch follows a foreground run: the progress bar, and the dial
@@ -206,7 +218,7 @@ type runWatch struct {
 	eng    *acquire.Engine
 	out    io.Writer
 	show   display
-	est    *estimator
+	speed  float64                  // how much faster than the wall the run's clock goes
 	bar    *progressbar.ProgressBar // nil: no bar
 	prompt *dialPrompt              // nil: nobody types readings here
 	// answered is the wait last answered (dial and what it waited for):
@@ -236,7 +248,6 @@ func (w *runWatch) follow(ctx context.Context) {
 		case <-tick.C:
 		}
 		st := w.eng.Status()
-		w.est.observe(st, time.Now())
 		name, what, target, ok := waiting(st)
 		key := name + ": " + what
 		switch {
@@ -267,7 +278,7 @@ func (w *runWatch) follow(ctx context.Context) {
 		}
 		if w.bar != nil {
 			w.bar.Set(st.Points)
-			w.bar.Describe(progressLine(st, w.show, w.est, time.Now()))
+			w.bar.Describe(progressLine(st, w.show, w.speed))
 		}
 	}
 }
@@ -288,8 +299,9 @@ func newBar(out io.Writer, total int) *progressbar.ProgressBar {
 }
 
 // progressLine is the bar's description: the step, its target, what each
-// instrument still waits for, and the time the step and the run still need.
-func progressLine(st acquire.Status, show display, est *estimator, now time.Time) string {
+// instrument still waits for, and the wall time the step and the run still
+// need (the engine's estimate is clock time, faster on a simulated bench).
+func progressLine(st acquire.Status, show display, speed float64) string {
 	var b strings.Builder
 	b.WriteString(st.Phase)
 	if st.Phase != "" {
@@ -307,47 +319,9 @@ func progressLine(st acquire.Status, show display, est *estimator, now time.Time
 			fmt.Fprintf(&b, " · %s settling", in.Name)
 		}
 	}
-	if step, run, ok := est.remaining(st, now); ok {
-		fmt.Fprintf(&b, " · step ~%s, run ~%s left", roundDuration(step), roundDuration(run))
+	if st.Estimated {
+		wall := func(d time.Duration) time.Duration { return time.Duration(float64(d) / speed) }
+		fmt.Fprintf(&b, " · step ~%s, run ~%s left", roundDuration(wall(st.StepLeft)), roundDuration(wall(st.RunLeft)))
 	}
 	return b.String()
-}
-
-// estimator guesses how long the current step and the run still need:
-// from the plan until a step has finished, then from the mean time the
-// steps of this run took.
-type estimator struct {
-	planStep time.Duration // the plan's hold and settle window of a step
-	step     int           // step being timed
-	since    time.Time     // when it began
-	done     int           // steps timed
-	total    time.Duration // their time
-}
-
-func newEstimator(cfg *config.Config, speed float64) *estimator {
-	p := cfg.Procedure
-	return &estimator{planStep: time.Duration(float64(p.Hold+p.Settle.Window) / speed), step: -1}
-}
-
-func (e *estimator) observe(st acquire.Status, now time.Time) {
-	if st.Step == e.step {
-		return
-	}
-	if e.step >= 0 && st.Step == e.step+1 {
-		e.done++
-		e.total += now.Sub(e.since)
-	}
-	e.step, e.since = st.Step, now
-}
-
-func (e *estimator) remaining(st acquire.Status, now time.Time) (step, run time.Duration, ok bool) {
-	if st.Steps == 0 || e.step < 0 {
-		return 0, 0, false
-	}
-	per := e.planStep
-	if e.done > 0 {
-		per = e.total / time.Duration(e.done)
-	}
-	step = max(per-now.Sub(e.since), 0)
-	return step, step + per*time.Duration(max(st.Steps-st.Step-1, 0)), true
 }
