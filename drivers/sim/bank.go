@@ -29,8 +29,13 @@ type bank struct {
 type controller struct {
 	mu      sync.Mutex
 	spWords [2]uint16 // setpoint words as last written, applied when the low word arrives
-	writes  []Write   // every command the controller accepted, in order
+	writes  []Write   // the latest commands the controller accepted, in order (at most maxWrites)
 }
+
+// maxWrites bounds the write log: tests look at the commands of one run,
+// while a simulated bench serving a daemon for days must not grow by every
+// setpoint it was ever sent.
+const maxWrites = 4096
 
 // Write is one command the simulated controller accepted over the wire.
 type Write struct {
@@ -43,6 +48,9 @@ type Write struct {
 // logWrite records a command; the caller holds b.ctl.mu.
 func (b *bank) logWrite(w Write) {
 	w.Wall, w.Clock = time.Now(), b.clk.Now()
+	if len(b.ctl.writes) == maxWrites { // keep the newer half, in the same array
+		b.ctl.writes = b.ctl.writes[:copy(b.ctl.writes, b.ctl.writes[maxWrites/2:])]
+	}
 	b.ctl.writes = append(b.ctl.writes, w)
 }
 

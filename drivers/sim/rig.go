@@ -302,8 +302,9 @@ func (r *Rig) muted(part string) bool {
 	return r.mute[part]
 }
 
-// Writes is the log of every setpoint and vent the simulated controller
-// accepted over the wire, in order.
+// Writes is the log of the setpoints and vents the simulated controller
+// accepted over the wire, in order: every one of a run, the latest few
+// thousand of a bench that has served for days.
 func (r *Rig) Writes() []Write { return r.bank.ctl.accepted() }
 
 // SetPoint moves the simulated source directly, as its front panel would.
