@@ -15,6 +15,7 @@ import (
 	"plateau/acquire/procedure"
 	"plateau/acquire/store"
 	"plateau/analysis"
+	"plateau/analysis/report"
 	"plateau/analysis/units"
 	"plateau/config/record"
 	"plateau/drivers"
@@ -113,6 +114,18 @@ func (e *Engine) Healthy() error {
 // Start creates a run and starts its procedure. Starting is a person's
 // decision, so it clears a tripped safety guard.
 func (e *Engine) Start(label string) (store.RunID, error) {
+	return e.StartWith(label, CertificateFields{})
+}
+
+// CertificateFields are certificate fields given for one run when it
+// starts; an empty one keeps the configuration's certificate section.
+type CertificateFields struct {
+	Number, Customer, Operator string
+}
+
+// StartWith is Start with certificate fields of this run frozen into its
+// record in place of the configuration's.
+func (e *Engine) StartWith(label string, cert CertificateFields) (store.RunID, error) {
 	select {
 	case <-e.ready:
 	default:
@@ -135,7 +148,11 @@ func (e *Engine) Start(label string) (store.RunID, error) {
 	if e.cfg.Procedure.Decision == "" {
 		return 0, errors.New("start: no decision rule: set procedure.decision to simple, guarded or four-state (ILAC-G8:09/2019 asks that the rule be agreed before measuring)")
 	}
-	run, err := e.st.CreateSoleRun(label, e.yaml, e.record)
+	frozen, err := withCertificate(e.record, cert)
+	if err != nil {
+		return 0, fmt.Errorf("start: %w", err)
+	}
+	run, err := e.st.CreateSoleRun(label, e.yaml, frozen)
 	var unfinished *store.UnfinishedError
 	if errors.As(err, &unfinished) {
 		return 0, fmt.Errorf("start: %w: the store holds the unfinished run %s (%s); end it with plateau stop, or restart the daemon to resume it", ErrBusy, unfinished.Run, unfinished.State)
@@ -618,4 +635,31 @@ func describePoint(p analysis.Point) string {
 		return fmt.Sprintf("cycle %d %s", p.Cycle, p.Kind)
 	}
 	return fmt.Sprintf("cycle %d %s point %d", p.Cycle, p.Direction, p.Index+1)
+}
+
+// withCertificate is the frozen record with the run's own certificate
+// fields, on the run and on each of its devices.
+func withCertificate(frozen []byte, cert CertificateFields) ([]byte, error) {
+	if cert == (CertificateFields{}) {
+		return frozen, nil
+	}
+	r, err := record.Decode(frozen)
+	if err != nil {
+		return nil, err
+	}
+	set := func(c *report.Certificate) {
+		for _, f := range []struct {
+			to *string
+			v  string
+		}{{&c.Number, cert.Number}, {&c.Customer, cert.Customer}, {&c.Operator, cert.Operator}} {
+			if f.v != "" {
+				*f.to = f.v
+			}
+		}
+	}
+	set(&r.Info.Certificate)
+	for i := range r.Devices {
+		set(&r.Devices[i].Info.Certificate)
+	}
+	return r.Encode(), nil
 }

@@ -94,6 +94,11 @@ func (c classified) Is(target error) bool { return target == c.kind }
 type StartRequest struct {
 	// Label names the run in lists and reports, e.g. "as-found PG-0421".
 	Label string `json:"label,omitempty"`
+	// Certificate, Customer and Operator are this run's certificate
+	// number, customer and operator, in place of the configuration's.
+	Certificate string `json:"certificate,omitempty"`
+	Customer    string `json:"customer,omitempty"`
+	Operator    string `json:"operator,omitempty"`
 }
 
 // StopRequest is the optional body of a stop call.

@@ -26,6 +26,7 @@ func init() { register(newRunCmd) }
 func newRunCmd() *cobra.Command {
 	var label, output string
 	var quiet bool
+	var cert acquire.CertificateFields
 	cmd := &cobra.Command{
 		Use:   "run",
 		Short: "Run the configured procedure in the foreground, with a progress bar",
@@ -69,7 +70,7 @@ extension (.html, .txt, .csv, .json): one file with every device.`,
 			if hasSource(cfg) {
 				fmt.Fprintln(cmd.ErrOrStderr(), safetyNotice)
 			}
-			view := runView{progress: cmd.ErrOrStderr(), bar: !quiet, input: cmd.InOrStdin()}
+			view := runView{progress: cmd.ErrOrStderr(), bar: !quiet, input: cmd.InOrStdin(), cert: cert}
 			id, res, err := runForeground(ctx, cfg, label, view)
 			if err != nil {
 				return err
@@ -89,6 +90,7 @@ extension (.html, .txt, .csv, .json): one file with every device.`,
 	}
 	cmd.Flags().StringVar(&label, "label", "", "a label for the run, e.g. the work order")
 	cmd.Flags().BoolVarP(&quiet, "quiet", "q", false, "no progress bar")
+	addCertificateFlags(cmd, &cert)
 	cmd.Flags().StringVarP(&output, "output", "o", "", "write the report to this file at the end (.html, .txt, .csv or .json)")
 	return cmd
 }
@@ -97,7 +99,8 @@ extension (.html, .txt, .csv, .json): one file with every device.`,
 type runView struct {
 	progress io.Writer // the progress bar and the dial prompts
 	bar      bool
-	input    io.Reader // dial readings typed by the operator; nil: none
+	input    io.Reader                 // dial readings typed by the operator; nil: none
+	cert     acquire.CertificateFields // a new run's own certificate fields
 }
 
 // runOnce runs (or resumes) one calibration to its end and evaluates it,
@@ -123,7 +126,7 @@ func runForeground(ctx context.Context, cfg *config.Config, label string, view r
 	defer func() { cancel(); <-served }()
 
 	// Serve resumes an unfinished run by itself; give it a moment to do so.
-	id, resumed, err := startOrResume(ctx, b.engine, label)
+	id, resumed, err := startOrResume(ctx, b.engine, label, view.cert)
 	if err != nil {
 		return 0, nil, err
 	}
@@ -192,10 +195,10 @@ func readByPerson(cfg *config.Config, b *bench) bool {
 
 // startOrResume starts a run, or follows the unfinished one Serve resumed
 // (resumed true).
-func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (id store.RunID, resumed bool, err error) {
+func startOrResume(ctx context.Context, eng *acquire.Engine, label string, cert acquire.CertificateFields) (id store.RunID, resumed bool, err error) {
 	deadline := time.Now().Add(2 * time.Second)
 	for time.Now().Before(deadline) {
-		if id, err := eng.Start(label); err == nil {
+		if id, err := eng.StartWith(label, cert); err == nil {
 			return id, false, nil
 		} else if errors.Is(err, acquire.ErrBusy) {
 			// Serve resumed an unfinished run: follow that one.
@@ -208,7 +211,7 @@ func startOrResume(ctx context.Context, eng *acquire.Engine, label string) (id s
 		case <-time.After(50 * time.Millisecond):
 		}
 	}
-	id, err = eng.Start(label)
+	id, err = eng.StartWith(label, cert)
 	return id, false, err
 }
 

@@ -430,7 +430,7 @@ func (c *engineControl) speed() float64 {
 }
 
 func (c *engineControl) Start(_ context.Context, req api.StartRequest) (store.RunID, error) {
-	id, err := c.eng.Start(req.Label)
+	id, err := c.eng.StartWith(req.Label, acquire.CertificateFields{Number: req.Certificate, Customer: req.Customer, Operator: req.Operator})
 	if err != nil {
 		// Start refuses for reasons of state (a run is active, the
 		// reference's calibration has expired); its messages say which.
