@@ -57,7 +57,7 @@ func TestTechniciansDayAsProcesses(t *testing.T) {
 	has("runs", plateau("runs"), `r000001\s+finished`)
 	has("runs last", plateau("runs", "last"), `CYCLE`)
 	has("report last", plateau("report", "last"), `VERDICT: `)
-	has("verify", plateau("verify"), `OK — 1 runs`)
+	has("verify", plateau("verify"), `OK — 1 run,`)
 
 	d := startDaemon(t, ctx, bin, cfgPath, filepath.Join(dir, "serve.log"))
 	c := api.NewUnixClient(filepath.Join(dir, "day.sock"), "")

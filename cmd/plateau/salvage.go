@@ -32,8 +32,8 @@ stored as failed, with whatever points and samples of it were saved.`,
 				return err
 			}
 			out := cmd.OutOrStdout()
-			fmt.Fprintf(out, "wrote %s: %d runs (%d rebuilt), %d points, %d events, %d sample blocks\n",
-				args[0], rep.Runs, rep.RunsRebuilt, rep.Points, rep.Events, rep.Blocks)
+			fmt.Fprintf(out, "wrote %s: %s (%d rebuilt), %s, %s, %s\n", args[0], counted(rep.Runs, "run"), rep.RunsRebuilt,
+				counted(rep.Points, "point"), counted(rep.Events, "event"), counted(rep.Blocks, "sample block"))
 			if len(rep.Lost) == 0 {
 				fmt.Fprintln(out, "nothing was left behind")
 				return nil

@@ -93,7 +93,7 @@ func verifyFile(p string) (string, error) {
 			open++
 		}
 	}
-	return fmt.Sprintf("%d runs, %d points, %d unfinished", len(runs), points, open), nil
+	return fmt.Sprintf("%s, %s, %d unfinished", counted(len(runs), "run"), counted(points, "point"), open), nil
 }
 
 // verifyThroughDaemon checks a consistent copy of the store the running
@@ -209,4 +209,12 @@ func backupFromDaemon(cmd *cobra.Command, c *api.Client, out string) error {
 	abs, _ := filepath.Abs(out)
 	fmt.Fprintf(cmd.OutOrStdout(), "wrote %s (%d bytes, a consistent copy from the running daemon)\n", abs, n)
 	return nil
+}
+
+// counted is n with its noun, plural unless n is one: "1 run", "2 runs".
+func counted[N int | int64 | uint64](n N, noun string) string {
+	if n == 1 {
+		return fmt.Sprintf("1 %s", noun)
+	}
+	return fmt.Sprintf("%d %ss", n, noun)
 }

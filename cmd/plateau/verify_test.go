@@ -88,7 +88,7 @@ func TestVerifyOnlyReads(t *testing.T) {
 		ok   string // in the output when it passes
 		bad  string // in the error when it fails
 	}{
-		{"a good store", func(dir string) string { return put(t, dir, orig) }, "OK — 1 runs, 1 points, 1 unfinished", ""},
+		{"a good store", func(dir string) string { return put(t, dir, orig) }, "OK — 1 run, 1 point, 1 unfinished", ""},
 		{"a missing file", func(dir string) string { return filepath.Join(dir, "none.db") }, "", "no such file"},
 		{"a folder", func(dir string) string { return dir }, "", "not a regular file"},
 		{"an empty file", func(dir string) string { return put(t, dir, nil) }, "", "empty"},
@@ -150,7 +150,7 @@ func TestVerifyReadOnlyCopy(t *testing.T) {
 	}
 	before := snapshot(t, dir)
 	out, err := exec.Command(plateauBinary(t), "verify", "--store", path).CombinedOutput()
-	if err != nil || !strings.Contains(string(out), "OK — 1 runs, 1 points") {
+	if err != nil || !strings.Contains(string(out), "OK — 1 run, 1 point") {
 		t.Fatalf("verify a read-only copy: %v\n%s", err, out)
 	}
 	if !snapshot(t, dir).equal(before) {
@@ -166,7 +166,7 @@ func TestVerifyAndBackup(t *testing.T) {
 	if out, err := runPlateau(t, "backup", "--store", path, copyPath); err != nil {
 		t.Fatalf("backup: %v\n%s", err, out)
 	}
-	if out, err := runPlateau(t, "verify", "--store", copyPath); err != nil || !strings.Contains(out, "1 points") {
+	if out, err := runPlateau(t, "verify", "--store", copyPath); err != nil || !strings.Contains(out, "1 point,") {
 		t.Fatalf("verify the copy: %v\n%s", err, out)
 	}
 	if _, err := runPlateau(t, "backup", "--store", path, copyPath); err == nil || !strings.Contains(err.Error(), "exists") {
@@ -194,10 +194,10 @@ func TestSalvageCommand(t *testing.T) {
 	}
 	saved := filepath.Join(dir, "saved.db")
 	out, err := runPlateau(t, "salvage", "--store", path, saved)
-	if err != nil || !strings.Contains(out, "1 runs (0 rebuilt), 0 points") || !strings.Contains(out, "checksum") {
+	if err != nil || !strings.Contains(out, "1 run (0 rebuilt), 0 points") || !strings.Contains(out, "checksum") {
 		t.Fatalf("salvage: %v\n%s", err, out)
 	}
-	if out, err := runPlateau(t, "verify", "--store", saved); err != nil || !strings.Contains(out, "OK — 1 runs, 0 points, 1 unfinished") {
+	if out, err := runPlateau(t, "verify", "--store", saved); err != nil || !strings.Contains(out, "OK — 1 run, 0 points, 1 unfinished") {
 		t.Fatalf("verify the salvaged store: %v\n%s", err, out)
 	}
 	if _, err := runPlateau(t, "salvage", "--store", path, saved); err == nil {
@@ -273,4 +273,22 @@ func mustRead(t *testing.T, path string) []byte {
 		t.Fatal(err)
 	}
 	return b
+}
+
+func TestCountedNouns(t *testing.T) {
+	for _, tc := range []struct {
+		n    int
+		noun string
+		want string
+	}{
+		{0, "run", "0 runs"},
+		{1, "run", "1 run"},
+		{2, "point", "2 points"},
+		{1, "sample block", "1 sample block"},
+		{12, "sample block", "12 sample blocks"},
+	} {
+		if got := counted(tc.n, tc.noun); got != tc.want {
+			t.Errorf("counted(%d, %q) = %q, want %q", tc.n, tc.noun, got, tc.want)
+		}
+	}
 }
