@@ -110,7 +110,7 @@ func newStatusCmd() *cobra.Command {
 		if err != nil {
 			return err
 		}
-		printStatus(cmd.OutOrStdout(), st, show, time.Now())
+		printStatusLoading(cmd.OutOrStdout(), st, show, time.Now(), balanceHint(st.Current, show.unit))
 		return nil
 	}
 	cmd.Flags().StringVar(&unit, "unit", "", "show pressures in this unit (default: the device's)")
@@ -135,7 +135,34 @@ func printJSON(w io.Writer, v any) error {
 	return enc.Encode(v)
 }
 
+// balanceHint is what to load on the local configuration's pressure
+// balance for the current step ("load P1+M1+M2 (≈ 8.000 bar)"), or "" with
+// no balance, no plan of loadings or no step.
+func balanceHint(cur *api.StepNow, u units.Unit) string {
+	if cur == nil || cur.Phase == "" {
+		return ""
+	}
+	cfg, err := config.Load(configPath)
+	if err != nil {
+		return ""
+	}
+	b := cfg.ReferenceBalance()
+	if b == nil {
+		return ""
+	}
+	if s := plannedStep(cfg, b, cur, u); s.planned != "" {
+		return s.hint()
+	}
+	return ""
+}
+
 func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
+	printStatusLoading(w, st, show, now, "")
+}
+
+// printStatusLoading is printStatus with the balance's loading for the
+// step (balanceHint) on the progress line.
+func printStatusLoading(w io.Writer, st api.Status, show display, now time.Time, load string) {
 	fmt.Fprintf(w, "daemon    plateau %s, up %s\n", st.Version, now.Sub(st.Since).Round(time.Second))
 	if st.Run == nil {
 		fmt.Fprintln(w, "run       none (idle)")
@@ -164,7 +191,7 @@ func printStatus(w io.Writer, st api.Status, show display, now time.Time) {
 		}
 		fmt.Fprintf(w, "run       %s%s %s%s%s\n", r.ID, label, state, sinceText(st.StateSince, now), prefixed(": ", st.Reason))
 		// Step already reads "step 3 of 29, …": no label of its own.
-		fmt.Fprintf(w, "progress  %.0f %%%s\n", 100*st.Progress, prefixed(" — ", st.Step))
+		fmt.Fprintf(w, "progress  %.0f %%%s%s\n", 100*st.Progress, prefixed(" — ", st.Step), prefixed(" · ", load))
 		if cur := st.Current; cur != nil && cur.Phase != "" {
 			fmt.Fprintf(w, "target    %s%s\n", show.withUnit(cur.TargetPa), settleText(st.Settle, show))
 		}
