@@ -114,6 +114,9 @@ type dialPrompt struct {
 	out   io.Writer
 	show  display
 	poll  time.Duration
+	// loading is what to load on a pressure balance for a target
+	// ("load P1+M1+M2 (≈ 8.000 bar)"); nil or "": set the target.
+	loading func(targetPa float64) string
 }
 
 // readLines delivers the lines of r until it ends; the channel is then
@@ -159,7 +162,13 @@ var errInputClosed = errors.New("standard input ended: no more dial readings can
 // names the dial, so that with several on the manifold the operator reads
 // the right one.
 func (p *dialPrompt) ask(ctx context.Context, name, what string, targetPa float64) error {
-	fmt.Fprintf(p.out, "\n%s, %s: set %s, read the dial: ", name, what, p.show.withUnit(targetPa))
+	do := "set " + p.show.withUnit(targetPa)
+	if p.loading != nil {
+		if l := p.loading(targetPa); l != "" {
+			do = l
+		}
+	}
+	fmt.Fprintf(p.out, "\n%s, %s: %s, read the dial: ", name, what, do)
 	var pending *dialEntry
 	confirming := false // the next line answers "take it anyway?"
 	tick := time.NewTicker(p.poll)

@@ -17,6 +17,7 @@ import (
 	"golang.org/x/term"
 
 	"plateau/acquire"
+	"plateau/acquire/api"
 	"plateau/acquire/store"
 	"plateau/config"
 )
@@ -155,6 +156,14 @@ func runForeground(ctx context.Context, cfg *config.Config, label string, view r
 	}
 	if view.input != nil && readByPerson(cfg, b) {
 		w.prompt = &dialPrompt{bench: b.engine, lines: readLines(view.input), out: view.progress, show: show, poll: 200 * time.Millisecond}
+		if bal := cfg.ReferenceBalance(); bal != nil {
+			w.prompt.loading = func(targetPa float64) string {
+				if s := plannedStep(cfg, bal, &api.StepNow{TargetPa: targetPa}, show.unit); s.planned != "" {
+					return s.hint()
+				}
+				return ""
+			}
+		}
 	}
 	go func() { w.follow(watchCtx); close(watched) }()
 	state, reason := b.engine.Wait(ctx)
