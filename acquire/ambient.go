@@ -10,6 +10,7 @@ import (
 	"sync"
 	"time"
 
+	"plateau/acquire/poll"
 	"plateau/acquire/store"
 	"plateau/analysis"
 	"plateau/analysis/units"
@@ -448,4 +449,34 @@ func (e *Engine) enterAmbient(en Entry) (handled bool, err error) {
 	e.emit(run, slog.LevelInfo, "entry", inst.Name, fmt.Sprintf("%s: %s entered as %s", inst.Name, a.Kind, analysis.AmbientText(a.Kind, base)),
 		map[string]any{"value": en.Value, "unit": u.Symbol, "base": base})
 	return true, nil
+}
+
+// enteredStates is the status of each ambient instrument an operator reads
+// (link kind manual): no poller reports them, so status would not list
+// them. Reads counts the entries kept; Last is the newest, in the
+// instrument's own unit as Raw.
+func (e *Engine) enteredStates() []poll.State {
+	var out []poll.State
+	for _, in := range e.cfg.Instruments {
+		if in.Role != config.RoleAmbient || in.Link.Kind != config.LinkManual {
+			continue
+		}
+		tr := e.ambient.byKey[in.Name]
+		if tr == nil {
+			continue
+		}
+		s := poll.State{Name: in.Name, Why: "no entry yet (plateau enter)"}
+		if v, at, ok := tr.latest(); ok {
+			tr.mu.Lock()
+			s.Reads = uint64(tr.n)
+			tr.mu.Unlock()
+			s.Why = ""
+			s.Last = drivers.Reading{Time: at, Pa: v}
+			if a, ok := config.AmbientOf(in); ok {
+				s.Last.Raw, s.Last.RawUnit = a.Unit.FromBase(v), a.Unit.Symbol
+			}
+		}
+		out = append(out, s)
+	}
+	return out
 }

@@ -99,6 +99,10 @@ func (e *Engine) Status() Status {
 		s.Instruments = append(s.Instruments, p.State())
 		s.Polled[p.Name] = !e.readByPerson(p)
 	}
+	for _, in := range e.enteredStates() {
+		s.Instruments = append(s.Instruments, in)
+		s.Polled[in.Name] = false
+	}
 	return s
 }
 

@@ -294,9 +294,12 @@ func (c *engineControl) status(withPlan bool) api.Status {
 		}
 	}
 	c.describePlan(&out, es, withPlan)
-	roles, ids := map[string]string{}, map[string]string{}
+	roles, ids, quantities := map[string]string{}, map[string]string{}, map[string]string{}
 	for _, in := range c.cfg.Instruments {
 		roles[in.Name] = in.Role
+		if a, ok := config.AmbientOf(in); ok {
+			quantities[in.Name] = string(a.Kind)
+		}
 		if in.Role == config.RoleSource {
 			out.Source = true
 		}
@@ -313,6 +316,7 @@ func (c *engineControl) status(withPlan bool) api.Status {
 			Reads: p.Reads, Errors: p.Failures, LastPa: p.Last.Pa, LastAt: p.Last.Time,
 			Settled: p.Settled, LastError: p.LastErr, ReadsPerSecond: p.ReadsPerSecond, AskedPerSecond: p.Asked,
 			Device: ids[p.Name], Raw: p.Last.Raw, RawUnit: p.Last.RawUnit, Why: p.Why, Waiting: p.Waiting,
+			Quantity: quantities[p.Name],
 		})
 	}
 	return out

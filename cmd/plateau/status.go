@@ -227,6 +227,9 @@ func printStatusLoading(w io.Writer, st api.Status, show display, now time.Time,
 			state = "DOWN"
 		}
 		last := "—"
+		if in.LastAt.IsZero() && in.Role == api.RoleAmbient && in.Why != "" {
+			last = in.Why // read by a person, nothing entered yet
+		}
 		if !in.LastAt.IsZero() {
 			when := fmt.Sprintf("%s ago", now.Sub(in.LastAt).Round(time.Second))
 			if in.LastAt.After(now) { // a simulated bench runs its clock ahead

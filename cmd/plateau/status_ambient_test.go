@@ -88,6 +88,8 @@ func TestAmbientInstrumentsAtTheBench(t *testing.T) {
 	for name, row := range map[string]*regexp.Regexp{
 		"baro":     regexp.MustCompile(`(?m)^baro +ambient \(barometric\) +up +\d{3,4}\.\d\d hPa `),
 		"humidity": regexp.MustCompile(`(?m)^humidity +ambient \(humidity\) +up +\d\d\.\d %RH `),
+		// Read by a person: listed before the first entry.
+		"room": regexp.MustCompile(`(?m)^room +ambient \(temperature\) +up +no entry yet \(plateau enter\) `),
 	} {
 		if !row.MatchString(status) {
 			t.Errorf("status shows %s not in its own unit:\n%s", name, status)
@@ -113,6 +115,10 @@ func TestAmbientInstrumentsAtTheBench(t *testing.T) {
 		if code != c.code || !strings.Contains(out, c.want) {
 			t.Errorf("plateau %s: exit %d, %q; want exit %d and %q", strings.Join(c.args, " "), code, out, c.code, c.want)
 		}
+	}
+	// The last entry shows in status like any reading.
+	if status, _ := plateau("status"); !regexp.MustCompile(`(?m)^room +ambient \(temperature\) +up +23\.60? °C \(`).MatchString(status) {
+		t.Errorf("status does not show the room's last entry:\n%s", status)
 	}
 
 	url := fmt.Sprintf("http://127.0.0.1:%d/", port)
