@@ -440,7 +440,11 @@ func (s *Server) handleStart(w http.ResponseWriter, r *http.Request) {
 	if !s.decode(w, r, &req, false) {
 		return
 	}
-	for _, f := range []struct{ name, v string }{{"label", req.Label}, {"certificate", req.Certificate}, {"customer", req.Customer}, {"operator", req.Operator}} {
+	if err := req.validate(); err != nil {
+		s.fail(w, err)
+		return
+	}
+	for _, f := range []struct{ name, v string }{{"certificate", req.Certificate}, {"customer", req.Customer}, {"operator", req.Operator}} {
 		if err := checkText(f.name, f.v); err != nil {
 			s.fail(w, err)
 			return
