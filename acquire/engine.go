@@ -95,6 +95,7 @@ type Options struct {
 // Engine owns the pollers, the safety guard, the sample recorder and at
 // most one active run.
 type Engine struct {
+	emitMu   sync.Mutex // orders events: time stamp and store id together (emit)
 	cfg      *config.Config
 	yaml     []byte
 	record   []byte
@@ -351,13 +352,18 @@ func (e *Engine) tick() time.Duration {
 // store cannot take is still published, without an id (it is not in the
 // record), so that people watching learn why the run stopped.
 func (e *Engine) emit(run store.RunID, level slog.Level, typ, instrument, msg string, data any) {
-	ev := store.Event{Time: e.clk.Now(), Run: run, Level: level, Instrument: instrument, Type: typ, Message: msg}
+	ev := store.Event{Run: run, Level: level, Instrument: instrument, Type: typ, Message: msg}
 	if data != nil {
 		if b, err := json.Marshal(data); err == nil {
 			ev.Data = b
 		}
 	}
 	e.log.Log(context.Background(), level, msg, "type", typ, "instrument", instrument, "run", run.String())
+	// Stamped and stored under one lock, so that the log's order (its ids)
+	// is the order of its times even when several goroutines report at once.
+	e.emitMu.Lock()
+	defer e.emitMu.Unlock()
+	ev.Time = e.clk.Now()
 	if e.storeFault.Load() == nil {
 		id, err := e.st.AddEvent(ev)
 		if err == nil {

@@ -20,21 +20,7 @@ import (
 // and a real store on one scaled clock, the procedure shortened.
 func devicesBench(t *testing.T, edit func(*config.Config)) *testBench {
 	t.Helper()
-	b := bench(t, func(c *config.Config) {
-		// Link time-outs are wall time while the bench's clock runs 40×
-		// faster: the example's 500 ms would be 20 s of bench time, twice
-		// a settle window, each time the cut unit is asked. A line of
-		// simulated units answering within milliseconds is served as
-		// quickly by a time-out of 150 ms.
-		for i := range c.Instruments {
-			if c.Instruments[i].SimVia == config.LinkModbusRTU {
-				c.Instruments[i].Link.Timeout = 150 * time.Millisecond
-			}
-		}
-		if edit != nil {
-			edit(c)
-		}
-	}, withFile("../../testdata/config/sim-devices.yaml"))
+	b := bench(t, edit, withFile("../../testdata/config/sim-devices.yaml"))
 	if len(b.cfg.Devices) != 4 || b.rig.Devices() != 4 {
 		t.Fatalf("%d devices configured, %d simulated; want 4", len(b.cfg.Devices), b.rig.Devices())
 	}

@@ -223,7 +223,10 @@ func TestFaultRuns(t *testing.T) {
 					}
 				}
 			}},
-		{name: "link_down", dutVia: config.LinkModbusRTU, faults: config.SimFaults{LinkDown: 5 * time.Second, LinkEvery: 15 * time.Second},
+		// An outage of 5 s every 45 s of bench time: at 40× that leaves the
+		// device on its RTU line (whose time-outs and resync grace are wall
+		// time) room to fill a settle window between outages.
+		{name: "link_down", dutVia: config.LinkModbusRTU, faults: config.SimFaults{LinkDown: 5 * time.Second, LinkEvery: 45 * time.Second},
 			saw: func(t *testing.T, b *testBench, id store.RunID) {
 				kindSeen(config.RoleReference, drivers.KindLinkDown)(t, b, id)
 				kindSeen(config.RoleDevice, drivers.KindTimeout)(t, b, id)

@@ -90,6 +90,16 @@ func bench(t *testing.T, edit func(*config.Config), opts ...benchOption) *testBe
 	// runs here are not about that promise (safety_test.go sets its own
 	// limit and tests it), so they get a generous one.
 	cfg.Safety.Silence = 20 * time.Second
+	// Link time-outs are wall time too while the clock runs 40× faster: a
+	// 500 ms time-out (and the resync grace after it) would be 20 s of
+	// bench time, twice a settle window, each time a unit is silent. The
+	// simulated units answer within milliseconds; 150 ms serves them as
+	// well and keeps a silent one from eating the window of the others.
+	for i := range cfg.Instruments {
+		if cfg.Instruments[i].SimVia == config.LinkModbusRTU {
+			cfg.Instruments[i].Link.Timeout = 150 * time.Millisecond
+		}
+	}
 	if edit != nil {
 		edit(cfg)
 	}

@@ -148,6 +148,7 @@ func TestCheckDescribesGolden(t *testing.T) {
   safety limit       16.50 bar
   duration           at least 7m55s (holds and settle windows), at most 2h23m (every point to its time-out); reaching each pressure comes on top
                      the simulated bench runs 20× faster: at least 24s of wall time
+  RTU line           the simulator's RTU line at 19200 Bd: 1 instrument(s), 10.0 reads/s asked, about 72.7 carried
   store              plateau-sim.db
 `},
 		{"ambient.yaml", `  device under test  DEMO-16G, gauge, 0.00 bar … 16.00 bar, resolution 0.01 bar
@@ -164,6 +165,7 @@ func TestCheckDescribesGolden(t *testing.T) {
   safety limit       16.50 bar
   duration           at least 7m55s (holds and settle windows), at most 2h23m (every point to its time-out); reaching each pressure comes on top
                      the simulated bench runs 20× faster: at least 24s of wall time
+  RTU line           the simulator's RTU line at 19200 Bd: 1 instrument(s), 10.0 reads/s asked, about 72.7 carried
   store              plateau-ambient.db
 `},
 	} {
