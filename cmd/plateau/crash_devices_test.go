@@ -82,25 +82,14 @@ func TestKillAndResumeFourDevices(t *testing.T) {
 	rng := rand.New(rand.NewPCG(14, 4))
 	kept := &keptPoints{path: cfg.Store.Path}
 	check := func(stage string) int { t.Helper(); return kept.check(t, stage) }
-	kills, n := 0, 0
-	for kills < 12 {
-		cmd := exec.Command(bin, "run", "-q", "-c", cfgPath, "--label", "four devices, killed")
-		cmd.Dir = dir
-		if err := cmd.Start(); err != nil {
-			t.Fatal(err)
-		}
-		time.Sleep(time.Duration(300+rng.IntN(1200)) * time.Millisecond)
-		if err := cmd.Process.Kill(); err != nil {
-			t.Fatal(err)
-		}
-		cmd.Wait()
-		kills++
-		n = check(fmt.Sprintf("after kill %d", kills))
-		verify(fmt.Sprintf("after kill %d", kills))
-		if n == total {
-			break
-		}
-	}
+	n := 0
+	kills := killRuns(t, bin, dir, cfgPath, "four devices, killed", 12, func() time.Duration {
+		return time.Duration(300+rng.IntN(1200)) * time.Millisecond
+	}, func(kill int) bool {
+		n = check(fmt.Sprintf("after kill %d", kill))
+		verify(fmt.Sprintf("after kill %d", kill))
+		return n == total
+	})
 	if kills < 10 {
 		t.Errorf("the run completed after %d kills: fewer than ten kills hit it", kills)
 	}

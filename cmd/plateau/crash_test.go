@@ -34,23 +34,9 @@ func TestKillAndResume(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 2))
 	kept := &keptPoints{path: cfg.Store.Path}
 	check := func(stage string) int { return kept.check(t, stage) }
-	kills := 0
-	for kills < 20 {
-		cmd := exec.Command(bin, "run", "-q", "-c", cfgPath, "--label", "crash test")
-		cmd.Dir = dir
-		if err := cmd.Start(); err != nil {
-			t.Fatal(err)
-		}
-		time.Sleep(time.Duration(200+rng.IntN(900)) * time.Millisecond)
-		if err := cmd.Process.Kill(); err != nil {
-			t.Fatal(err)
-		}
-		cmd.Wait()
-		kills++
-		if n := check("after kill"); n == total {
-			break
-		}
-	}
+	kills := killRuns(t, bin, dir, cfgPath, "crash test", 20, func() time.Duration {
+		return time.Duration(200+rng.IntN(900)) * time.Millisecond
+	}, func(int) bool { return check("after kill") == total })
 	st, err := store.Open(cfg.Store.Path, store.Options{})
 	if err != nil {
 		t.Fatal(err)
@@ -145,4 +131,30 @@ func TestResumeRefusesChangedPlan(t *testing.T) {
 	if err := st.Check(); err != nil {
 		t.Error(err)
 	}
+}
+
+// killRuns starts 'plateau run' with cfgPath in dir and kills it with
+// SIGKILL after wait(), up to most times, calling after(kill) once each
+// process has gone; it stops early when after says the run is complete.
+// It returns the number of kills.
+func killRuns(t *testing.T, bin, dir, cfgPath, label string, most int, wait func() time.Duration, after func(kill int) bool) int {
+	t.Helper()
+	kills := 0
+	for kills < most {
+		cmd := exec.Command(bin, "run", "-q", "-c", cfgPath, "--label", label)
+		cmd.Dir = dir
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		time.Sleep(wait())
+		if err := cmd.Process.Kill(); err != nil {
+			t.Fatal(err)
+		}
+		cmd.Wait()
+		kills++
+		if after(kills) {
+			break
+		}
+	}
+	return kills
 }
