@@ -60,7 +60,8 @@ type Options struct {
 	// poller's), while the vent is under way; it may take its time.
 	OnTrip func(Trip)
 	// OnVent is told how the vent after a trip went: nil once the source
-	// confirmed it, or the first error (the guard keeps sending it).
+	// confirmed it, or the first error (the guard keeps sending it). It runs
+	// on a goroutine of its own, like OnTrip: reporting never holds a vent.
 	OnVent func(error)
 	// LoopHigh is the loop current above which an out-of-range reference
 	// means over-pressure (mA); 0 turns that check off.
@@ -225,13 +226,13 @@ func (g *Guard) handleTrip(ctx context.Context) {
 		if err == nil {
 			g.driven.Store(false)
 			if g.opt.OnVent != nil {
-				g.opt.OnVent(nil)
+				go g.opt.OnVent(nil) // reporting never holds the guard
 			}
 			return
 		}
 		g.opt.Log.Error("vent after a safety trip failed: sending it again; vent by hand if this goes on", "attempt", attempt, "err", err)
 		if attempt == 1 && g.opt.OnVent != nil {
-			g.opt.OnVent(err)
+			go g.opt.OnVent(err) // never hold the next attempt on the event log
 		}
 		select {
 		case <-ctx.Done():
