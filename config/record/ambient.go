@@ -24,9 +24,17 @@ func ambientRecords(cfg *config.Config) []AmbientRecord {
 
 // withModes adds the modes, the reference conditions and, when the
 // reference reads another mode than the device, the barometer that
-// converts it.
+// converts it. In absolute mode the head correction has no air column:
+// the air's own head cancels only between two gauge pressures, and a gas
+// medium's density follows the reading as it stands.
 func withModes(cfg *config.Config, d config.Device, dev *analysis.Device, ref *analysis.Reference) {
 	dev.Mode = d.Mode
+	if d.Mode == config.ModeAbsolute {
+		ref.Head.AirDensity = 0
+		if ref.Head.Gas != nil {
+			ref.Head.Gas.Absolute = true
+		}
+	}
 	c := d.Conditions
 	if c.TemperatureC != nil || c.HumidityPct != nil || c.BarometricPa != nil {
 		dev.Conditions = &analysis.Conditions{TemperatureC: c.TemperatureC, HumidityPct: c.HumidityPct, BarometricPa: c.BarometricPa}
