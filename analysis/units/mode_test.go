@@ -28,10 +28,16 @@ func TestModeSpellings(t *testing.T) {
 		if u != c.unit || m != c.mode {
 			t.Errorf("%q: %s %q, want %s %q", c.name, u.Symbol, m, c.unit.Symbol, c.mode)
 		}
+		if f, ok := Find(c.name); !ok || f != u {
+			t.Errorf("Find(%q) = %s %v, Lookup gave %s", c.name, f.Symbol, ok, u.Symbol)
+		}
 	}
-	for _, bad := range []string{"g", "a", "(a)", "barx", "mPa(a)"} {
+	for _, bad := range []string{"g", "a", "(a)", "barx", "mPa(a)", "mPa", "Mbar"} {
 		if _, err := Lookup(bad); err == nil {
 			t.Errorf("%q was taken for a unit", bad)
+		}
+		if _, ok := Find(bad); ok {
+			t.Errorf("Find took %q for a unit", bad)
 		}
 	}
 	if q, err := ParseQuantity("16 bar(g)"); err != nil || q.Unit != Bar {

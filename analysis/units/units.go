@@ -99,15 +99,32 @@ func normalise(s string) string {
 // which plateau does not accept) is never taken for MPa, nor "Mbar" for mbar.
 // All capitals ("MBAR", "KPA") are read as the one unit they can mean.
 func Lookup(name string) (Unit, error) {
-	if u, _, ok := splitMode(name); ok {
-		t := strings.TrimSpace(name)
-		if t != "" && (t[0] == 'm' || t[0] == 'M') && t[0] != u.Symbol[0] && t != strings.ToUpper(t) {
-			return Unit{}, fmt.Errorf("pressure unit %q: m is milli and M is mega; plateau knows %q (%s) but not %q",
-				name, u.Symbol, u.Name, t)
-		}
-		return u, nil
+	u, _, ok := splitMode(name)
+	switch {
+	case !ok:
+		return Unit{}, fmt.Errorf("unknown pressure unit %q (known: %s)", name, strings.Join(Symbols(), ", "))
+	case prefixClash(name, u):
+		return Unit{}, fmt.Errorf("pressure unit %q: m is milli and M is mega; plateau knows %q (%s) but not %q",
+			name, u.Symbol, u.Name, strings.TrimSpace(name))
 	}
-	return Unit{}, fmt.Errorf("unknown pressure unit %q (known: %s)", name, strings.Join(Symbols(), ", "))
+	return u, nil
+}
+
+// Find is Lookup without the error, for a driver that checks every reply's
+// unit and must not build a message for each one that is no unit at all.
+func Find(name string) (Unit, bool) {
+	u, _, ok := splitMode(name)
+	if !ok || prefixClash(name, u) {
+		return Unit{}, false
+	}
+	return u, true
+}
+
+// prefixClash: name matched u only by ignoring the case of a leading m or M
+// ("mPa" matched MPa).
+func prefixClash(name string, u Unit) bool {
+	t := strings.TrimSpace(name)
+	return t != "" && (t[0] == 'm' || t[0] == 'M') && t[0] != u.Symbol[0] && t != strings.ToUpper(t)
 }
 
 // Symbols lists the canonical symbols, sorted, for messages and help.

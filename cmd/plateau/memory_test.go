@@ -24,6 +24,7 @@ type memorySample struct {
 	rss, anon, file, storeMap int     // KiB: VmRSS, its anonymous and file-backed parts, and the store file's mapping within RssFile
 	heapInuse, heapGoal       float64 // MiB: heap spans in use at the sample, and the collector's goal (about twice the live heap)
 	retained                  float64 // MiB: heap memory the runtime holds from the system (sys − released)
+	stacks, runtime           float64 // MiB: goroutine stacks, and the runtime's own structures (spans, GC metadata, other)
 	goroutines                int
 	storeKiB                  int64 // size of the store file
 	points                    uint64
@@ -234,7 +235,8 @@ func TestMemoryStaysFlat(t *testing.T) {
 	c := api.NewUnixClient(socket, "")
 	ctx, cancel := context.WithTimeout(context.Background(), time.Duration(hours)*time.Hour/speed+2*time.Minute)
 	defer cancel()
-	d := startDaemon(t, ctx, bin, cfgPath, filepath.Join(dir, "daemon.log"))
+	// At the level a bench runs at (info), not the tests' debug.
+	d := startDaemonEnv(t, ctx, bin, cfgPath, filepath.Join(dir, "daemon.log"))
 	waitReady(t, ctx, c)
 	id, err := c.Start(ctx, api.StartRequest{Label: "memory"})
 	if err != nil {
@@ -242,7 +244,7 @@ func TestMemoryStaysFlat(t *testing.T) {
 	}
 	hour := time.Hour / speed
 	var series []memorySample
-	t.Logf("hour   VmRSS RssAnon RssFile (store map) KiB | heap in use, goal, retained MiB | goroutines | store KiB | points")
+	t.Logf("hour   VmRSS RssAnon RssFile (store map) KiB | heap in use, goal, retained, stacks, runtime MiB | goroutines | store KiB | points")
 	next := time.Now()
 	for h := 1; h <= hours; h++ {
 		next = next.Add(hour) // on the hour, however long a sample takes
@@ -256,7 +258,8 @@ func TestMemoryStaysFlat(t *testing.T) {
 			t.Fatal(err)
 		}
 		m, err := scrape(ctx, socket, "go_memstats_heap_inuse_bytes", "go_memstats_next_gc_bytes",
-			"go_memstats_heap_sys_bytes", "go_memstats_heap_released_bytes", "go_goroutines")
+			"go_memstats_heap_sys_bytes", "go_memstats_heap_released_bytes", "go_goroutines",
+			"go_memstats_stack_sys_bytes", "go_memstats_mspan_sys_bytes", "go_memstats_gc_sys_bytes", "go_memstats_other_sys_bytes")
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -264,6 +267,8 @@ func TestMemoryStaysFlat(t *testing.T) {
 		s.heapInuse, s.heapGoal = m["go_memstats_heap_inuse_bytes"]/mib, m["go_memstats_next_gc_bytes"]/mib
 		s.retained = (m["go_memstats_heap_sys_bytes"] - m["go_memstats_heap_released_bytes"]) / mib
 		s.goroutines = int(m["go_goroutines"])
+		s.stacks = m["go_memstats_stack_sys_bytes"] / mib
+		s.runtime = (m["go_memstats_mspan_sys_bytes"] + m["go_memstats_gc_sys_bytes"] + m["go_memstats_other_sys_bytes"]) / mib
 		fi, err := os.Stat(storePath)
 		if err != nil {
 			t.Fatal(err)
@@ -275,8 +280,8 @@ func TestMemoryStaysFlat(t *testing.T) {
 		}
 		s.points = st.PointsCaptured
 		series = append(series, s)
-		t.Logf("%4d %7d %7d %7d %7d       | %6.1f %5.1f %5.1f              | %10d | %9d | %6d",
-			h, s.rss, s.anon, s.file, s.storeMap, s.heapInuse, s.heapGoal, s.retained, s.goroutines, s.storeKiB, s.points)
+		t.Logf("%4d %7d %7d %7d %7d       | %6.1f %5.1f %5.1f %5.1f %5.1f                       | %10d | %9d | %6d",
+			h, s.rss, s.anon, s.file, s.storeMap, s.heapInuse, s.heapGoal, s.retained, s.stacks, s.runtime, s.goroutines, s.storeKiB, s.points)
 	}
 	stopDaemon(t, d)
 	first, last := series[0], series[len(series)-1]

@@ -184,6 +184,12 @@ func TestServeTermAndResume(t *testing.T) {
 
 func startDaemon(t *testing.T, ctx context.Context, bin, cfgPath, logPath string) *exec.Cmd {
 	t.Helper()
+	return startDaemonEnv(t, ctx, bin, cfgPath, logPath, "PLATEAU_LOG_LEVEL=debug")
+}
+
+// startDaemonEnv is startDaemon with the given extra environment.
+func startDaemonEnv(t *testing.T, ctx context.Context, bin, cfgPath, logPath string, env ...string) *exec.Cmd {
+	t.Helper()
 	logf, err := os.Create(logPath)
 	if err != nil {
 		t.Fatal(err)
@@ -191,7 +197,7 @@ func startDaemon(t *testing.T, ctx context.Context, bin, cfgPath, logPath string
 	t.Cleanup(func() { logf.Close() })
 	cmd := exec.CommandContext(ctx, bin, "serve", "-c", cfgPath)
 	cmd.Stdout, cmd.Stderr = logf, logf
-	cmd.Env = append(os.Environ(), "NOTIFY_SOCKET=", "PLATEAU_LOG_LEVEL=debug")
+	cmd.Env = append(append(os.Environ(), "NOTIFY_SOCKET="), env...)
 	if err := cmd.Start(); err != nil {
 		t.Fatal(err)
 	}

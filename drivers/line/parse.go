@@ -86,12 +86,12 @@ func (p Parser) checkUnit(unit string) error {
 	if unit == "" || p.Unit == "" {
 		return nil
 	}
-	got, err := units.Lookup(unit)
-	if err != nil {
+	got, ok := units.Find(unit)
+	if !ok {
 		return nil // not a pressure unit (a status letter, "G" for gauge): nothing to compare
 	}
-	want, err := units.Lookup(p.Unit)
-	if err != nil || got.Symbol == want.Symbol {
+	want, ok := units.Find(p.Unit)
+	if !ok || got.Symbol == want.Symbol {
 		return nil
 	}
 	return fmt.Errorf("%w: reply is in %s but the instrument is configured in %s", ErrGarbled, got.Symbol, want.Symbol)
