@@ -95,6 +95,8 @@ func (p *Poller) Interval() time.Duration { return p.interval }
 
 // Run polls until ctx ends.
 func (p *Poller) Run(ctx context.Context) {
+	timer := clock.NewTimer(p.clk) // one wait re-armed per read, not one made
+	defer timer.Stop()
 	for {
 		start := p.clk.Now()
 		r, err := p.gauge.Read(ctx)
@@ -106,10 +108,11 @@ func (p *Poller) Run(ctx context.Context) {
 		if wait < p.interval/10 {
 			wait = p.interval / 10 // never spin on a slow instrument
 		}
+		timer.Reset(wait)
 		select {
 		case <-ctx.Done():
 			return
-		case <-p.clk.After(wait):
+		case <-timer.C():
 		}
 	}
 }

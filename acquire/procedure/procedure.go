@@ -104,7 +104,8 @@ type Procedure struct {
 	Format   func(pa float64) string
 	Log      *slog.Logger
 
-	setpoint float64 // the last pressure asked for
+	setpoint float64     // the last pressure asked for
+	timer    clock.Timer // sleep's wait, made on first use; Run's goroutine owns it
 }
 
 // Device is one device under test as the procedure sees it.
@@ -243,10 +244,15 @@ func (p *Procedure) sleep(ctx context.Context, d time.Duration) error {
 	if d <= 0 {
 		return ctx.Err()
 	}
+	if p.timer == nil {
+		p.timer = clock.NewTimer(p.Clock)
+	}
+	p.timer.Reset(d)
 	select {
 	case <-ctx.Done():
+		p.timer.Stop()
 		return ctx.Err()
-	case <-p.Clock.After(d):
+	case <-p.timer.C():
 	}
 	if p.Gate.Paused() {
 		return errPaused

@@ -16,11 +16,64 @@ type Clock interface {
 	After(d time.Duration) <-chan time.Time
 }
 
+// Timer is one wait that a loop re-arms on every turn (a poller between
+// reads), so that waiting costs no allocation on the clocks that run for
+// hours. What C delivers only says the wait is over: read the clock for
+// the time.
+type Timer interface {
+	// C is the channel of the wait armed by the last Reset; call it after
+	// every Reset. A stopped or never armed timer's channel never delivers.
+	C() <-chan time.Time
+	// Reset arms the timer for d of the clock's time, dropping a wait not
+	// yet received.
+	Reset(d time.Duration)
+	Stop()
+}
+
+// NewTimer returns a stopped Timer on c: one reused wait on the wall and
+// scaled clocks, a fresh After on each Reset on the others (a manual clock
+// counts its waits, see Manual.Waiting).
+func NewTimer(c Clock) Timer {
+	if tc, ok := c.(interface{ newTimer() Timer }); ok {
+		return tc.newTimer()
+	}
+	return &afterTimer{clk: c}
+}
+
+type afterTimer struct {
+	clk Clock
+	ch  <-chan time.Time
+}
+
+func (t *afterTimer) C() <-chan time.Time   { return t.ch }
+func (t *afterTimer) Reset(d time.Duration) { t.ch = t.clk.After(d) }
+func (t *afterTimer) Stop()                 { t.ch = nil }
+
+// wallTimer is a time.Timer waiting scale × the duration asked: since Go
+// 1.23 its Reset and Stop leave no stale value in C.
+type wallTimer struct {
+	t     *time.Timer
+	scale float64
+}
+
+func newWallTimer(scale float64) *wallTimer {
+	t := time.NewTimer(time.Hour)
+	t.Stop()
+	return &wallTimer{t: t, scale: scale}
+}
+
+func (w *wallTimer) C() <-chan time.Time { return w.t.C }
+func (w *wallTimer) Reset(d time.Duration) {
+	w.t.Reset(time.Duration(float64(d) * w.scale))
+}
+func (w *wallTimer) Stop() { w.t.Stop() }
+
 // Wall is the real clock.
 type Wall struct{}
 
 func (Wall) Now() time.Time                         { return time.Now() }
 func (Wall) After(d time.Duration) <-chan time.Time { return time.After(d) }
+func (Wall) newTimer() Timer                        { return newWallTimer(1) }
 
 // Scaled runs Factor times faster than the wall clock, starting from the wall
 // time when it was made. Real I/O still happens in wall time, so keep the
@@ -58,6 +111,8 @@ func (s *Scaled) NotBefore(t time.Time) {
 		s.origin, s.start = t, time.Now()
 	}
 }
+
+func (s *Scaled) newTimer() Timer { return newWallTimer(1 / s.Factor) }
 
 func (s *Scaled) After(d time.Duration) <-chan time.Time {
 	out := make(chan time.Time, 1)
