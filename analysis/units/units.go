@@ -62,11 +62,17 @@ var (
 // aliases maps every accepted spelling (lower case, spaces removed) to a unit.
 var aliases = map[string]Unit{}
 
+// symbols maps each canonical symbol, spelled exactly, to its unit: how
+// most replies and configurations name a unit, found without the case
+// folding (and allocation) that aliases needs.
+var symbols = map[string]Unit{}
+
 func init() {
 	add := func(u Unit, names ...string) {
 		for _, n := range append(names, u.Symbol) {
 			aliases[normalise(n)] = u
 		}
+		symbols[u.Symbol] = u
 	}
 	add(Pascal, "pascal", "pascals")
 	add(Hectopascal, "hectopascal")
@@ -113,6 +119,9 @@ func Lookup(name string) (Unit, error) {
 // Find is Lookup without the error, for a driver that checks every reply's
 // unit and must not build a message for each one that is no unit at all.
 func Find(name string) (Unit, bool) {
+	if u, ok := symbols[name]; ok {
+		return u, true
+	}
 	u, _, ok := splitMode(name)
 	if !ok || prefixClash(name, u) {
 		return Unit{}, false

@@ -10,6 +10,7 @@ import (
 	"regexp"
 	"strconv"
 	"strings"
+	"unicode/utf8"
 
 	"plateau/analysis/units"
 )
@@ -33,12 +34,6 @@ type Parser struct {
 	Unit     string         // the configured unit; a reply naming another pressure unit is refused
 }
 
-// defaultLine: optional label, a number (sign, digits, point, exponent), optional unit.
-var defaultLine = regexp.MustCompile(`^\s*(?:[A-Za-z][A-Za-z0-9_.]*\s*[:=,]?\s+|[A-Za-z][A-Za-z0-9_.]*\s*[:=,]\s*)?` +
-	`([+-]?\s*(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z%°²₂/][A-Za-z0-9%°²₂/]*)?\s*$`)
-
-var number = regexp.MustCompile(`^([+-]?\s*(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z%°²₂/][A-Za-z0-9%°²₂/]*)?$`)
-
 // Parse returns the number on line, in the instrument's unit.
 func (p Parser) Parse(line string) (float64, error) {
 	s := strings.TrimSpace(line)
@@ -58,17 +53,15 @@ func (p Parser) Parse(line string) (float64, error) {
 		if len(m) > 1 {
 			field = m[1]
 		}
-		n := number.FindStringSubmatch(strings.TrimSpace(field))
-		if n == nil {
+		var ok bool
+		if num, unit, ok = splitReading(strings.TrimSpace(field), false); !ok {
 			return 0, fmt.Errorf("%w: %q is not a number", ErrGarbled, field)
 		}
-		num, unit = n[1], n[2]
 	} else {
-		m := defaultLine.FindStringSubmatch(s)
-		if m == nil {
+		var ok bool
+		if num, unit, ok = splitReading(s, true); !ok {
 			return 0, fmt.Errorf("%w: %q", ErrGarbled, s)
 		}
-		num, unit = m[1], m[2]
 	}
 	v, err := strconv.ParseFloat(strings.ReplaceAll(num, " ", ""), 64)
 	if err != nil || math.IsInf(v, 0) || math.IsNaN(v) {
@@ -98,18 +91,130 @@ func (p Parser) checkUnit(unit string) error {
 }
 
 func (p Parser) overload(s string) bool {
-	words := p.Overload
-	for _, tok := range strings.FieldsFunc(s, func(r rune) bool { return r == ' ' || r == '\t' || r == ',' || r == ';' || r == ':' || r == '=' }) {
+	for rest := s; rest != ""; {
+		var tok string
+		tok, rest = nextToken(rest)
 		// A field of dashes is how displays blank an unreadable value.
 		if len(tok) >= 2 && strings.Trim(tok, "-") == "" {
 			return true
 		}
 		bare := strings.TrimLeft(tok, "+-") // "-OL": overload on the negative side
-		for _, w := range words {
+		for _, w := range p.Overload {
 			if strings.EqualFold(tok, w) || strings.EqualFold(bare, w) {
 				return true
 			}
 		}
 	}
 	return false
+}
+
+// nextToken returns the first token of s, between the separators a reply
+// puts around its fields, and what follows it; without allocating, as a
+// poll parses a line on every read.
+func nextToken(s string) (tok, rest string) {
+	isSep := func(c byte) bool {
+		return c == ' ' || c == '\t' || c == ',' || c == ';' || c == ':' || c == '='
+	}
+	i := 0
+	for i < len(s) && isSep(s[i]) {
+		i++
+	}
+	j := i
+	for j < len(s) && !isSep(s[j]) {
+		j++
+	}
+	return s[i:j], s[j:]
+}
+
+// splitReading splits a reply line into its number and unit: an optional
+// label (a letter, then letters, digits, '_' or '.', then ':', '=' or ',' or
+// white space), a number (sign, digits with an optional point, exponent)
+// and an optional unit (a letter or one of %°²₂/, then those or digits),
+// with white space around. It scans by hand rather than by regular
+// expression, which allocated on every read; the grammar is the regular
+// expression in the tests, which the scan is fuzzed against.
+func splitReading(s string, label bool) (num, unit string, ok bool) {
+	i := skipSpace(s, 0)
+	if label && i < len(s) && isLetter(s[i]) {
+		j := i + 1
+		for j < len(s) && (isLetter(s[j]) || isDigit(s[j]) || s[j] == '_' || s[j] == '.') {
+			j++
+		}
+		k := skipSpace(s, j)
+		if k < len(s) && (s[k] == ':' || s[k] == '=' || s[k] == ',') {
+			k = skipSpace(s, k+1)
+		} else if k == j {
+			return "", "", false // a label runs into the number
+		}
+		i = k
+	}
+	start := i
+	if i < len(s) && (s[i] == '+' || s[i] == '-') {
+		i = skipSpace(s, i+1)
+	}
+	switch {
+	case i < len(s) && isDigit(s[i]):
+		i = skipDigits(s, i)
+		if i < len(s) && s[i] == '.' {
+			i = skipDigits(s, i+1)
+		}
+	case i+1 < len(s) && s[i] == '.' && isDigit(s[i+1]):
+		i = skipDigits(s, i+1)
+	default:
+		return "", "", false
+	}
+	if i < len(s) && (s[i] == 'e' || s[i] == 'E') {
+		j := i + 1
+		if j < len(s) && (s[j] == '+' || s[j] == '-') {
+			j++
+		}
+		if k := skipDigits(s, j); k > j {
+			i = k
+		}
+	}
+	num = s[start:i]
+	i = skipSpace(s, i)
+	if r, n := utf8.DecodeRuneInString(s[i:]); n > 0 && isUnitRune(r, false) {
+		u := i + n
+		for u < len(s) {
+			r, n := utf8.DecodeRuneInString(s[u:])
+			if !isUnitRune(r, true) {
+				break
+			}
+			u += n
+		}
+		unit, i = s[i:u], u
+	}
+	if skipSpace(s, i) != len(s) {
+		return "", "", false
+	}
+	return num, unit, true
+}
+
+// skipSpace passes the white space of a regular expression's \s.
+func skipSpace(s string, i int) int {
+	for i < len(s) && (s[i] == ' ' || s[i] == '\t' || s[i] == '\n' || s[i] == '\f' || s[i] == '\r') {
+		i++
+	}
+	return i
+}
+
+func skipDigits(s string, i int) int {
+	for i < len(s) && isDigit(s[i]) {
+		i++
+	}
+	return i
+}
+
+func isDigit(c byte) bool  { return '0' <= c && c <= '9' }
+func isLetter(c byte) bool { return 'a' <= c && c <= 'z' || 'A' <= c && c <= 'Z' }
+
+// isUnitRune: a unit starts with a letter or one of %°²₂/ and goes on
+// with those or digits ("kPa", "%FS", "kgf/cm²", "inH₂O").
+func isUnitRune(r rune, more bool) bool {
+	switch {
+	case r < utf8.RuneSelf && isLetter(byte(r)), r == '%', r == '°', r == '²', r == '₂', r == '/':
+		return true
+	}
+	return more && r < utf8.RuneSelf && isDigit(byte(r))
 }

@@ -91,3 +91,63 @@ func FuzzParse(f *testing.F) {
 		}
 	})
 }
+
+// The grammar splitReading scans, as regular expressions (the parser's own
+// until a poll's every read was seen allocating in them): an optional label,
+// a number, an optional unit.
+var (
+	grammarLine = regexp.MustCompile(`^\s*(?:[A-Za-z][A-Za-z0-9_.]*\s*[:=,]?\s+|[A-Za-z][A-Za-z0-9_.]*\s*[:=,]\s*)?` +
+		`([+-]?\s*(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z%°²₂/][A-Za-z0-9%°²₂/]*)?\s*$`)
+	grammarNumber = regexp.MustCompile(`^\s*([+-]?\s*(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([A-Za-z%°²₂/][A-Za-z0-9%°²₂/]*)?\s*$`)
+)
+
+// checkSplit compares splitReading with the grammar's regular expression
+// on s, with and without a label.
+func checkSplit(t *testing.T, s string) {
+	t.Helper()
+	for _, c := range []struct {
+		label bool
+		re    *regexp.Regexp
+	}{{true, grammarLine}, {false, grammarNumber}} {
+		num, unit, ok := splitReading(s, c.label)
+		m := c.re.FindStringSubmatch(s)
+		if ok != (m != nil) || ok && (num != m[1] || unit != m[2]) {
+			t.Fatalf("splitReading(%q, label %v) = %q, %q, %v; the grammar gives %q", s, c.label, num, unit, ok, m)
+		}
+	}
+}
+
+func TestSplitReadingFollowsTheGrammar(t *testing.T) {
+	for _, s := range []string{
+		"1.01325", "P1: +6.0001E+00 bar", "PRESS 0.500", "P1 : 5", "P1:5", "P1,,5", "P1 = - 2.5e-3 kgf/cm²",
+		"5.bar", "1e5x", "1e+5", "1e", "1e+", "5e bar", "e5", "E+00 bar", "nan", ".5", ".", "+.5 %FS", "+ 5",
+		"12 inH₂O", "3 °C", "1.0 2.0", "2.5 G", "-OL", "101.325kPa", "  7\t\r", "x\xff 1", "1 \xff", "1 k\xffPa",
+		"_1", "a_b.c 1", "1 /", "1 2a", "P1\t:\t1", "",
+	} {
+		checkSplit(t, s)
+	}
+}
+
+// Replies come from outside: the hand scan and the grammar agree on every line.
+func FuzzSplitReading(f *testing.F) {
+	for _, s := range []string{"P1: +6.0001E+00 bar", "1e5x", "+ .5 %", "12 inH₂O", "5.bar", "\xff"} {
+		f.Add(s)
+	}
+	f.Fuzz(checkSplit)
+}
+
+// A good reply parses without allocating: a poll parses one on every read.
+func TestParseAllocatesNothing(t *testing.T) {
+	for _, c := range []struct {
+		p    Parser
+		line string
+	}{
+		{Parser{Unit: "bar", Overload: common}, "P1: +6.0001E+00 bar\r"},
+		{Parser{Unit: "kPa"}, "101.325kPa"},
+		{Parser{}, "-1.2345E-02"},
+	} {
+		if n := testing.AllocsPerRun(200, func() { c.p.Parse(c.line) }); n != 0 {
+			t.Errorf("Parse(%q) makes %v allocations, want none", c.line, n)
+		}
+	}
+}
