@@ -106,8 +106,8 @@ type commitWatcher interface {
 // storeCollector reports the store writer's progress, so an alert can
 // tell a store that stopped committing from one that is merely quiet.
 type storeCollector struct {
-	w                                  commitWatcher
-	lastCommit, committed, failed, due *prometheus.Desc
+	w                                           commitWatcher
+	lastCommit, committed, failed, due, reopens *prometheus.Desc
 }
 
 // registerStoreMetrics adds the store writer's metrics to reg when the
@@ -123,6 +123,7 @@ func registerStoreMetrics(reg prometheus.Registerer, rec Records) {
 		committed:  prometheus.NewDesc("plateau_store_committed_total", "Samples and queued events committed since the daemon started.", nil, nil),
 		failed:     prometheus.NewDesc("plateau_store_commit_failures_total", "Failed store commits since the daemon started (each is retried).", nil, nil),
 		due:        prometheus.NewDesc("plateau_store_uncommitted", "Items taken for writing and not yet committed.", nil, nil),
+		reopens:    prometheus.NewDesc("plateau_store_reopens_total", "Times the store writer closed and reopened its file to let bbolt drop its per-page bookkeeping.", nil, nil),
 	})
 }
 
@@ -131,6 +132,7 @@ func (c *storeCollector) Describe(ch chan<- *prometheus.Desc) {
 	ch <- c.committed
 	ch <- c.failed
 	ch <- c.due
+	ch <- c.reopens
 }
 
 func (c *storeCollector) Collect(ch chan<- prometheus.Metric) {
@@ -141,6 +143,7 @@ func (c *storeCollector) Collect(ch chan<- prometheus.Metric) {
 	ch <- prometheus.MustNewConstMetric(c.committed, prometheus.CounterValue, float64(ws.Committed))
 	ch <- prometheus.MustNewConstMetric(c.failed, prometheus.CounterValue, float64(ws.Failures))
 	ch <- prometheus.MustNewConstMetric(c.due, prometheus.GaugeValue, float64(ws.Pending))
+	ch <- prometheus.MustNewConstMetric(c.reopens, prometheus.CounterValue, float64(ws.Reopens))
 }
 
 func boolValue(b bool) float64 {

@@ -136,6 +136,9 @@ func TestStoreCommitMetrics(t *testing.T) {
 	if at := got["plateau_store_last_commit_timestamp_seconds"]; at < float64(before.Unix())-1 || at > float64(time.Now().Unix())+1 {
 		t.Errorf("last commit at %g, want about %d", at, before.Unix())
 	}
+	if _, ok := got["plateau_store_reopens_total"]; !ok {
+		t.Errorf("no plateau_store_reopens_total in %v", got)
+	}
 	if got["plateau_store_committed_total"] < 10 || got["plateau_store_commit_failures_total"] != 0 {
 		t.Errorf("writer metrics %v", got)
 	}

@@ -24,11 +24,22 @@ func guarded(path, what string, f func() error) (err error) {
 
 func (s *Store) guard(what string, f func() error) error { return guarded(s.path, what, f) }
 
-// view and update are bbolt's View and Update under the guard.
+// view and update are bbolt's View and Update under the guard, holding
+// dbMu for reading so that the writer's reopen (reopen.go) finds no
+// transaction in flight.
 func (s *Store) view(what string, fn func(*bolt.Tx) error) error {
-	return s.guard(what, func() error { return s.db.View(fn) })
+	return s.withDB(what, func(db *bolt.DB) error { return db.View(fn) })
 }
 
 func (s *Store) update(what string, fn func(*bolt.Tx) error) error {
-	return s.guard(what, func() error { return s.db.Update(fn) })
+	return s.withDB(what, func(db *bolt.DB) error { return db.Update(fn) })
+}
+
+func (s *Store) withDB(what string, f func(*bolt.DB) error) error {
+	s.dbMu.RLock()
+	defer s.dbMu.RUnlock()
+	if s.db == nil {
+		return fmt.Errorf("%s: %w", what, s.dbErr)
+	}
+	return s.guard(what, func() error { return f(s.db) })
 }

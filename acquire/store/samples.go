@@ -92,6 +92,7 @@ type WriterStatus struct {
 	Failures   uint64    // failed commits since Open
 	Err        error     // the last commit error; nil once a commit succeeds again
 	Streams    int       // sample streams the writer keeps a block of: one per instrument of each run not yet ended
+	Reopens    uint64    // times the writer closed and reopened the file since Open (see reopen.go)
 }
 
 type writerState struct {
@@ -221,7 +222,11 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 	if len(pending) == 0 {
 		return nil
 	}
+	if s.db == nil {
+		s.reopenIfDue(0) // an earlier reopen failed: try again first
+	}
 	staged := map[streamKey]*stream{}
+	var highWater int64
 	err := s.update("commit samples", func(tx *bolt.Tx) error {
 		clear(staged)
 		for _, j := range pending {
@@ -254,6 +259,7 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 				return fmt.Errorf("samples of %s in run %s: %w", k.instrument, k.run, err)
 			}
 		}
+		highWater = tx.Size()
 		return nil
 	})
 	if err != nil {
@@ -276,6 +282,7 @@ func (s *Store) commit(streams map[streamKey]*stream, pending []job) error {
 			j.committed(*j.event, nil)
 		}
 	}
+	s.reopenIfDue(highWater)
 	return nil
 }
 

@@ -22,6 +22,8 @@
 // AddPoint, AddEvent. Asynchronous, through one writer goroutine that commits
 // one Update per FlushInterval or per BatchSamples items: Put and
 // QueueEvent; Flush waits until everything queued before it is committed.
+// The writer closes and reopens the file every few MiB of new data
+// (reopen.go), between transactions and only when none is in flight.
 // A Store is safe for concurrent use.
 package store
 
@@ -102,6 +104,8 @@ type Options struct {
 	// StartCheck is how much Open checks before it returns: CheckBounded
 	// (the default), CheckFull or CheckPagesOnly.
 	StartCheck CheckDepth
+
+	reopenPages int // pages committed between reopens (default reopenPages); tests set fewer
 }
 
 // CheckDepth says how much of a store a check reads.
@@ -145,6 +149,9 @@ func (o Options) withDefaults() (Options, error) {
 	if o.Clock == nil {
 		o.Clock = clock.Wall{}
 	}
+	if o.reopenPages <= 0 {
+		o.reopenPages = reopenPages
+	}
 	return o, nil
 }
 
@@ -165,7 +172,13 @@ func ParseRunID(s string) (RunID, error) {
 
 // Store is an open plateau store.
 type Store struct {
+	// dbMu guards db and dbErr: every transaction holds it for reading,
+	// the writer takes it to reopen the file (reopen.go). db is nil, with
+	// dbErr saying why, after a reopen that failed.
+	dbMu   sync.RWMutex
 	db     *bolt.DB
+	dbErr  error
+	live   liveTracker // the writer's only
 	opt    Options
 	path   string
 	legacy bool // format-1 file: unsealed records accepted
@@ -213,7 +226,7 @@ func Open(path string, opt Options) (*Store, error) {
 		}
 		return nil, refusal(path, err)
 	}
-	s := &Store{db: db, opt: opt, path: path, runs: map[RunID]State{},
+	s := &Store{db: db, opt: opt, path: path, runs: map[RunID]State{}, live: liveTracker{limit: opt.reopenPages},
 		queue: make(chan job, opt.QueueSize), flushes: make(chan chan error), done: make(chan struct{})}
 	if err := s.guard("open", func() error { return s.init(fresh) }); err != nil {
 		db.Close()
@@ -227,9 +240,13 @@ func Open(path string, opt Options) (*Store, error) {
 	}
 	if opt.ReadOnly {
 		close(s.done)
-	} else {
-		go s.writer()
+		return s, nil
 	}
+	if err := s.startTracking(); err != nil {
+		db.Close()
+		return nil, refusal(path, err)
+	}
+	go s.writer()
 	return s, nil
 }
 
@@ -364,6 +381,12 @@ func (s *Store) Close() error {
 	s.mu.Unlock()
 	<-s.done
 	ws := s.status.get()
+	if s.db == nil { // a reopen failed; dbErr says why and the writer's status holds what was not committed
+		if ws.Err != nil {
+			return fmt.Errorf("close store %s: %d queued items could not be committed: %w", s.path, ws.Pending, ws.Err)
+		}
+		return fmt.Errorf("close store %s: %w", s.path, s.dbErr)
+	}
 	if err := s.db.Close(); err != nil {
 		return fmt.Errorf("close store %s: %w", s.path, err)
 	}
@@ -383,13 +406,11 @@ func (s *Store) Check() error {
 	}
 	defer end()
 	var errs []error
-	err = s.guard("check", func() error {
-		return s.db.View(func(tx *bolt.Tx) error {
-			for e := range tx.Check() {
-				errs = append(errs, e)
-			}
-			return nil
-		})
+	err = s.view("check", func(tx *bolt.Tx) error {
+		for e := range tx.Check() {
+			errs = append(errs, e)
+		}
+		return nil
 	})
 	if err == nil && len(errs) == 0 {
 		err = s.checkContent(CheckFull)
@@ -411,12 +432,10 @@ func (s *Store) Check() error {
 // stays in use, and returns the bytes written.
 func (s *Store) Backup(w io.Writer) (int64, error) {
 	var n int64
-	err := s.guard("backup", func() error {
-		return s.db.View(func(tx *bolt.Tx) error {
-			var err error
-			n, err = tx.WriteTo(w)
-			return err
-		})
+	err := s.view("backup", func(tx *bolt.Tx) error {
+		var err error
+		n, err = tx.WriteTo(w)
+		return err
 	})
 	if err != nil {
 		return n, fmt.Errorf("backup store %s: %w", s.path, err)
