@@ -20,13 +20,6 @@ import (
 // Closing and opening the file drops them; a run does not notice.
 const reopenPages = 1024
 
-// liveTracker is the writer's count of what it has committed since the
-// file was last opened, in pages.
-type liveTracker struct {
-	atOpen int // live pages when the file was opened
-	limit  int // reopen once the live pages grew by this much
-}
-
 // livePages is the number of pages holding data: the file's pages below
 // its high-water mark less the free and pending ones.
 func livePages(db *bolt.DB, highWater int64) int {
@@ -38,7 +31,7 @@ func livePages(db *bolt.DB, highWater int64) int {
 func (s *Store) startTracking() error {
 	return s.guard("count pages", func() error {
 		return s.db.View(func(tx *bolt.Tx) error {
-			s.live.atOpen = livePages(s.db, tx.Size())
+			s.liveAtOpen = livePages(s.db, tx.Size())
 			return nil
 		})
 	})
@@ -51,7 +44,7 @@ func (s *Store) startTracking() error {
 // later commit, so the writer is never held up by a reader, however long
 // that reader takes.
 func (s *Store) reopenIfDue(highWater int64) {
-	if s.db != nil && (s.closing.Load() || livePages(s.db, highWater)-s.live.atOpen < s.live.limit) {
+	if s.db != nil && (s.closing.Load() || livePages(s.db, highWater)-s.liveAtOpen < s.opt.reopenPages) {
 		return
 	}
 	if !s.dbMu.TryLock() {
@@ -86,7 +79,7 @@ func (s *Store) reopenLocked() {
 	}
 	s.db, s.dbErr = db, nil
 	if err := s.startTracking(); err != nil {
-		s.live.atOpen = 0 // counted from zero: the next reopen comes early, not late
+		s.liveAtOpen = 0 // counted from zero: the next reopen comes early, not late
 	}
 	s.status.set(func(w *WriterStatus) { w.Reopens++ })
 }

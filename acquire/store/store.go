@@ -175,13 +175,13 @@ type Store struct {
 	// dbMu guards db and dbErr: every transaction holds it for reading,
 	// the writer takes it to reopen the file (reopen.go). db is nil, with
 	// dbErr saying why, after a reopen that failed.
-	dbMu   sync.RWMutex
-	db     *bolt.DB
-	dbErr  error
-	live   liveTracker // the writer's only
-	opt    Options
-	path   string
-	legacy bool // format-1 file: unsealed records accepted
+	dbMu       sync.RWMutex
+	db         *bolt.DB
+	dbErr      error
+	liveAtOpen int // live pages when the file was last opened; the writer's only (reopen.go)
+	opt        Options
+	path       string
+	legacy     bool // format-1 file: unsealed records accepted
 
 	// mu guards closed; every operation holds it for reading so that Close
 	// (which takes it for writing) waits for operations in flight.
@@ -226,7 +226,7 @@ func Open(path string, opt Options) (*Store, error) {
 		}
 		return nil, refusal(path, err)
 	}
-	s := &Store{db: db, opt: opt, path: path, runs: map[RunID]State{}, live: liveTracker{limit: opt.reopenPages},
+	s := &Store{db: db, opt: opt, path: path, runs: map[RunID]State{},
 		queue: make(chan job, opt.QueueSize), flushes: make(chan chan error), done: make(chan struct{})}
 	if err := s.guard("open", func() error { return s.init(fresh) }); err != nil {
 		db.Close()
@@ -381,17 +381,16 @@ func (s *Store) Close() error {
 	s.mu.Unlock()
 	<-s.done
 	ws := s.status.get()
-	if s.db == nil { // a reopen failed; dbErr says why and the writer's status holds what was not committed
-		if ws.Err != nil {
-			return fmt.Errorf("close store %s: %d queued items could not be committed: %w", s.path, ws.Pending, ws.Err)
+	if s.db != nil { // nil after a reopen that failed: dbErr says why
+		if err := s.db.Close(); err != nil {
+			return fmt.Errorf("close store %s: %w", s.path, err)
 		}
-		return fmt.Errorf("close store %s: %w", s.path, s.dbErr)
-	}
-	if err := s.db.Close(); err != nil {
-		return fmt.Errorf("close store %s: %w", s.path, err)
 	}
 	if ws.Err != nil {
 		return fmt.Errorf("close store %s: %d queued items could not be committed: %w", s.path, ws.Pending, ws.Err)
+	}
+	if s.db == nil {
+		return fmt.Errorf("close store %s: %w", s.path, s.dbErr)
 	}
 	return nil
 }

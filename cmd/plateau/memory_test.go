@@ -96,26 +96,26 @@ func mappedKiB(pid int, path string) (int, error) {
 }
 
 // residentBetween reads the process's resident memory once a second from
-// from until deadline and returns the reading with the median RssAnon, and
-// the largest RssAnon read: the heap the runtime keeps rises and falls with
+// from until deadline and returns the reading with the median RssAnon,
+// with the largest RssAnon read as its peakAnon: the heap the runtime keeps rises and falls with
 // each collection (about one a second here) and with the pages it hands
 // back in the background, so one reading, or a few taken together, says
 // more about where a collection happened to be than about the hour.
-func residentBetween(ctx context.Context, pid int, storePath string, from, deadline time.Time) (memorySample, int, error) {
+func residentBetween(ctx context.Context, pid int, storePath string, from, deadline time.Time) (memorySample, error) {
 	select {
 	case <-time.After(time.Until(from)):
 	case <-ctx.Done():
-		return memorySample{}, 0, ctx.Err()
+		return memorySample{}, ctx.Err()
 	}
 	var rs []memorySample
 	for {
 		var s memorySample
 		var err error
 		if s.rss, s.anon, s.file, err = procStatus(pid); err != nil {
-			return s, 0, err
+			return s, err
 		}
 		if s.storeMap, err = mappedKiB(pid, storePath); err != nil {
-			return s, 0, err
+			return s, err
 		}
 		rs = append(rs, s)
 		wait := time.Until(deadline)
@@ -125,11 +125,13 @@ func residentBetween(ctx context.Context, pid int, storePath string, from, deadl
 		select {
 		case <-time.After(min(wait, time.Second)):
 		case <-ctx.Done():
-			return memorySample{}, 0, ctx.Err()
+			return memorySample{}, ctx.Err()
 		}
 	}
 	slices.SortFunc(rs, func(a, b memorySample) int { return a.anon - b.anon })
-	return rs[len(rs)/2], rs[len(rs)-1].anon, nil
+	median := rs[len(rs)/2]
+	median.peakAnon = rs[len(rs)-1].anon
+	return median, nil
 }
 
 // scrape returns the values of the named series from the daemon's /metrics.
@@ -261,11 +263,10 @@ func TestMemoryStaysFlat(t *testing.T) {
 	next := time.Now()
 	for h := 1; h <= hours; h++ {
 		next = next.Add(hour) // on the hour, however long a sample takes
-		s, peak, err := residentBetween(ctx, d.Process.Pid, storePath, next.Add(-hour/2), next)
+		s, err := residentBetween(ctx, d.Process.Pid, storePath, next.Add(-hour/2), next)
 		if err != nil {
 			t.Fatal(err)
 		}
-		s.peakAnon = peak
 		m, err := scrape(ctx, socket, "go_memstats_heap_inuse_bytes", "go_memstats_next_gc_bytes",
 			"go_memstats_heap_sys_bytes", "go_memstats_heap_released_bytes", "go_goroutines",
 			"go_memstats_stack_sys_bytes", "go_memstats_mspan_sys_bytes", "go_memstats_gc_sys_bytes", "go_memstats_other_sys_bytes")
